@@ -1,0 +1,44 @@
+"""interkit: counterpoise-corrected interaction-energy scans of molecular dimers.
+
+Public API::
+
+    import interkit as ik
+    dimer = ik.Dimer.from_xyz("demo_systems/water_methanol.xyz")
+    spec = ik.ScanSpec(dimer=dimer, coordinate=ik.AtomPair(1, 5),
+                       factors=[0.9, 1.0, 1.2, 1.5, 2.0], levels=["hf/def2-svp"])
+    ds = ik.run_scan(spec, cache=".interkit-cache")
+    ik.save_scan(ds, "scan.nc")
+
+Computed interaction energies are model results with method and basis-set errors;
+validate them before using them in design decisions.
+"""
+
+from __future__ import annotations
+
+__version__ = "0.1.0"
+
+from .coordinates import AtomPair, CentreOfMass, Frames, ScanCoordinate, Vector
+from .demo import list_demos, load_demo
+from .errors import (
+    ConvergenceError,
+    InputError,
+    InterkitError,
+    InterkitWarning,
+    NotAvailableError,
+    ResourceError,
+    StoreError,
+)
+from .geometry import Dimer
+from .levels import LevelOfTheory, parse_level
+from .results import open_scan, save_scan, validate
+from .run import run_scan
+from .spec import ScanSpec, load_spec_toml
+from .units import convert_energy
+
+__all__ = [
+    "AtomPair", "CentreOfMass", "ConvergenceError", "Dimer", "Frames", "InputError",
+    "InterkitError", "InterkitWarning", "LevelOfTheory", "NotAvailableError", "ResourceError",
+    "ScanCoordinate", "ScanSpec", "StoreError", "Vector", "__version__", "convert_energy",
+    "list_demos", "load_demo", "load_spec_toml", "open_scan", "parse_level", "run_scan",
+    "save_scan", "validate",
+]

@@ -1,0 +1,179 @@
+"""Energies of one job: SCF (HF/DFT) with a convergence ladder, then MP2, SCS-MP2 or
+CCSD(T), plus post-hoc dispersion.
+
+The result is a plain record (JSON-safe dict); the converged density is returned
+separately so a worker can seed the next point's SCF with it.
+"""
+
+from __future__ import annotations
+
+import time
+import traceback
+
+import numpy as np
+from pyscf import cc, dft, mp, scf
+from pyscf.data import elements
+
+from ..levels import SCS_OPPOSITE_SPIN, SCS_SAME_SPIN, LevelOfTheory
+from ..plan import Job
+from .dispersion import dispersion_energy_and_gradient
+from .molecule import build_molecule
+
+#: SCF iterations per rung of the convergence ladder
+MAX_SCF_CYCLES = 100
+
+
+def _make_scf(mol, level: LevelOfTheory, conv_tol: float):
+    unrestricted = mol.spin != 0
+    if level.method == "dft":
+        mf = dft.UKS(mol) if unrestricted else dft.RKS(mol)
+        mf.xc = level.functional
+    else:
+        mf = scf.UHF(mol) if unrestricted else scf.RHF(mol)
+    # CCSD(T) runs on a conventional reference so the correlation step is not fitted
+    if level.density_fitting and level.method != "ccsd(t)":
+        mf = mf.density_fit()
+    mf.conv_tol = conv_tol
+    mf.max_cycle = MAX_SCF_CYCLES
+    mf.verbose = 0
+    return mf
+
+
+def _usable_guess(guess, mf) -> bool:
+    if guess is None:
+        return False
+    nao = mf.mol.nao
+    shape = (2, nao, nao) if mf.mol.spin != 0 else (nao, nao)
+    return np.shape(guess) == shape
+
+
+def converge_scf(mf, guess=None) -> tuple[str, str]:
+    """Run the SCF through a ladder of increasingly robust settings.
+
+    1. DIIS from the guess (or pyscf's default guess);
+    2. level shift 0.5 Eh with damping 0.5, from the last density;
+    3. second-order (Newton) solver from the last orbitals.
+
+    Returns
+    -------
+    status : str
+        ``'ok'``, ``'retried'`` or ``'failed'``.
+    detail : str
+        Which rung converged, or why it failed.
+    """
+    dm0 = guess if _usable_guess(guess, mf) else None
+    mf.kernel(dm0=dm0)
+    if mf.converged:
+        return "ok", "DIIS"
+    mf.level_shift = 0.5
+    mf.damp = 0.5
+    mf.diis_start_cycle = 4
+    mf.kernel(dm0=mf.make_rdm1())
+    mf.level_shift = 0.0
+    mf.damp = 0.0
+    if mf.converged:
+        return "retried", "level shift and damping"
+    newton = mf.newton()
+    newton.max_cycle = MAX_SCF_CYCLES
+    newton.kernel(mf.mo_coeff, mf.mo_occ)
+    if newton.converged:
+        for attr in ("e_tot", "mo_coeff", "mo_occ", "mo_energy", "converged"):
+            setattr(mf, attr, getattr(newton, attr))
+        return "retried", "second-order solver"
+    return "failed", "SCF did not converge (DIIS, level shift with damping, second-order solver)"
+
+
+def _frozen_core(mol) -> int:
+    # chemcore counts real atoms only (ghosts have no electrons) and respects ECPs
+    return int(elements.chemcore(mol))
+
+
+def correlation_energy(mf, level: LevelOfTheory) -> float:
+    """Frozen-core correlation energy (hartree) of a converged SCF for MP2-type or
+    CCSD(T) levels."""
+    mol = mf.mol
+    ncore = _frozen_core(mol)
+    if level.method in ("mp2", "scs-mp2"):
+        solver = (mp.UMP2(mf) if mol.spin != 0 else mp.MP2(mf)).density_fit()
+        solver.frozen = ncore or None
+        solver.verbose = 0
+        solver.kernel()
+        if level.method == "mp2":
+            return float(solver.e_corr)
+        return float(SCS_OPPOSITE_SPIN * solver.e_corr_os + SCS_SAME_SPIN * solver.e_corr_ss)
+    if level.method == "ccsd(t)":
+        solver = cc.UCCSD(mf) if mol.spin != 0 else cc.CCSD(mf)
+        solver.frozen = ncore or None
+        solver.verbose = 0
+        solver.conv_tol = 1e-9
+        solver.kernel()
+        if not solver.converged:
+            raise RuntimeError("CCSD amplitudes did not converge")
+        return float(solver.e_corr + solver.ccsd_t())
+    return 0.0
+
+
+def run_energy_job(job: Job, guess=None) -> tuple[dict, object]:
+    """Compute one job.
+
+    Parameters
+    ----------
+    job : Job
+    guess : array, optional
+        Density matrix of a similar calculation (same basis layout) to start from.
+
+    Returns
+    -------
+    record : dict
+        ``energy_hartree`` (total, NaN on failure), ``scf_energy_hartree``,
+        ``correlation_energy_hartree``, ``dispersion_energy_hartree``, ``converged``,
+        ``status`` (ok / retried / failed), ``detail``, ``scf_cycles``, ``nao``,
+        ``wall_time_s``.
+    density : array or None
+        The converged density matrix, for seeding the next calculation.
+    """
+    t0 = time.perf_counter()
+    record = {
+        "energy_hartree": float("nan"),
+        "scf_energy_hartree": float("nan"),
+        "correlation_energy_hartree": 0.0,
+        "dispersion_energy_hartree": 0.0,
+        "converged": False,
+        "status": "failed",
+        "detail": "",
+        "scf_cycles": 0,
+        "nao": 0,
+        "guess": "previous point" if guess is not None else "default",
+    }
+    density = None
+    try:
+        mol = build_molecule(job)
+        record["nao"] = int(mol.nao)
+        mf = _make_scf(mol, job.level, job.conv_tol)
+        status, detail = converge_scf(mf, guess)
+        record["scf_cycles"] = int(getattr(mf, "cycles", 0) or 0)
+        record["status"], record["detail"] = status, detail
+        if status != "failed":
+            density = mf.make_rdm1()
+            e_scf = float(mf.e_tot)
+            e_corr = correlation_energy(mf, job.level)
+            e_disp = 0.0
+            if job.level.dispersion:
+                real = job.real_atoms
+                e_disp, _ = dispersion_energy_and_gradient(
+                    [job.symbols[i] for i in real], [job.coordinates[i] for i in real],
+                    job.level.functional, job.level.dispersion)
+            record.update(
+                scf_energy_hartree=e_scf,
+                correlation_energy_hartree=e_corr,
+                dispersion_energy_hartree=float(e_disp),
+                energy_hartree=e_scf + e_corr + float(e_disp),
+                converged=True,
+            )
+    except Exception as exc:  # a failed calculation must not stop the scan
+        record["status"] = "failed"
+        last = traceback.extract_tb(exc.__traceback__)[-1]
+        record["detail"] = f"{type(exc).__name__}: {exc} (at {last.name})".replace("\n", " ")[:500]
+        density = None
+    record["wall_time_s"] = time.perf_counter() - t0
+    return record, density

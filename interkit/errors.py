@@ -1,0 +1,35 @@
+"""Typed errors of interkit.
+
+Every error a user can cause carries a one-line message that names the field and the
+offending value. The command line turns these into exit code 2 without a traceback.
+"""
+
+from __future__ import annotations
+
+
+class InterkitError(Exception):
+    """Base class of every error interkit raises on purpose."""
+
+
+class InputError(InterkitError, ValueError):
+    """Bad user input: a file, a geometry, a spec key or value."""
+
+
+class NotAvailableError(InterkitError, NotImplementedError):
+    """A requested option exists in the API but is not implemented yet."""
+
+
+class ConvergenceError(InterkitError, RuntimeError):
+    """An electronic-structure calculation did not converge."""
+
+
+class ResourceError(InterkitError, RuntimeError):
+    """A calculation would exceed a stated resource limit (memory, size)."""
+
+
+class StoreError(InterkitError, OSError):
+    """The on-disk result store cannot be used."""
+
+
+class InterkitWarning(UserWarning):
+    """Warnings interkit emits (cost, approximations, unavailable schemes)."""

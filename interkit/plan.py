@@ -1,0 +1,219 @@
+"""Turn a ScanSpec into independent calculation jobs (pure, no pyscf calls).
+
+Counterpoise (Boys–Bernardi) at every scan point and level needs three calculations in
+the dimer basis: the dimer, A with B's atoms as ghosts, and B with A's atoms as ghosts.
+The monomers in their own basis (for the uncorrected energy and the BSSE) are placed at
+a canonical position (centroid at the origin), so a rigid scan computes each only once.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .levels import LevelOfTheory
+from .spec import ScanSpec
+
+#: bump when a change in interkit alters the numbers a job produces
+NUMERICS_VERSION = 1
+#: coordinates in job descriptions are rounded to this many decimals of an angstrom
+COORDINATE_DECIMALS = 10
+
+ROLES = ("dimer", "a_dimer_basis", "b_dimer_basis", "a_own_basis", "b_own_basis")
+ROLE_LABELS = {
+    "dimer": "dimer (dimer basis)",
+    "a_dimer_basis": "A in dimer basis",
+    "b_dimer_basis": "B in dimer basis",
+    "a_own_basis": "A in own basis",
+    "b_own_basis": "B in own basis",
+}
+
+
+def _pyscf_version() -> str:
+    import pyscf
+
+    return pyscf.__version__
+
+
+@dataclass(frozen=True)
+class Job:
+    """One electronic-structure calculation, described completely by data.
+
+    Attributes
+    ----------
+    symbols : tuple of str
+        Element symbols.
+    coordinates : tuple of (x, y, z)
+        Positions in angstrom, rounded to ``COORDINATE_DECIMALS``.
+    ghost : tuple of bool
+        True where the atom carries basis functions but no nucleus or electrons.
+    charge, spin : int
+        Net charge and number of unpaired electrons (2S) of the real atoms.
+    level : LevelOfTheory
+    conv_tol : float
+        SCF energy threshold in hartree.
+    outputs : tuple of str
+        What to compute (``'energy'``).
+    """
+
+    symbols: tuple[str, ...]
+    coordinates: tuple[tuple[float, float, float], ...]
+    ghost: tuple[bool, ...]
+    charge: int
+    spin: int
+    level: LevelOfTheory
+    conv_tol: float
+    outputs: tuple[str, ...] = ("energy",)
+    key: str = field(default="", compare=False)
+
+    def __post_init__(self):
+        if not self.key:
+            object.__setattr__(self, "key", job_key(self.describe()))
+
+    def describe(self) -> dict:
+        """Complete plain-data description; its hash is the job's key."""
+        return {
+            "symbols": list(self.symbols),
+            "coordinates_angstrom": [list(c) for c in self.coordinates],
+            "ghost": list(self.ghost),
+            "charge": self.charge,
+            "spin": self.spin,
+            "level": self.level.to_dict(),
+            "conv_tol": self.conv_tol,
+            "outputs": list(self.outputs),
+        }
+
+    @property
+    def real_atoms(self) -> list[int]:
+        """Indices of the non-ghost atoms."""
+        return [i for i, g in enumerate(self.ghost) if not g]
+
+
+def job_key(description: dict) -> str:
+    """SHA-256 of the job description plus the versions that change its numbers."""
+    payload = {
+        "job": description,
+        "numerics_version": NUMERICS_VERSION,
+        "pyscf": _pyscf_version(),
+    }
+    text = json.dumps(payload, sort_keys=True, separators=(",", ":"))
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+def _rounded(coords: np.ndarray) -> tuple[tuple[float, float, float], ...]:
+    r = np.round(np.asarray(coords, dtype=float), COORDINATE_DECIMALS) + 0.0  # no -0.0
+    return tuple(tuple(float(x) for x in row) for row in r)
+
+
+@dataclass(frozen=True)
+class ScanPlan:
+    """The jobs of a scan and where each result goes.
+
+    Attributes
+    ----------
+    jobs : dict
+        Unique jobs by key.
+    table : dict
+        ``table[(level_index, point_index)][role] -> key``.
+    roles_per_point : tuple of str
+        The roles computed at each point.
+    """
+
+    spec: ScanSpec
+    jobs: dict[str, Job]
+    table: dict[tuple[int, int], dict[str, str]]
+    roles_per_point: tuple[str, ...]
+
+    @property
+    def n_points(self) -> int:
+        return len(self.spec.points)
+
+    def chunks(self, n_chunks: int) -> list[list[tuple[str, str]]]:
+        """Split the work into about ``n_chunks`` ordered task lists of ``(role, key)``.
+
+        Each chunk holds a contiguous run of points for one level, ordered point by
+        point, so a worker can start every calculation from the previous point's
+        density in the same role. In rigid scans the two own-basis monomers (one
+        calculation each per level) open the first and the last chunk of their level.
+        """
+        own_per_point = not self.spec.is_rigid
+        roles = self.roles_per_point + (("a_own_basis", "b_own_basis") if own_per_point else ())
+        n_levels, n_points = len(self.spec.levels), self.n_points
+        per_level = min(n_points, max(1, -(-int(n_chunks) // n_levels)))
+        chunks: list[list[tuple[str, str]]] = []
+        for li in range(n_levels):
+            bounds = np.linspace(0, n_points, per_level + 1).round().astype(int)
+            level_chunks = [
+                [(role, self.table[(li, pi)][role]) for pi in range(lo, hi) for role in roles]
+                for lo, hi in zip(bounds[:-1], bounds[1:])
+            ]
+            if not own_per_point:
+                level_chunks[0].insert(0, ("a_own_basis", self.table[(li, 0)]["a_own_basis"]))
+                level_chunks[-1].insert(0, ("b_own_basis", self.table[(li, 0)]["b_own_basis"]))
+            chunks.extend(level_chunks)
+        seen: set[str] = set()
+        out = []
+        for tasks in chunks:
+            kept = []
+            for role, key in tasks:
+                if key not in seen:
+                    seen.add(key)
+                    kept.append((role, key))
+            if kept:
+                out.append(kept)
+        return out
+
+
+def _job_for(dimer, atoms, ghost_atoms, charge, spin, level, conv_tol, centre=False) -> Job:
+    idx = list(atoms) + list(ghost_atoms)
+    idx.sort()
+    coords = np.asarray(dimer.coordinates)[idx]
+    if centre:
+        coords = coords - coords.mean(axis=0)
+    ghosts = set(ghost_atoms)
+    return Job(
+        symbols=tuple(dimer.symbols[i] for i in idx),
+        coordinates=_rounded(coords),
+        ghost=tuple(i in ghosts for i in idx),
+        charge=int(charge),
+        spin=int(spin),
+        level=level,
+        conv_tol=conv_tol,
+    )
+
+
+def plan_scan(spec: ScanSpec) -> ScanPlan:
+    """Build the job list of ``spec``.
+
+    Every point gets the dimer and, with counterpoise, both ghosted monomers; both
+    monomers in their own basis are added (once per distinct monomer geometry).
+    Atom order is kept in ghosted jobs so per-atom results map one to one.
+    """
+    jobs: dict[str, Job] = {}
+    table: dict[tuple[int, int], dict[str, str]] = {}
+    roles = ("dimer", "a_dimer_basis", "b_dimer_basis") if spec.counterpoise else ("dimer",)
+    d0 = spec.dimer
+    a, b = d0.fragment_a, d0.fragment_b
+    qa, qb = d0.charges
+    sa, sb = d0.spins
+    for li, level in enumerate(spec.levels):
+        for point in spec.points:
+            dim = point.dimer
+            entry = {}
+            candidates = {
+                "dimer": _job_for(dim, a + b, (), qa + qb, sa + sb, level, spec.conv_tol),
+                "a_dimer_basis": _job_for(dim, a, b, qa, sa, level, spec.conv_tol),
+                "b_dimer_basis": _job_for(dim, b, a, qb, sb, level, spec.conv_tol),
+            }
+            own_geometry = d0 if spec.is_rigid else dim
+            candidates["a_own_basis"] = _job_for(own_geometry, a, (), qa, sa, level, spec.conv_tol, centre=True)
+            candidates["b_own_basis"] = _job_for(own_geometry, b, (), qb, sb, level, spec.conv_tol, centre=True)
+            for role in roles + ("a_own_basis", "b_own_basis"):
+                job = candidates[role]
+                jobs.setdefault(job.key, job)
+                entry[role] = job.key
+            table[(li, point.index)] = entry
+    return ScanPlan(spec, jobs, table, roles)

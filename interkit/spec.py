@@ -1,0 +1,364 @@
+"""ScanSpec: a frozen, validated description of one interaction-energy scan.
+
+A spec fully determines the numbers a scan produces; it is stored as JSON in every
+Dataset and can be read from a TOML file (see :func:`load_spec_toml`).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import tomllib
+from dataclasses import dataclass, field
+from typing import Sequence
+
+import numpy as np
+
+from .coordinates import AtomPair, CentreOfMass, Frames, ScanCoordinate, Vector, coordinate_from_dict
+from .errors import InputError, NotAvailableError
+from .geometry import Dimer, covalent_radius_angstrom
+from .levels import LevelOfTheory, check_basis, parse_level
+
+#: inter-fragment atoms may not come closer than this fraction of the sum of their
+#: covalent radii (and never closer than 0.5 Å)
+SAFE_CONTACT_FRACTION = 0.75
+SAFE_CONTACT_FLOOR_ANGSTROM = 0.5
+#: SCF energy convergence threshold in hartree
+DEFAULT_CONV_TOL_HARTREE = 1e-10
+
+
+@dataclass(frozen=True)
+class ScanPoint:
+    """One point of a scan: its coordinate value (angstrom), grid factor and geometry."""
+
+    index: int
+    distance: float
+    factor: float
+    dimer: Dimer
+
+
+def _positive_grid(values, name: str) -> tuple[float, ...]:
+    if isinstance(values, (str, bytes)) or not hasattr(values, "__iter__"):
+        raise InputError(f"{name}: expected a list of numbers, got {values!r}")
+    out = []
+    for k, v in enumerate(values):
+        if isinstance(v, bool):
+            raise InputError(f"{name}[{k}]: {v!r} is not a number")
+        try:
+            x = float(v)
+        except (TypeError, ValueError):
+            raise InputError(f"{name}[{k}]: {v!r} is not a number") from None
+        if not math.isfinite(x) or x <= 0:
+            raise InputError(f"{name}[{k}]: {v!r} is not a positive finite number")
+        out.append(x)
+    if not out:
+        raise InputError(f"{name}: the grid is empty")
+    if len(set(out)) != len(out):
+        dup = next(x for x in out if out.count(x) > 1)
+        raise InputError(f"{name}: value {dup!r} appears twice")
+    return tuple(out)
+
+
+def _safe_minimum(sym_a: str, sym_b: str) -> float:
+    return max(SAFE_CONTACT_FLOOR_ANGSTROM,
+               SAFE_CONTACT_FRACTION * (covalent_radius_angstrom(sym_a) + covalent_radius_angstrom(sym_b)))
+
+
+def check_contacts(dimer: Dimer, where: str) -> None:
+    """Raise InputError if atoms of A and B are closer than the safe minimum."""
+    dist = dimer.intermolecular_distances()
+    for ia, i in enumerate(dimer.fragment_a):
+        for jb, j in enumerate(dimer.fragment_b):
+            limit = _safe_minimum(dimer.symbols[i], dimer.symbols[j])
+            if dist[ia, jb] < limit:
+                raise InputError(
+                    f"{where}: atoms {i} ({dimer.symbols[i]}, A) and {j} ({dimer.symbols[j]}, B) "
+                    f"come to {dist[ia, jb]:.3f} Å, below the safe minimum {limit:.2f} Å"
+                )
+
+
+@dataclass(frozen=True, eq=False)
+class ScanSpec:
+    """What to compute along a dimer separation scan.
+
+    Parameters
+    ----------
+    dimer : Dimer
+        The starting geometry; fragment A stays fixed.
+    coordinate : ScanCoordinate
+        :class:`CentreOfMass`, :class:`AtomPair`, :class:`Vector` or :class:`Frames`.
+    distances : sequence of float, optional
+        Absolute coordinate values in angstrom.
+    factors : sequence of float, optional
+        Multiples of the starting value (exactly one of ``distances``/``factors``
+        unless the coordinate is :class:`Frames`).
+    levels : sequence of str or LevelOfTheory
+        Levels of theory, e.g. ``["hf/def2-svp", "b3lyp-d3bj/def2-svp"]``.
+    counterpoise : bool
+        Boys–Bernardi counterpoise correction (dimer-basis monomers at every point).
+    forces, decomposition, dispersion :
+        Reserved for later releases; anything but the default raises NotAvailableError.
+    conv_tol : float
+        SCF energy convergence threshold in hartree.
+    name : str
+        Label of the scan.
+    """
+
+    dimer: Dimer
+    coordinate: ScanCoordinate = field(default_factory=CentreOfMass)
+    distances: Sequence[float] | None = None
+    factors: Sequence[float] | None = None
+    levels: Sequence[str | LevelOfTheory] = ("hf/def2-svp",)
+    counterpoise: bool = True
+    forces: bool = False
+    decomposition: str | None = None
+    dispersion: Sequence[str] | None = None
+    conv_tol: float = DEFAULT_CONV_TOL_HARTREE
+    name: str = ""
+
+    def __post_init__(self):
+        if not isinstance(self.dimer, Dimer):
+            raise InputError(f"dimer: expected an interkit.Dimer, got {type(self.dimer).__name__}")
+        if not isinstance(self.coordinate, ScanCoordinate):
+            raise InputError(f"coordinate: {self.coordinate!r} is not a scan coordinate")
+        self.coordinate.check(self.dimer)
+        is_frames = isinstance(self.coordinate, Frames)
+        if is_frames:
+            if self.distances is not None or self.factors is not None:
+                raise InputError("distances/factors: a Frames coordinate gives its own geometries; omit the grid")
+        else:
+            if (self.distances is None) == (self.factors is None):
+                raise InputError("distances/factors: give exactly one of distances (Å) or factors")
+        distances = _positive_grid(self.distances, "distances") if self.distances is not None else None
+        factors = _positive_grid(self.factors, "factors") if self.factors is not None else None
+        object.__setattr__(self, "distances", distances)
+        object.__setattr__(self, "factors", factors)
+        if isinstance(self.levels, (str, LevelOfTheory)):
+            levels_in = [self.levels]
+        else:
+            levels_in = list(self.levels)
+        if not levels_in:
+            raise InputError("levels: no level of theory given")
+        levels = tuple(parse_level(x) for x in levels_in)
+        labels = [lv.label for lv in levels]
+        for lab in labels:
+            if labels.count(lab) > 1:
+                raise InputError(f"levels: {lab!r} appears twice")
+        for lv in levels:
+            check_basis(lv, self.dimer.symbols)
+        object.__setattr__(self, "levels", levels)
+        for key in ("counterpoise", "forces"):
+            if not isinstance(getattr(self, key), (bool, np.bool_)):
+                raise InputError(f"{key}: {getattr(self, key)!r} is not true or false")
+        if self.forces:
+            raise NotAvailableError("forces: analytic forces along the scan are not available yet")
+        if self.decomposition not in (None, "none"):
+            raise NotAvailableError(f"decomposition: {self.decomposition!r} is not available yet")
+        object.__setattr__(self, "decomposition", None)
+        if self.dispersion not in (None, "none") and list(self.dispersion) not in ([], ["none"]):
+            raise NotAvailableError(
+                "dispersion: a dimension of post-hoc dispersion schemes is not available yet; "
+                "use a level suffix such as 'b3lyp-d3bj/def2-svp'"
+            )
+        object.__setattr__(self, "dispersion", None)
+        try:
+            tol = float(self.conv_tol)
+        except (TypeError, ValueError):
+            raise InputError(f"conv_tol: {self.conv_tol!r} is not a number") from None
+        if not (0 < tol <= 1e-6):
+            raise InputError(f"conv_tol: {self.conv_tol!r} must lie in (0, 1e-6] hartree")
+        object.__setattr__(self, "conv_tol", tol)
+        object.__setattr__(self, "name", str(self.name or self.dimer.name))
+        object.__setattr__(self, "_points", self._build_points())
+
+    # ------------------------------------------------------------------ points
+    def _build_points(self) -> tuple[ScanPoint, ...]:
+        coord = self.coordinate
+        if isinstance(coord, Frames):
+            dimers = coord.dimers(self.dimer)
+            values = coord.frame_values(self.dimer)
+            ref = coord.measure.value(self.dimer)
+            raw = [(v, v / ref if ref else float("nan"), d, f"frames[{k}]")
+                   for k, (v, d) in enumerate(zip(values, dimers))]
+        else:
+            ref = coord.value(self.dimer)
+            if self.factors is not None and ref <= 0:
+                raise InputError(
+                    f"factors: the starting value of the {coord.describe()} is {ref:.4f} Å; "
+                    "factors need a positive starting value"
+                )
+            if self.distances is not None:
+                grid = [(d, d / ref if ref > 0 else float("nan"), f"distances[{k}] = {d:g} Å")
+                        for k, d in enumerate(self.distances)]
+            else:
+                grid = [(f * ref, f, f"factors[{k}] = {f:g}") for k, f in enumerate(self.factors)]
+            raw = [(v, f, coord.displaced(self.dimer, v), where) for v, f, where in grid]
+        values = [r[0] for r in raw]
+        for k, v in enumerate(values):
+            if any(abs(v - w) < 1e-9 for w in values[:k]):
+                raise InputError(f"{raw[k][3]}: two scan points share the value {v:.6f} Å")
+        for v, f, d, where in raw:
+            check_contacts(d, where)
+        raw.sort(key=lambda r: r[0])
+        return tuple(ScanPoint(k, float(v), float(f), d) for k, (v, f, d, _) in enumerate(raw))
+
+    @property
+    def points(self) -> tuple[ScanPoint, ...]:
+        """The scan points sorted by increasing coordinate value."""
+        return self._points  # type: ignore[attr-defined]
+
+    @property
+    def is_rigid(self) -> bool:
+        """True when every point is A fixed and B translated (not Frames)."""
+        return not isinstance(self.coordinate, Frames)
+
+    # ------------------------------------------------------------------ (de)serialisation
+    def to_dict(self) -> dict:
+        """Plain-data description (JSON-safe); :meth:`from_dict` inverts it."""
+        return {
+            "format": "interkit-scan-spec",
+            "version": 1,
+            "name": self.name,
+            "dimer": self.dimer.to_dict(),
+            "coordinate": self.coordinate.to_dict(),
+            "distances": list(self.distances) if self.distances is not None else None,
+            "factors": list(self.factors) if self.factors is not None else None,
+            "levels": [lv.to_dict() for lv in self.levels],
+            "counterpoise": bool(self.counterpoise),
+            "forces": bool(self.forces),
+            "decomposition": self.decomposition,
+            "dispersion": self.dispersion,
+            "conv_tol": self.conv_tol,
+        }
+
+    def to_json(self) -> str:
+        """JSON text of :meth:`to_dict`."""
+        return json.dumps(self.to_dict(), sort_keys=True)
+
+    @classmethod
+    def from_dict(cls, data: dict) -> "ScanSpec":
+        """Rebuild a spec from :meth:`to_dict` output."""
+        return cls(
+            dimer=Dimer.from_dict(data["dimer"]),
+            coordinate=coordinate_from_dict(data["coordinate"]),
+            distances=data.get("distances"),
+            factors=data.get("factors"),
+            levels=[LevelOfTheory.from_dict(x) for x in data["levels"]],
+            counterpoise=data.get("counterpoise", True),
+            forces=data.get("forces", False),
+            decomposition=data.get("decomposition"),
+            dispersion=data.get("dispersion"),
+            conv_tol=data.get("conv_tol", DEFAULT_CONV_TOL_HARTREE),
+            name=data.get("name", ""),
+        )
+
+    @classmethod
+    def from_json(cls, text: str) -> "ScanSpec":
+        """Inverse of :meth:`to_json`."""
+        return cls.from_dict(json.loads(text))
+
+
+# ---------------------------------------------------------------------- TOML files
+_TOML_KEYS = {
+    "": {"name", "system", "scan", "calculation"},
+    "system": {"geometry", "demo", "fragment_a", "charges", "multiplicities"},
+    "scan": {"coordinate", "atoms", "vector", "distances", "factors", "frames", "values"},
+    "calculation": {"levels", "counterpoise", "forces", "decomposition", "dispersion", "conv_tol"},
+}
+
+
+def _check_keys(table: dict, section: str) -> None:
+    allowed = _TOML_KEYS[section]
+    for key in table:
+        if key not in allowed:
+            where = f"{section}.{key}" if section else key
+            raise InputError(f"spec key {where!r} is not recognised (allowed: {', '.join(sorted(allowed))})")
+
+
+def spec_from_mapping(data: dict, base_dir: str | os.PathLike = ".") -> ScanSpec:
+    """Build a spec from the TOML layout (see :func:`load_spec_toml`)."""
+    _check_keys(data, "")
+    for section in ("system", "scan", "calculation"):
+        if section not in data:
+            raise InputError(f"spec: table [{section}] is missing")
+        if not isinstance(data[section], dict):
+            raise InputError(f"spec: {section!r} must be a table")
+        _check_keys(data[section], section)
+    system, scan, calc = data["system"], data["scan"], data["calculation"]
+    kwargs = {k: system[k] for k in ("fragment_a", "charges", "multiplicities") if k in system}
+    if ("geometry" in system) == ("demo" in system):
+        raise InputError("system: give exactly one of system.geometry (an XYZ file) or system.demo")
+    if "geometry" in system:
+        path = os.path.join(os.fspath(base_dir), str(system["geometry"]))
+        dimer = Dimer.from_xyz(path, **kwargs)
+    else:
+        from .demo import load_demo
+
+        dimer = load_demo(str(system["demo"]), **kwargs)
+    kind = scan.get("coordinate", "centre-of-mass")
+    if kind == "centre-of-mass":
+        coordinate: ScanCoordinate = CentreOfMass()
+    elif kind == "atom-pair":
+        atoms = scan.get("atoms")
+        if not isinstance(atoms, list) or len(atoms) != 2:
+            raise InputError(f"scan.atoms: {atoms!r} is not a pair of atom indices")
+        coordinate = AtomPair(*atoms)
+    elif kind == "vector":
+        coordinate = Vector(tuple(scan.get("vector", ())))
+    elif kind == "frames":
+        if "frames" not in scan:
+            raise InputError("scan.frames: a frames scan needs a multi-frame XYZ file")
+        measure = AtomPair(*scan["atoms"]) if "atoms" in scan else CentreOfMass()
+        coordinate = Frames(os.path.join(os.fspath(base_dir), str(scan["frames"])), measure,
+                            scan.get("values"))
+    else:
+        raise InputError(
+            f"scan.coordinate: {kind!r} is not one of centre-of-mass, atom-pair, vector, frames"
+        )
+    levels = calc.get("levels")
+    if levels is None:
+        raise InputError("calculation.levels: missing; give e.g. [\"hf/def2-svp\"]")
+    if not isinstance(levels, list):
+        raise InputError(f"calculation.levels: {levels!r} is not a list of 'method/basis' strings")
+    return ScanSpec(
+        dimer=dimer,
+        coordinate=coordinate,
+        distances=scan.get("distances"),
+        factors=scan.get("factors"),
+        levels=levels,
+        counterpoise=calc.get("counterpoise", True),
+        forces=calc.get("forces", False),
+        decomposition=calc.get("decomposition"),
+        dispersion=calc.get("dispersion"),
+        conv_tol=calc.get("conv_tol", DEFAULT_CONV_TOL_HARTREE),
+        name=str(data.get("name", "")),
+    )
+
+
+def load_spec_toml(path: str | os.PathLike) -> ScanSpec:
+    """Read a scan spec from a TOML file.
+
+    Layout (paths are relative to the spec file)::
+
+        name = "water-methanol"
+        [system]
+        geometry = "water_methanol.xyz"     # or: demo = "water_methanol"
+        charges = [0, 0]
+        [scan]
+        coordinate = "atom-pair"            # centre-of-mass | atom-pair | vector | frames
+        atoms = [1, 5]
+        factors = [0.9, 1.0, 1.2, 1.5, 2.0] # or distances = [...] in angstrom
+        [calculation]
+        levels = ["hf/def2-svp"]
+        counterpoise = true
+    """
+    path = os.fspath(path)
+    if not os.path.isfile(path):
+        raise InputError(f"spec file: {path!r} does not exist")
+    try:
+        with open(path, "rb") as fh:
+            data = tomllib.load(fh)
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(f"spec file {path!r}: not valid TOML ({exc})") from None
+    return spec_from_mapping(data, os.path.dirname(os.path.abspath(path)))
