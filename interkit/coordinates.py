@@ -8,8 +8,8 @@ rigidly along a fixed unit vector. Fragment A never moves.
 from __future__ import annotations
 
 import os
+from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Sequence
 
 import numpy as np
 

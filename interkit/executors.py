@@ -11,9 +11,9 @@ import multiprocessing
 import os
 import queue as queue_module
 import threading
+from collections.abc import Callable
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from contextlib import contextmanager
-from typing import Callable
 
 from .plan import Job
 

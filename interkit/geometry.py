@@ -7,8 +7,8 @@ from __future__ import annotations
 
 import math
 import os
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
-from typing import Iterable, Sequence
 
 import numpy as np
 from pyscf.data import elements as _elements
@@ -296,7 +296,7 @@ class Dimer:
         charges: Sequence[int] = (0, 0),
         multiplicities: Sequence[int] = (1, 1),
         name: str = "dimer",
-    ) -> "Dimer":
+    ) -> Dimer:
         """Build a dimer, splitting it by covalent connectivity if ``fragment_a`` is None."""
         symbols = tuple(normalise_symbol(s, f"symbols[{i}]") for i, s in enumerate(symbols))
         if fragment_a is None:
@@ -319,7 +319,7 @@ class Dimer:
         multiplicities: Sequence[int] = (1, 1),
         frame: int = 0,
         name: str | None = None,
-    ) -> "Dimer":
+    ) -> Dimer:
         """Read a dimer from an XYZ file (angstrom).
 
         Parameters
@@ -345,14 +345,14 @@ class Dimer:
 
     @classmethod
     def from_xyz_string(cls, text: str, fragment_a=None, charges=(0, 0), multiplicities=(1, 1),
-                        name: str = "dimer") -> "Dimer":
+                        name: str = "dimer") -> Dimer:
         """Read a dimer from XYZ text (first frame)."""
         f = parse_xyz(text)[0]
         return cls.from_atoms(f.symbols, f.coordinates, fragment_a, charges, multiplicities, name)
 
     @classmethod
     def frames_from_xyz(cls, path: str | os.PathLike, fragment_a=None, charges=(0, 0),
-                        multiplicities=(1, 1)) -> list["Dimer"]:
+                        multiplicities=(1, 1)) -> list[Dimer]:
         """Read every frame of a multi-frame XYZ file as dimers with the same split."""
         frames = read_xyz(path)
         first = cls.from_atoms(frames[0].symbols, frames[0].coordinates, fragment_a, charges,
@@ -366,7 +366,7 @@ class Dimer:
 
     @classmethod
     def from_ase(cls, atoms, fragment_a=None, charges=(0, 0), multiplicities=(1, 1),
-                 name: str | None = None) -> "Dimer":
+                 name: str | None = None) -> Dimer:
         """Build a dimer from an :class:`ase.Atoms` object."""
         return cls.from_atoms(atoms.get_chemical_symbols(), atoms.get_positions(), fragment_a,
                               charges, multiplicities, name or atoms.get_chemical_formula())
@@ -417,12 +417,12 @@ class Dimer:
         c = self.coordinates
         return pair_distances(c[list(self.fragment_a)], c[list(self.fragment_b)])
 
-    def with_coordinates(self, coordinates) -> "Dimer":
+    def with_coordinates(self, coordinates) -> Dimer:
         """Same atoms, fragments and charges with new coordinates (validated)."""
         return Dimer(self.symbols, coordinates, self.fragment_a, self.charges,
                      self.multiplicities, self.name)
 
-    def translated_b(self, shift) -> "Dimer":
+    def translated_b(self, shift) -> Dimer:
         """Copy with fragment B translated rigidly by ``shift`` (angstrom)."""
         coords = np.array(self.coordinates)
         coords[list(self.fragment_b)] += np.asarray(shift, dtype=float)
@@ -448,7 +448,7 @@ class Dimer:
         }
 
     @classmethod
-    def from_dict(cls, data: dict) -> "Dimer":
+    def from_dict(cls, data: dict) -> Dimer:
         """Inverse of :meth:`to_dict`."""
         return cls(tuple(data["symbols"]), data["coordinates_angstrom"], tuple(data["fragment_a"]),
                    tuple(data["charges"]), tuple(data["multiplicities"]), data.get("name", "dimer"))

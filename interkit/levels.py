@@ -6,9 +6,9 @@ correction, DF-MP2, SCS-MP2 or CCSD(T)) and an orbital basis set.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import asdict, dataclass
 from functools import lru_cache
-from typing import Sequence
 
 from .errors import InputError
 
@@ -95,7 +95,7 @@ class LevelOfTheory:
         return asdict(self)
 
     @classmethod
-    def from_dict(cls, data: dict) -> "LevelOfTheory":
+    def from_dict(cls, data: dict) -> LevelOfTheory:
         """Inverse of :meth:`to_dict`."""
         return cls(**data)
 
@@ -161,10 +161,14 @@ def check_dispersion_parameters(functional: str, scheme: str) -> None:
 
 @lru_cache(maxsize=1024)
 def _basis_has_element(basis: str, symbol: str) -> bool:
+    import warnings
+
     from pyscf import gto
 
     try:
-        shells = gto.basis.load(basis, symbol)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            shells = gto.basis.load(basis, symbol)
     except Exception:
         return False
     return bool(shells)

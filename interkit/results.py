@@ -49,7 +49,7 @@ CAUTION = (
 ENERGY_VARIABLES = {
     "e_int": "interaction energy (counterpoise-corrected)",
     "e_int_nocp": "interaction energy (uncorrected)",
-    "bsse": "basis set superposition error (uncorrected minus corrected)",
+    "bsse": "basis set superposition error (corrected minus uncorrected; positive)",
 }
 
 REQUIRED_VARIABLES = ("e_int", "e_int_nocp", "bsse", "converged", "status", "coordinates",
@@ -123,7 +123,7 @@ def assemble(plan: ScanPlan, records: dict[str, dict], missing_reason: str = "no
     e_nocp = (e_dimer - total[..., ri["a_own_basis"]] - total[..., ri["b_own_basis"]]) * HARTREE_TO_KCAL_PER_MOL
     if spec.counterpoise:
         e_cp = (e_dimer - total[..., ri["a_dimer_basis"]] - total[..., ri["b_dimer_basis"]]) * HARTREE_TO_KCAL_PER_MOL
-        bsse = e_nocp - e_cp
+        bsse = e_cp - e_nocp
     else:
         e_cp = np.full_like(e_nocp, np.nan)
         bsse = np.full_like(e_nocp, np.nan)

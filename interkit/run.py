@@ -6,7 +6,7 @@ import os
 import sys
 import threading
 import time
-from typing import Callable
+from collections.abc import Callable
 
 import xarray as xr
 

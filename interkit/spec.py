@@ -10,8 +10,8 @@ import json
 import math
 import os
 import tomllib
+from collections.abc import Sequence
 from dataclasses import dataclass, field
-from typing import Sequence
 
 import numpy as np
 
@@ -198,7 +198,7 @@ class ScanSpec:
         for k, v in enumerate(values):
             if any(abs(v - w) < 1e-9 for w in values[:k]):
                 raise InputError(f"{raw[k][3]}: two scan points share the value {v:.6f} Å")
-        for v, f, d, where in raw:
+        for _v, _f, d, where in raw:
             check_contacts(d, where)
         raw.sort(key=lambda r: r[0])
         return tuple(ScanPoint(k, float(v), float(f), d) for k, (v, f, d, _) in enumerate(raw))
@@ -237,7 +237,7 @@ class ScanSpec:
         return json.dumps(self.to_dict(), sort_keys=True)
 
     @classmethod
-    def from_dict(cls, data: dict) -> "ScanSpec":
+    def from_dict(cls, data: dict) -> ScanSpec:
         """Rebuild a spec from :meth:`to_dict` output."""
         return cls(
             dimer=Dimer.from_dict(data["dimer"]),
@@ -254,7 +254,7 @@ class ScanSpec:
         )
 
     @classmethod
-    def from_json(cls, text: str) -> "ScanSpec":
+    def from_json(cls, text: str) -> ScanSpec:
         """Inverse of :meth:`to_json`."""
         return cls.from_dict(json.loads(text))
 

@@ -6,7 +6,7 @@ The corrections depend on the nuclear positions only, so they are evaluated on t
 
 from __future__ import annotations
 
-from typing import Sequence
+from collections.abc import Sequence
 
 import numpy as np
 

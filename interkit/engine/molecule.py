@@ -6,6 +6,7 @@ from pyscf import gto
 
 from ..geometry import atomic_number
 from ..plan import Job
+from ..units import ANGSTROM_TO_BOHR
 
 #: def2 basis sets use effective core potentials from rubidium (Z = 37) onwards
 DEF2_ECP_FIRST_Z = 37
@@ -19,16 +20,19 @@ def ecp_for(basis: str, symbols) -> dict[str, str]:
 
 
 def build_molecule(job: Job, max_memory_mb: int = 4000) -> gto.Mole:
-    """pyscf Mole of a job (angstrom input; ghosts keep basis, grid and fitting functions).
+    """pyscf Mole of a job (ghosts keep basis, grid and fitting functions).
 
-    Atom order is kept, ghosts included, so per-atom results map one to one.
+    Coordinates are handed over in bohr, converted with interkit's CODATA 2018 constant:
+    pyscf's own angstrom conversion uses an older edition. Atom order is kept, ghosts
+    included, so per-atom results map one to one.
     """
     atoms = []
     for sym, xyz, ghost in zip(job.symbols, job.coordinates, job.ghost):
-        atoms.append((("ghost-" + sym) if ghost else sym, tuple(xyz)))
+        bohr = tuple(float(x) * ANGSTROM_TO_BOHR for x in xyz)
+        atoms.append((("ghost-" + sym) if ghost else sym, bohr))
     mol = gto.Mole()
     mol.atom = atoms
-    mol.unit = "Angstrom"
+    mol.unit = "Bohr"
     mol.basis = job.level.basis
     real = [s for s, g in zip(job.symbols, job.ghost) if not g]
     ecp = ecp_for(job.level.basis, real)

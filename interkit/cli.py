@@ -1,0 +1,198 @@
+"""The ``interkit`` command line.
+
+    interkit scan SPEC.toml -o scan.nc [--workers N] [--cache DIR] [--serial] [--quiet]
+    interkit demo [-o DIR] [--workers N]
+    interkit show scan.nc
+    interkit systems
+
+Usage errors and bad input print one line and exit with status 2 (no traceback).
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+
+from .errors import InterkitError
+
+EXIT_USAGE = 2
+
+#: the demo scan: small enough for about a minute on 2 cores
+DEMO_LEVELS = ("hf/def2-svp", "b3lyp-d3bj/def2-svp")
+DEMO_FACTORS = (0.85, 0.9, 0.95, 1.0, 1.05, 1.1, 1.2, 1.35, 1.5, 1.75, 2.0)
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message):  # one line, exit 2
+        self.exit(EXIT_USAGE, f"interkit: error: {message}\n")
+
+
+def _build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(prog="interkit", description="Counterpoise-corrected interaction-energy scans of dimers.")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    sub.required = True
+
+    p = sub.add_parser("scan", help="run the scan described by a TOML spec file")
+    p.add_argument("spec", help="TOML spec file")
+    p.add_argument("-o", "--output", required=True, help="netCDF file to write")
+    _add_run_options(p)
+
+    p = sub.add_parser("demo", help="run the bundled demo scan (water-methanol hydrogen bond)")
+    p.add_argument("-o", "--output-dir", default="demo-output", help="folder for scan.nc and curve.png")
+    _add_run_options(p, default_cache=None)
+
+    p = sub.add_parser("show", help="print the minimum position and well depth of every level")
+    p.add_argument("scan", help="netCDF scan file")
+
+    sub.add_parser("systems", help="list the bundled demo dimers")
+    return parser
+
+
+def _add_run_options(p, default_cache: str | None = ".interkit-cache") -> None:
+    p.add_argument("--workers", type=int, default=None, help="worker processes (default: all cores)")
+    p.add_argument("--cache", default=default_cache,
+                   help="result store folder (default: %(default)s); finished calculations are reused")
+    p.add_argument("--serial", action="store_true", help="run in this process instead of worker processes")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+
+
+def _energy_table(ds) -> str:
+    levels = [str(x) for x in ds["level"].values]
+    width = max(14, *(len(lv) + 2 for lv in levels))
+    head = f"{'R / Å':>8s}  " + "".join(f"{lv:>{width}s}" for lv in levels)
+    lines = ["interaction energy, counterpoise-corrected (kcal/mol)", head]
+    for i, r in enumerate(ds["distance"].values):
+        cells = []
+        for lv in levels:
+            v = float(ds["e_int"].sel(level=lv).values[i])
+            st = str(ds["status"].sel(level=lv).values[i])
+            cells.append(f"{'failed':>{width}s}" if st == "failed" else f"{v:>{width}.3f}")
+        lines.append(f"{r:8.3f}  " + "".join(cells))
+    return "\n".join(lines)
+
+
+def _minimum_report(ds) -> str:
+    from .analysis import minimum_table
+
+    lines = [f"scan: {ds.attrs.get('title', '')}",
+             f"coordinate: {ds['distance'].attrs.get('long_name', '')}; counterpoise: {ds.attrs.get('counterpoise')}",
+             f"{'level':<28s} {'R_min / Å':>10s} {'well depth / kcal/mol':>22s}  note"]
+    for row in minimum_table(ds):
+        note = [] if row["interior"] else ["minimum at the edge of the grid"]
+        if row["failed_points"]:
+            note.append(f"{row['failed_points']} failed point(s)")
+        lines.append(f"{row['level']:<28s} {row['r_min_angstrom']:>10.3f} "
+                     f"{row['well_depth_kcal_per_mol']:>22.3f}  {'; '.join(note)}")
+    lines.append("Note: " + ds.attrs.get("caution", ""))
+    return "\n".join(lines)
+
+
+def _run(spec, args):
+    from .run import run_scan
+
+    return run_scan(spec, executor="serial" if args.serial else "processes", cache=args.cache,
+                    progress=not args.quiet, workers=args.workers)
+
+
+def _cmd_scan(args) -> int:
+    from .results import save_scan
+    from .spec import load_spec_toml
+
+    spec = load_spec_toml(args.spec)
+    _check_output(args.output)
+    ds = _run(spec, args)
+    save_scan(ds, args.output)
+    print(_energy_table(ds))
+    print(_minimum_report(ds))
+    print(f"wrote {args.output}")
+    return 0 if not (ds["status"] == "failed").any() else 1
+
+
+def demo_spec():
+    """The ScanSpec that ``interkit demo`` runs."""
+    from .coordinates import AtomPair
+    from .demo import DEFAULT_DEMO, demo_catalog, load_demo
+    from .spec import ScanSpec
+
+    dimer = load_demo(DEFAULT_DEMO)
+    i, j = demo_catalog()[DEFAULT_DEMO]["contact"]
+    return ScanSpec(dimer=dimer, coordinate=AtomPair(i, j), factors=DEMO_FACTORS, levels=DEMO_LEVELS,
+                    name="water-methanol demo")
+
+
+def _cmd_demo(args) -> int:
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from .plot import plot_curves
+    from .results import save_scan
+
+    out = args.output_dir
+    os.makedirs(out, exist_ok=True)
+    if args.cache is None:
+        args.cache = os.path.join(out, "cache")
+    spec = demo_spec()
+    ds = _run(spec, args)
+    nc, png = os.path.join(out, "scan.nc"), os.path.join(out, "curve.png")
+    save_scan(ds, nc)
+    ax = plot_curves(ds, show_uncorrected=True)
+    ax.set_title("water–methanol hydrogen bond (interkit demo)", fontsize=10)
+    ax.figure.tight_layout()
+    ax.figure.savefig(png, dpi=120)
+    plt.close(ax.figure)
+    print(_energy_table(ds))
+    print(_minimum_report(ds))
+    print(f"wrote {nc} and {png} ({ds.attrs['calculations_computed']} calculations computed, "
+          f"{ds.attrs['calculations_from_store']} from the store, {ds.attrs['run_wall_time_s']:.1f} s)")
+    return 0
+
+
+def _cmd_show(args) -> int:
+    from .results import open_scan
+
+    ds = open_scan(args.scan)
+    print(_minimum_report(ds))
+    return 0
+
+
+def _cmd_systems(args) -> int:
+    from .demo import demo_catalog
+
+    for name, entry in sorted(demo_catalog().items()):
+        print(f"{name:<20s} {entry.get('character', ''):<22s} {entry.get('title', '')}")
+    return 0
+
+
+def _check_output(path: str) -> None:
+    from .errors import InputError
+
+    folder = os.path.dirname(os.path.abspath(path))
+    if not os.path.isdir(folder):
+        raise InputError(f"--output: folder {folder!r} does not exist")
+    if not path.endswith(".nc"):
+        raise InputError(f"--output: {path!r} should end in .nc (netCDF)")
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Entry point of the ``interkit`` command; returns the exit status."""
+    parser = _build_parser()
+    args = parser.parse_args(argv)
+    if getattr(args, "workers", None) is not None and args.workers < 1:
+        print(f"interkit: error: --workers: {args.workers} is not a positive integer", file=sys.stderr)
+        return EXIT_USAGE
+    handlers = {"scan": _cmd_scan, "demo": _cmd_demo, "show": _cmd_show, "systems": _cmd_systems}
+    try:
+        return handlers[args.command](args)
+    except InterkitError as exc:
+        print(f"interkit: error: {exc}", file=sys.stderr)
+        return EXIT_USAGE
+    except KeyboardInterrupt:
+        print("interkit: interrupted; finished calculations are kept in the store", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

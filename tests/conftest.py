@@ -1,0 +1,41 @@
+"""Shared fixtures: S22 geometries from ASE, small dimers, temporary stores."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+import interkit as ik
+
+
+def s22_dimer(name: str) -> ik.Dimer:
+    """An S22 dimer from ase.data.s22 (Jurečka et al., PCCP 8, 1985 (2006)), split as ASE
+    splits it (first n_A atoms are fragment A)."""
+    from ase.data import s22
+
+    atoms = s22.create_s22_system(name)
+    n_a, _ = s22.get_number_of_dimer_atoms(name)
+    return ik.Dimer.from_ase(atoms, fragment_a=range(n_a), name=name)
+
+
+@pytest.fixture
+def water_dimer() -> ik.Dimer:
+    return s22_dimer("Water_dimer")
+
+
+@pytest.fixture
+def small_dimer() -> ik.Dimer:
+    """A hydrogen-fluoride dimer built here (not a reference geometry): cheap to compute."""
+    text = """4
+HF dimer, test geometry
+F   0.000000  0.000000  0.000000
+H   0.000000  0.000000  0.920000
+F   0.000000  0.000000  2.750000
+H   0.850000  0.000000  3.050000
+"""
+    return ik.Dimer.from_xyz_string(text, name="hf-dimer")
+
+
+@pytest.fixture
+def rng():
+    return np.random.default_rng(7)
