@@ -74,7 +74,7 @@ def converge_scf(mf, guess=None) -> tuple[str, str]:
     if mf.converged:
         return "retried", "level shift and damping"
     newton = mf.newton()
-    newton.max_cycle = MAX_SCF_CYCLES
+    newton.max_cycle = mf.max_cycle
     newton.kernel(mf.mo_coeff, mf.mo_occ)
     if newton.converged:
         for attr in ("e_tot", "mo_coeff", "mo_occ", "mo_energy", "converged"):
