@@ -25,7 +25,7 @@ from .levels import LevelOfTheory, check_basis, parse_level
 SAFE_CONTACT_FRACTION = 0.75
 SAFE_CONTACT_FLOOR_ANGSTROM = 0.5
 #: SCF energy convergence threshold in hartree
-DEFAULT_CONV_TOL_HARTREE = 1e-10
+DEFAULT_CONV_TOL_HARTREE = 1e-9
 
 
 @dataclass(frozen=True)

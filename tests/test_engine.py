@@ -97,3 +97,22 @@ def test_ccsdt_warns_above_measured_size():
     with pytest.warns(ik.InterkitWarning, match="basis functions"):
         ik.ScanSpec(dimer=s22_dimer("Benzene-water_complex"), coordinate=ik.CentreOfMass(), factors=[1.0],
                     levels=["ccsd(t)/aug-cc-pvdz"])
+
+
+@pytest.mark.parametrize("spin,functional", [(0, "b3lyp"), (0, "pbe"), (1, "b3lyp")])
+def test_cached_orbital_values_leave_dft_energies_unchanged(spin, functional):
+    from pyscf import gto
+    from pyscf.dft import numint
+
+    from interkit.engine.numint_cache import CachingNumInt
+
+    atoms = "O 0 0 0; H 0 0 0.97" if spin else "O 0 0 0; H 0 0 0.96; H 0.93 0 -0.24; ghost-O 0 0 2.9"
+    mol = gto.M(atom=atoms, basis="def2-svp", spin=spin, verbose=0)
+    energies = []
+    for ni in (numint.NumInt(), CachingNumInt()):
+        mf = (dft.UKS(mol) if spin else dft.RKS(mol)).density_fit()
+        mf.xc = functional
+        mf._numint = ni
+        mf.conv_tol = 1e-11
+        energies.append(mf.kernel())
+    assert energies[1] == pytest.approx(energies[0], abs=1e-10)

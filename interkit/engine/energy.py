@@ -18,6 +18,7 @@ from ..levels import SCS_OPPOSITE_SPIN, SCS_SAME_SPIN, LevelOfTheory
 from ..plan import Job
 from .dispersion import dispersion_energy_and_gradient
 from .molecule import build_molecule
+from .numint_cache import CachingNumInt
 
 #: SCF iterations per rung of the convergence ladder
 MAX_SCF_CYCLES = 100
@@ -28,6 +29,7 @@ def _make_scf(mol, level: LevelOfTheory, conv_tol: float):
     if level.method == "dft":
         mf = dft.UKS(mol) if unrestricted else dft.RKS(mol)
         mf.xc = level.functional
+        mf._numint = CachingNumInt()
     else:
         mf = scf.UHF(mol) if unrestricted else scf.RHF(mol)
     # CCSD(T) runs on a conventional reference so the correlation step is not fitted
