@@ -17,6 +17,7 @@ from __future__ import annotations
 
 __version__ = "0.1.0"
 
+from . import analysis
 from .coordinates import AtomPair, CentreOfMass, Frames, ScanCoordinate, Vector
 from .demo import list_demos, load_demo
 from .errors import (
@@ -36,7 +37,7 @@ from .spec import ScanSpec, load_spec_toml
 from .units import convert_energy
 
 __all__ = [
-    "AtomPair", "CentreOfMass", "ConvergenceError", "Dimer", "Frames", "InputError",
+    "AtomPair", "CentreOfMass", "analysis", "ConvergenceError", "Dimer", "Frames", "InputError",
     "InterkitError", "InterkitWarning", "LevelOfTheory", "NotAvailableError", "ResourceError",
     "ScanCoordinate", "ScanSpec", "StoreError", "Vector", "__version__", "convert_energy",
     "list_demos", "load_demo", "load_spec_toml", "open_scan", "parse_level", "run_scan",

@@ -41,15 +41,18 @@ def plot_curves(ds: xr.Dataset, ax=None, unit: str = "kcal/mol", show_uncorrecte
         _, ax = plt.subplots(figsize=(6.4, 4.2))
     r = ds["distance"].values
     chosen = list(levels) if levels is not None else [str(x) for x in ds["level"].values]
+    drawn = []
     for k, level in enumerate(chosen):
         colour = LEVEL_COLOURS[k % len(LEVEL_COLOURS)]
         e = convert_energy(ds["e_int"].sel(level=level).values, "kcal/mol", unit)
         if np.all(np.isnan(e)):
             e = convert_energy(ds["e_int_nocp"].sel(level=level).values, "kcal/mol", unit)
         ax.plot(r, e, "o-", color=colour, lw=1.8, ms=4, label=f"{level}")
+        drawn.append(e)
         if show_uncorrected:
             e2 = convert_energy(ds["e_int_nocp"].sel(level=level).values, "kcal/mol", unit)
             ax.plot(r, e2, "--", color=colour, lw=1.2, label=f"{level}, uncorrected")
+            drawn.append(e2)
         if show_bsse:
             b = convert_energy(ds["bsse"].sel(level=level).values, "kcal/mol", unit)
             ax.plot(r, b, ":", color=colour, lw=1.2, label=f"{level}, BSSE")
@@ -63,7 +66,7 @@ def plot_curves(ds: xr.Dataset, ax=None, unit: str = "kcal/mol", show_uncorrecte
     ax.set_xlabel(f"{ds['distance'].attrs.get('long_name', 'distance')} / Å")
     ax.set_ylabel(f"interaction energy / {unit}")
     ax.legend(frameon=False, fontsize=8)
-    finite = np.concatenate([convert_energy(ds["e_int"].sel(level=lv).values, "kcal/mol", unit) for lv in chosen])
+    finite = np.concatenate(drawn) if drawn else np.array([])
     finite = finite[np.isfinite(finite)]
     if finite.size:
         lo = float(finite.min())
