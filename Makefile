@@ -3,16 +3,21 @@ PYTHON ?= python3
 VENV   ?= .venv
 PY     := $(VENV)/bin/python
 STAMP  := $(VENV)/.installed
+JS3DMOL := interkit/widgets/static/3Dmol-min.js
 
 .PHONY: install demo test test-full lint bench lab clean
 
-install: $(STAMP)
+install: $(STAMP) $(JS3DMOL)
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
 	$(PY) -m pip install --quiet --upgrade pip
 	$(PY) -m pip install --quiet -e ".[test,dask]"
 	touch $(STAMP)
+
+## offline 3D views: 3Dmol.js from the npm registry (version py3Dmol expects); git-ignored
+$(JS3DMOL): $(STAMP)
+	$(PY) -m interkit.widgets.fetch_3dmol
 
 ## run the bundled demo scan (water-methanol, HF and B3LYP-D3(BJ)/def2-SVP); writes demo-output/
 demo: install

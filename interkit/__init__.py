@@ -43,3 +43,12 @@ __all__ = [
     "list_demos", "load_demo", "load_spec_toml", "open_scan", "parse_level", "run_scan",
     "save_scan", "validate",
 ]
+
+
+def __getattr__(name: str):
+    # the notebook layer pulls in ipywidgets; import it only when asked for
+    if name == "widgets":
+        import importlib
+
+        return importlib.import_module(".widgets", __name__)
+    raise AttributeError(f"module 'interkit' has no attribute {name!r}")

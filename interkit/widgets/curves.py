@@ -1,0 +1,142 @@
+"""The energy-curve panel: interkit.plot drawn off-screen, shown as an image widget.
+
+The curves are drawn with :func:`interkit.plot.plot_curves` whenever the unit, the
+levels or the toggles change; moving the selected point only moves the marker
+artists and re-encodes the image, which is about twice as fast as a full redraw.
+"""
+
+from __future__ import annotations
+
+import io
+
+import ipywidgets as widgets
+import numpy as np
+import xarray as xr
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from PIL import Image
+
+from ..plot import LEVEL_COLOURS, plot_curves
+from ..units import convert_energy
+
+MARKER_COLOUR = "#111111"
+
+
+def shown_energy(ds: xr.Dataset, level: str, unit: str) -> np.ndarray:
+    """The curve drawn for ``level``: corrected energies, or uncorrected if no
+    counterpoise was computed (as :func:`interkit.plot.plot_curves` does), in ``unit``."""
+    e = convert_energy(ds["e_int"].sel(level=level).values, "kcal/mol", unit)
+    if np.all(np.isnan(e)):
+        e = convert_energy(ds["e_int_nocp"].sel(level=level).values, "kcal/mol", unit)
+    return e
+
+
+class CurvePanel:
+    """Energy curves of a scan Dataset with a movable marker, as PNG bytes.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A scan Dataset.
+    width, height : float
+        Figure size in inches (at 90 dpi on screen).
+    """
+
+    def __init__(self, ds: xr.Dataset, width: float = 5.8, height: float = 3.9):
+        self.ds = ds
+        self.figure = Figure(figsize=(width, height), dpi=90, layout="constrained")
+        self.canvas = FigureCanvasAgg(self.figure)
+        self.ax = self.figure.add_subplot()
+        self._background = None
+        self.image = widgets.Image(format="png", layout=widgets.Layout(width=f"{int(width * 90)}px"))
+        self.image.add_class("interkit-curves")
+        self._markers = []
+        self._guide = None
+        self.levels: list[str] = []
+        self.unit = "kcal/mol"
+        self.marker_xy: dict[str, tuple[float, float]] = {}
+        self._curves: dict[str, np.ndarray] = {}
+
+    def redraw(self, levels, unit: str, show_uncorrected: bool, show_bsse: bool, index: int) -> None:
+        """Draw the curves from scratch, then place the marker at point ``index``."""
+        self.levels, self.unit = list(levels), unit
+        self.figure.set_layout_engine("constrained")
+        self.ax.clear()
+        plot_curves(self.ds, ax=self.ax, unit=unit, show_uncorrected=show_uncorrected,
+                    show_bsse=show_bsse, levels=self.levels)
+        self._guide = self.ax.axvline(np.nan, color=MARKER_COLOUR, lw=0.8, ls=(0, (2, 3)), zorder=1,
+                                      animated=True)
+        self._curves = {lv: shown_energy(self.ds, lv, unit) for lv in self.levels}
+        self._markers = []
+        for k, _level in enumerate(self.levels):
+            (m,) = self.ax.plot([], [], marker="o", ms=11, mfc="none", mec=MARKER_COLOUR, mew=2.2,
+                                ls="none", zorder=6, animated=True)
+            m.set_gid(f"interkit-marker-{k}")
+            self._markers.append(m)
+        # lay out and draw once without the marker; marker moves then only blit the
+        # marker artists onto a copy of that background (a few milliseconds)
+        self.canvas.draw()
+        self.figure.set_layout_engine("none")
+        self._background = self.canvas.copy_from_bbox(self.figure.bbox)
+        self.move_marker(index)
+
+    def move_marker(self, index: int) -> None:
+        """Move the selected-point marker to point ``index`` and refresh the image."""
+        r = self.ds["distance"].values
+        x = float(r[index])
+        self.marker_xy = {}
+        for level, marker in zip(self.levels, self._markers):
+            y = float(self._curves[level][index])
+            marker.set_data([x], [y])
+            self.marker_xy[level] = (x, y)
+        if self._guide is not None:
+            self._guide.set_xdata([x, x])
+        self.image.value = self.png()
+
+    def png(self) -> bytes:
+        """The current figure with its marker as PNG bytes (blitted, fast)."""
+        self.canvas.restore_region(self._background)
+        for artist in [self._guide, *self._markers]:
+            self.ax.draw_artist(artist)
+        rgba = np.asarray(self.canvas.buffer_rgba())
+        buf = io.BytesIO()
+        Image.fromarray(rgba[..., :3]).save(buf, format="png", compress_level=1)
+        return buf.getvalue()
+
+    def _set_animated(self, flag: bool) -> None:
+        for artist in [self._guide, *self._markers]:
+            if artist is not None:
+                artist.set_animated(flag)
+
+    def save(self, path: str, dpi: int = 150) -> None:
+        """Write the current figure with its marker (format from the extension: .png or .svg)."""
+        self._set_animated(False)
+        try:
+            self.figure.savefig(path, dpi=dpi)
+        finally:
+            self._set_animated(True)
+            # savefig at another dpi redraws the canvas: refresh the blit background
+            self._set_animated(True)
+            self.canvas.draw()
+            self._background = self.canvas.copy_from_bbox(self.figure.bbox)
+
+
+def level_colour(k: int) -> str:
+    """Colour of the k-th level (same palette as :mod:`interkit.plot`)."""
+    return LEVEL_COLOURS[k % len(LEVEL_COLOURS)]
+
+
+def component_figure(values: dict[str, float], unit: str, title: str) -> bytes:
+    """A small bar chart of energy components (PNG bytes)."""
+    fig = Figure(figsize=(3.6, 2.4), dpi=90, layout="constrained")
+    ax = fig.add_subplot()
+    names = list(values)
+    vals = [values[n] for n in names]
+    colours = ["#3d6fb6" if v < 0 else "#d08c1f" for v in vals]
+    ax.bar(names, vals, color=colours)
+    ax.axhline(0.0, color="#777777", lw=0.8)
+    ax.set_ylabel(f"energy / {unit}")
+    ax.set_title(title, fontsize=9)
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png")
+    return buf.getvalue()

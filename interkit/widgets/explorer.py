@@ -1,0 +1,315 @@
+"""ScanExplorer: a scan Dataset beside its 3D geometry, point by point.
+
+The explorer reads the Dataset only (a scan reopened from a ``.nc`` file is enough)
+and never computes anything.
+"""
+
+from __future__ import annotations
+
+import html
+import os
+
+import ipywidgets as widgets
+import numpy as np
+import traitlets
+import xarray as xr
+
+from ..errors import InterkitError
+from ..results import open_scan, validate
+from ..units import convert_energy
+from .curves import CurvePanel, component_figure, level_colour
+from .exports import write_csv, write_netcdf
+from .style import DISPLAY_UNITS, FRAGMENT_COLOURS, SCAN_LINE_COLOUR, error_html, note_html
+from .viewer3d import Molecule3D, scene_from_arrays
+
+ALL_LEVELS = "all levels"
+COMPONENTS = ("e_elst", "e_exch", "e_ind", "e_disp")
+COMPONENT_LABELS = {"e_elst": "elst", "e_exch": "exch", "e_ind": "ind", "e_disp": "disp"}
+#: force arrows: angstrom drawn per kcal/mol/angstrom
+ARROW_SCALE = 0.05
+
+
+def _fmt(value: float, unit: str) -> str:
+    if not np.isfinite(value):
+        return "—"
+    digits = 1 if unit == "cm-1" else (4 if unit == "eV" else 3)
+    return f"{value:.{digits}f} {unit}"
+
+
+class ScanExplorer(widgets.VBox):
+    """Explore a counterpoise-corrected interaction-energy scan.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset or path-like
+        A scan Dataset (see :mod:`interkit.results`) or the path of a ``.nc`` file
+        written by :func:`interkit.save_scan`.
+    unit : str
+        Initial display unit (kcal/mol, kJ/mol, eV or cm-1).
+    export_dir : path-like, optional
+        Folder the export buttons write to (default: the working directory).
+
+    Attributes
+    ----------
+    index : int
+        Selected scan point (0-based, increasing distance).
+    level : str
+        ``"all levels"`` or one level label.
+    unit : str
+        Display unit of every energy shown.
+    show_uncorrected, show_bsse : bool
+        Draw the uncorrected curve / the BSSE as well.
+    """
+
+    index = traitlets.Int(0)
+    level = traitlets.Unicode(ALL_LEVELS)
+    unit = traitlets.Unicode("kcal/mol")
+    show_uncorrected = traitlets.Bool(False)
+    show_bsse = traitlets.Bool(False)
+
+    def __init__(self, ds: xr.Dataset | str | os.PathLike, unit: str = "kcal/mol",
+                 export_dir: str | os.PathLike | None = None):
+        if isinstance(ds, (str, os.PathLike)):
+            ds = open_scan(ds)
+        validate(ds)
+        self.ds = ds
+        self.distances = ds["distance"].values
+        self.levels = [str(x) for x in ds["level"].values]
+        n = self.distances.size
+        # ---------------------------------------------------------------- controls
+        self.slider = widgets.IntSlider(value=0, min=0, max=max(n - 1, 0), step=1, description="point",
+                                        readout=False, continuous_update=True,
+                                        layout=widgets.Layout(width="340px"))
+        self.slider.add_class("interkit-point-slider")
+        self.point_label = widgets.HTML()
+        self.point_label.add_class("interkit-point-label")
+        self.level_select = widgets.Dropdown(options=[ALL_LEVELS] + self.levels, value=ALL_LEVELS,
+                                             description="level", layout=widgets.Layout(width="300px"))
+        self.unit_select = widgets.ToggleButtons(options=list(DISPLAY_UNITS), value="kcal/mol",
+                                                 description="unit",
+                                                 style={"button_width": "72px"})
+        self.uncorrected_box = widgets.Checkbox(value=False, description="uncorrected curve", indent=False)
+        self.bsse_box = widgets.Checkbox(value=False, description="BSSE", indent=False)
+        if ds.attrs.get("counterpoise") == "none":
+            self.bsse_box.disabled = True
+            self.bsse_box.tooltip = "no counterpoise calculations in this scan"
+        for name, control in (("index", self.slider), ("level", self.level_select),
+                              ("unit", self.unit_select), ("show_uncorrected", self.uncorrected_box),
+                              ("show_bsse", self.bsse_box)):
+            widgets.link((self, name), (control, "value"))
+        # ---------------------------------------------------------------- views
+        self.curves = CurvePanel(ds)
+        self.view3d = Molecule3D(self.scenes(), frame=0)
+        self.readout = widgets.HTML()
+        self.readout.add_class("interkit-readout")
+        self.components = widgets.VBox()   # slot: energy components (e_elst, e_exch, ...)
+        self.components.add_class("interkit-components")
+        self._component_image = widgets.Image(format="png")
+        self._component_note = widgets.HTML(note_html(
+            "Energy components (electrostatics, exchange, induction, dispersion): not part of this scan."))
+        # plain arrays for fast point updates (level, distance), kcal/mol
+        self._kcal = {name: np.asarray(ds[name].transpose("level", "distance").values, dtype=float)
+                      for name in ("e_int", "e_int_nocp", "bsse")}
+        self._status = np.asarray(ds["status"].transpose("level", "distance").values).astype(str)
+        self._detail = (np.asarray(ds["status_detail"].transpose("level", "distance").values).astype(str)
+                        if "status_detail" in ds.variables else np.full(self._status.shape, ""))
+        # ---------------------------------------------------------------- export
+        self.export_dir = widgets.Text(value=os.fspath(export_dir) if export_dir else os.getcwd(),
+                                       description="folder", layout=widgets.Layout(width="360px"))
+        self.export_stem = widgets.Text(value=self._default_stem(), description="name",
+                                        layout=widgets.Layout(width="240px"))
+        self.export_buttons = {}
+        for kind, tip in (("netCDF", "the whole Dataset (.nc), reopen with interkit.open_scan"),
+                          ("CSV", "energies in the selected unit (.csv)"),
+                          ("PNG", "the curve plot (.png)"), ("SVG", "the curve plot (.svg)")):
+            b = widgets.Button(description=f"save {kind}", tooltip=tip, layout=widgets.Layout(width="110px"))
+            b.on_click(lambda _b, kind=kind: self._export_clicked(kind))
+            self.export_buttons[kind] = b
+        self.export_status = widgets.HTML()
+        # ---------------------------------------------------------------- layout
+        legend = (f'<span style="color:{FRAGMENT_COLOURS["A"]}">■ fragment A</span> &nbsp; '
+                  f'<span style="color:{FRAGMENT_COLOURS["B"]}">■ fragment B</span> &nbsp; '
+                  f'<span style="color:{SCAN_LINE_COLOUR}">┄ {html.escape(self._coordinate_name())}</span>')
+        header = widgets.HTML(self._header_html())
+        left = widgets.VBox([self.view3d, widgets.HTML(f'<div style="font-size:90%">{legend}</div>')])
+        right = widgets.VBox([self.curves.image, self.components])
+        controls = widgets.VBox([
+            widgets.HBox([self.slider, self.point_label]),
+            widgets.HBox([self.level_select, self.uncorrected_box, self.bsse_box]),
+            self.unit_select,
+        ])
+        export_row = widgets.VBox([
+            widgets.HBox([self.export_dir, self.export_stem]),
+            widgets.HBox(list(self.export_buttons.values())),
+            self.export_status,
+        ])
+        caution = widgets.HTML(
+            '<div class="interkit-caution" style="font-size:88%;color:#5a4a00;background:#fffae6;'
+            'padding:5px 9px;border-radius:3px">Caution: '
+            f'{html.escape(ds.attrs.get("caution", ""))}</div>')
+        super().__init__(children=[header, widgets.HBox([left, right]), controls, self.readout,
+                                   export_row, caution])
+        self.add_class("interkit-explorer")
+        self._redraw_curves()
+        self._update_point()
+        self._update_components()
+
+    # ------------------------------------------------------------------ data views
+    def _coordinate_name(self) -> str:
+        return str(self.ds["distance"].attrs.get("long_name", "scan coordinate"))
+
+    def _default_stem(self) -> str:
+        title = str(self.ds.attrs.get("title", "scan")).split(":")[-1].strip() or "scan"
+        return "".join(c if c.isalnum() or c in "-_" else "-" for c in title)[:60] or "scan"
+
+    def _header_html(self) -> str:
+        ds = self.ds
+        r = self.distances
+        span = f"{r.min():.3f}–{r.max():.3f} Å" if r.size else "no points"
+        return (f'<div style="font-weight:600">{html.escape(str(ds.attrs.get("title", "scan")))}</div>'
+                f'<div style="font-size:90%;color:#444">{len(self.levels)} level(s) · {r.size} points, '
+                f'{html.escape(self._coordinate_name())} {span} · counterpoise: '
+                f'{html.escape(str(ds.attrs.get("counterpoise", "?")))}</div>')
+
+    @property
+    def shown_levels(self) -> list[str]:
+        """Levels drawn in the curve panel."""
+        return list(self.levels) if self.level == ALL_LEVELS else [self.level]
+
+    @property
+    def selected_distance(self) -> float:
+        """Scan coordinate value (angstrom) of the selected point."""
+        return float(self.distances[self.index])
+
+    @property
+    def marker_positions(self) -> dict[str, tuple[float, float]]:
+        """Level -> (distance in angstrom, energy in the display unit) of each marker."""
+        return dict(self.curves.marker_xy)
+
+    def energies(self, level: str, index: int | None = None) -> dict[str, float]:
+        """e_int, e_int_nocp and bsse of one level at a point, in the display unit."""
+        i = self.index if index is None else index
+        li = self.levels.index(level)
+        return {name: float(convert_energy(float(arr[li, i]), "kcal/mol", self.unit))
+                for name, arr in self._kcal.items()}
+
+    def _force_level(self) -> str:
+        return self.levels[0] if self.level == ALL_LEVELS else self.level
+
+    def scenes(self) -> list[dict]:
+        """One 3D scene per scan point (force arrows of the selected level, if any)."""
+        return [self.scene(i) for i in range(self.distances.size)]
+
+    def scene(self, index: int) -> dict:
+        """The 3D scene of point ``index`` (fragments, scan line, force arrows if any)."""
+        ds = self.ds
+        coords = ds["coordinates"].values[index]
+        anchors = ds["anchors"].values[index] if "anchors" in ds.variables else None
+        arrows = None
+        if "forces" in ds.variables and {"atom", "xyz"} <= set(ds["forces"].dims):
+            f = ds["forces"]
+            if "level" in f.dims:
+                f = f.sel(level=self._force_level())
+            if "distance" in f.dims:
+                f = f.isel(distance=index)
+            vec = np.asarray(f.transpose("atom", "xyz").values, dtype=float)
+            if np.all(np.isfinite(vec)):
+                arrows = [(coords[a], coords[a] + ARROW_SCALE * vec[a]) for a in range(len(coords))
+                          if np.linalg.norm(vec[a]) > 1e-3]
+        label = f"{self.distances[index]:.3f} Å"
+        return scene_from_arrays(ds["symbol"].values, ds["fragment"].values, coords, anchors, arrows, label)
+
+    # ------------------------------------------------------------------ observers
+    @traitlets.observe("index")
+    def _on_index(self, change) -> None:
+        if not hasattr(self, "curves"):
+            return
+        self.view3d.show_frame(self.index)      # first: the page draws while the kernel goes on
+        self._update_point()
+        self.curves.move_marker(self.index)
+        self._update_components()
+
+    @traitlets.observe("level", "unit", "show_uncorrected", "show_bsse")
+    def _on_view_change(self, change) -> None:
+        if not hasattr(self, "curves"):
+            return
+        if change["name"] == "unit" and change["new"] not in DISPLAY_UNITS:
+            raise traitlets.TraitError(f"unit: {change['new']!r} is not one of {', '.join(DISPLAY_UNITS)}")
+        self._redraw_curves()
+        self._update_point()
+        self._update_components()
+        if change["name"] == "level" and "forces" in self.ds.variables:
+            self.view3d.set_frames(self.scenes(), self.index)
+
+    def _redraw_curves(self) -> None:
+        self.curves.redraw(self.shown_levels, self.unit, self.show_uncorrected, self.show_bsse, self.index)
+
+    def _update_point(self) -> None:
+        i, ds = self.index, self.ds
+        factor = float(ds["factor"].values[i]) if "factor" in ds.coords else float("nan")
+        self.point_label.value = (f'<span data-index="{i}">{self.distances[i]:.3f} Å'
+                                  + (f" (× {factor:.3f} of the start)" if np.isfinite(factor) else "")
+                                  + f" · point {i + 1} of {self.distances.size}</span>")
+        has_force = "force_along" in ds.variables
+        head = ["level", "interaction energy", "uncorrected", "BSSE"] + (["force along"] if has_force else [])
+        head.append("status")
+        rows = []
+        for k, level in enumerate(self.levels):
+            if level not in self.shown_levels:
+                continue
+            e = self.energies(level)
+            status, detail = str(self._status[k, i]), str(self._detail[k, i])
+            cells = [f'<span style="color:{level_colour(k)};font-weight:600">{html.escape(level)}</span>',
+                     _fmt(e["e_int"], self.unit), _fmt(e["e_int_nocp"], self.unit), _fmt(e["bsse"], self.unit)]
+            if has_force:
+                fa = float(ds["force_along"].sel(level=level).values[i])
+                cells.append(_fmt(fa, ds["force_along"].attrs.get("units", "kcal/mol/angstrom")))
+            cells.append(html.escape(status + (f": {detail}" if detail and status != "ok" else "")))
+            rows.append("<tr>" + "".join(f'<td style="padding:1px 10px">{c}</td>' for c in cells) + "</tr>")
+        th = "".join(f'<th style="text-align:left;padding:1px 10px">{h}</th>' for h in head)
+        self.readout.value = (f'<table style="font-size:92%"><tr>{th}</tr>{"".join(rows)}</table>'
+                              f'<div style="font-size:85%;color:#555">at {self.distances[i]:.3f} Å; '
+                              "negative = bound</div>")
+
+    def _update_components(self) -> None:
+        """Slot for energy components: a bar chart when the Dataset has them."""
+        ds = self.ds
+        if not all(name in ds.variables for name in COMPONENTS):
+            if self.components.children != (self._component_note,):
+                self.components.children = [self._component_note]
+            return
+        level = self._force_level()
+        values = {COMPONENT_LABELS[n]: float(convert_energy(float(ds[n].sel(level=level).values[self.index]),
+                                                            "kcal/mol", self.unit)) for n in COMPONENTS}
+        self._component_image.value = component_figure(
+            values, self.unit, f"{level}, {self.distances[self.index]:.3f} Å")
+        self.components.children = [self._component_image]
+
+    # ------------------------------------------------------------------ exports
+    def export_netcdf(self, path: str | os.PathLike) -> str:
+        """Write the Dataset to ``path`` (netCDF); return the path."""
+        return write_netcdf(self.ds, path)
+
+    def export_csv(self, path: str | os.PathLike) -> str:
+        """Write the curves in the display unit to ``path`` (CSV); return the path."""
+        return write_csv(self.ds, path, unit=self.unit)
+
+    def export_figure(self, path: str | os.PathLike) -> str:
+        """Write the curve plot as shown (PNG or SVG by extension); return the path."""
+        path = os.fspath(path)
+        if os.path.splitext(path)[1].lower() not in (".png", ".svg"):
+            raise InterkitError(f"export: {path!r} must end in .png or .svg")
+        self.curves.save(path)
+        return path
+
+    def _export_clicked(self, kind: str) -> None:
+        ext = {"netCDF": ".nc", "CSV": ".csv", "PNG": ".png", "SVG": ".svg"}[kind]
+        path = os.path.join(self.export_dir.value.strip() or ".", (self.export_stem.value.strip() or "scan") + ext)
+        try:
+            writer = {"netCDF": self.export_netcdf, "CSV": self.export_csv}.get(kind, self.export_figure)
+            written = writer(path)
+        except (InterkitError, OSError) as exc:
+            self.export_status.value = error_html(f"{kind} not written: {exc}")
+            return
+        size = os.path.getsize(written)
+        self.export_status.value = note_html(f"wrote {os.path.abspath(written)} ({size / 1024:.1f} KiB)")

@@ -1,0 +1,58 @@
+"""Files the explorer writes: the Dataset as netCDF, the curves as CSV."""
+
+from __future__ import annotations
+
+import csv
+import os
+
+import numpy as np
+import xarray as xr
+
+from ..errors import InputError
+from ..results import save_scan
+from ..units import convert_energy
+
+CSV_ENERGIES = ("e_int", "e_int_nocp", "bsse")
+
+
+def write_netcdf(ds: xr.Dataset, path: str | os.PathLike) -> str:
+    """Save the scan with :func:`interkit.save_scan`; return the path written."""
+    save_scan(ds, path)
+    return os.fspath(path)
+
+
+def write_csv(ds: xr.Dataset, path: str | os.PathLike, unit: str = "kcal/mol") -> str:
+    """Write one row per (level, point): distance, factor, energies in ``unit``, status.
+
+    The header names the units, e.g. ``e_int [kJ/mol]``; missing values are empty.
+    """
+    path = os.fspath(path)
+    folder = os.path.dirname(os.path.abspath(path))
+    if not os.path.isdir(folder):
+        raise InputError(f"export: folder {folder!r} does not exist")
+    extra = [name for name in ("force_along", "e_elst", "e_exch", "e_ind", "e_disp")
+             if name in ds.variables and ds[name].dims == ("level", "distance")]
+    header = ["level", "distance [angstrom]", "factor [1]"]
+    header += [f"{name} [{unit}]" for name in CSV_ENERGIES]
+    for name in extra:
+        header.append(f"{name} [{ds[name].attrs.get('units', '')}]" if name == "force_along"
+                      else f"{name} [{unit}]")
+    header.append("status")
+    r = ds["distance"].values
+    factor = ds["factor"].values if "factor" in ds.coords else np.full_like(r, np.nan)
+    with open(path, "w", newline="", encoding="utf-8") as fh:
+        out = csv.writer(fh)
+        out.writerow(header)
+        for level in ds["level"].values:
+            sub = ds.sel(level=level)
+            cols = [convert_energy(sub[name].values, "kcal/mol", unit) for name in CSV_ENERGIES]
+            for name in extra:
+                vals = sub[name].values
+                cols.append(vals if name == "force_along" else convert_energy(vals, "kcal/mol", unit))
+            status = sub["status"].values
+            for i in range(r.size):
+                row = [str(level), f"{r[i]:.6f}", f"{factor[i]:.6f}"]
+                row += ["" if not np.isfinite(c[i]) else f"{c[i]:.8g}" for c in cols]
+                row.append(str(status[i]))
+                out.writerow(row)
+    return path

@@ -1,0 +1,479 @@
+"""ScanLauncher: set up a scan in a form, see its cost, run it in the background.
+
+The launcher builds an :class:`interkit.ScanSpec` from its controls and hands it to
+:func:`interkit.run_scan` in a background thread (see :mod:`.runner`), so the kernel
+stays responsive. Bad input shows the InterkitError message in the form.
+"""
+
+from __future__ import annotations
+
+import functools
+import html
+import os
+import re
+import time
+
+import ipywidgets as widgets
+import numpy as np
+
+from ..coordinates import AtomPair, CentreOfMass
+from ..demo import demo_catalog, list_demos, load_demo
+from ..errors import InputError, InterkitError
+from ..geometry import Dimer
+from ..spec import ScanSpec
+from .curves import CurvePanel
+from .explorer import ScanExplorer
+from .runner import BackgroundScan, count_calculations
+from .style import NOT_AVAILABLE, STATUS_STYLE, error_html, note_html
+from .viewer3d import Molecule3D, scene_from_arrays
+
+SOURCES = ("bundled dimer", "XYZ file", "pasted XYZ")
+COORDINATES = ("atom pair", "centre of mass")
+GRID_MODES = ("factors", "distances (Å)")
+DEFAULT_FACTORS = "0.9, 1.0, 1.1, 1.25, 1.5, 2.0"
+#: very rough seconds per calculation for a 9-atom dimer on one core, by basis family
+_BASE_SECONDS = {"sto-3g": 0.15, "svp": 0.6, "6-31g": 0.5, "tzvp": 4.0, "cc-pvdz": 1.0,
+                 "cc-pvtz": 8.0, "qzvp": 30.0}
+_METHOD_FACTOR = {"hf": 1.0, "mp2": 3.0, "ccsd(t)": 60.0}
+
+
+def rough_seconds_per_calculation(natoms: int, levels) -> float:
+    """A crude guess of the seconds one calculation takes (shown as 'rough')."""
+    worst = 0.0
+    for text in levels:
+        method, _, basis = str(text).lower().partition("/")
+        base = next((v for k, v in _BASE_SECONDS.items() if k in basis), 2.0)
+        factor = _METHOD_FACTOR.get(method.split("-")[0], 2.0)
+        if "aug-" in basis:
+            base *= 3.0
+        worst = max(worst, base * factor * (max(natoms, 2) / 9.0) ** 3)
+    return round(max(worst, 0.05), 2)
+
+
+def parse_grid(text: str, name: str = "grid") -> list[float]:
+    """Numbers separated by commas or spaces; raise InputError naming a bad entry."""
+    items = [t for t in re.split(r"[,\s;]+", str(text).strip()) if t]
+    if not items:
+        raise InputError(f"{name}: no values given")
+    out = []
+    for k, item in enumerate(items):
+        try:
+            out.append(float(item))
+        except ValueError:
+            raise InputError(f"{name}[{k}]: {item!r} is not a number") from None
+    return out
+
+
+def _formula(symbols) -> str:
+    """Hill-order formula, e.g. ['O', 'H', 'H'] -> 'H2O'."""
+    counts = {s: list(symbols).count(s) for s in set(symbols)}
+    order = (["C", "H"] if "C" in counts else []) + sorted(s for s in counts if s not in ("C", "H") or "C" not in counts)
+    return "".join(f"{s}{counts[s] if counts[s] > 1 else ''}" for s in order)
+
+
+def _duration(seconds: float) -> str:
+    if seconds < 90:
+        return f"{seconds:.0f} s"
+    if seconds < 5400:
+        return f"{seconds / 60:.0f} min"
+    return f"{seconds / 3600:.1f} h"
+
+
+def _shows_errors(method):
+    """Run a handler; an InterkitError becomes a message in the form, never a traceback."""
+    @functools.wraps(method)
+    def wrapper(self, *args, **kwargs):
+        try:
+            return method(self, *args, **kwargs)
+        except InterkitError as exc:
+            self.message.value = error_html(str(exc))
+            return None
+    return wrapper
+
+
+class ScanLauncher(widgets.VBox):
+    """A form to set up and run an interaction-energy scan from a notebook.
+
+    Parameters
+    ----------
+    demo : str
+        Bundled dimer selected at start.
+    executor : {'processes', 'serial'}
+        How :func:`interkit.run_scan` runs the calculations (one worker is always serial).
+    cache : path-like, optional
+        Result store folder (finished calculations are reused by later runs).
+
+    Attributes
+    ----------
+    dimer : Dimer or None
+        The dimer the form currently holds.
+    result : xarray.Dataset or None
+        The last finished (or cancelled) scan; it also opens in :attr:`explorer`.
+    """
+
+    def __init__(self, demo: str = "water_methanol", executor: str = "processes",
+                 cache: str | os.PathLike | None = None):
+        self.executor = executor
+        self.dimer: Dimer | None = None
+        self.result = None
+        self.explorer: ScanExplorer | None = None
+        self.scan: BackgroundScan | None = None
+        self._last_live = 0.0
+        lay = widgets.Layout
+        self.message = widgets.HTML()
+        self.message.add_class("interkit-message")
+        # ------------------------------------------------------------ dimer
+        self.source = widgets.ToggleButtons(options=list(SOURCES), value=SOURCES[0], description="dimer from",
+                                            style={"button_width": "120px"})
+        titles = [(f"{demo_catalog()[n].get('title', n)} ({n})", n) for n in list_demos()]
+        self.demo = widgets.Dropdown(options=titles, value=demo, description="bundled", layout=lay(width="440px"))
+        self.upload = widgets.FileUpload(accept=".xyz", multiple=False, description="XYZ file")
+        self.paste = widgets.Textarea(placeholder="number of atoms\ncomment\nO 0.0 0.0 0.0\n...",
+                                      layout=lay(width="440px", height="120px"))
+        self.paste_button = widgets.Button(description="read pasted XYZ", layout=lay(width="150px"))
+        self.fragment_a = widgets.Text(description="fragment A", placeholder="automatic (e.g. 0, 1, 2)",
+                                       continuous_update=False, layout=lay(width="300px"))
+        self.charges = [widgets.IntText(value=0, description=f"charge {f}", layout=lay(width="150px"))
+                        for f in "AB"]
+        self.mults = [widgets.IntText(value=1, description=f"2S+1 {f}", layout=lay(width="150px"))
+                      for f in "AB"]
+        self.dimer_info = widgets.HTML()
+        self.preview = Molecule3D([scene_from_arrays(["H", "H"], ["A", "B"], [[0, 0, 0], [0, 0, 0.74]])],
+                                  width=360, height=280)
+        # ------------------------------------------------------------ scan coordinate and grid
+        self.coordinate = widgets.RadioButtons(options=list(COORDINATES), value=COORDINATES[0],
+                                               description="coordinate")
+        self.atom_a = widgets.Dropdown(description="atom in A", layout=lay(width="260px"))
+        self.atom_b = widgets.Dropdown(description="atom in B", layout=lay(width="260px"))
+        self.grid_mode = widgets.ToggleButtons(options=list(GRID_MODES), value=GRID_MODES[0], description="grid",
+                                               style={"button_width": "110px"})
+        self.grid = widgets.Text(value=DEFAULT_FACTORS, description="values", layout=lay(width="440px"))
+        # ------------------------------------------------------------ calculation
+        self.levels = widgets.Text(value="hf/def2-svp", description="levels",
+                                   placeholder="comma-separated, e.g. hf/def2-svp, b3lyp-d3bj/def2-svp",
+                                   layout=lay(width="440px"))
+        self.counterpoise = widgets.Checkbox(value=True, description="counterpoise correction", indent=False)
+        ncpu = os.cpu_count() or 1
+        self.workers = widgets.IntSlider(value=ncpu, min=1, max=max(ncpu, 1), description="workers")
+        self.unavailable = [widgets.Checkbox(value=False, description=d, disabled=True, indent=False,
+                                             tooltip=NOT_AVAILABLE)
+                            for d in ("forces", "energy decomposition", "dispersion schemes")]
+        self.cache = widgets.Text(value=os.fspath(cache) if cache else "", description="store",
+                                  placeholder="optional folder that keeps finished calculations",
+                                  layout=lay(width="440px"))
+        self.seconds_per_calc = widgets.BoundedFloatText(value=1.0, min=0.01, max=1e6, step=0.1,
+                                                         description="s / calc.", layout=lay(width="180px"))
+        self.estimate = widgets.HTML()
+        self.estimate.add_class("interkit-estimate")
+        for w, cls in ((self.grid, "interkit-grid"), (self.levels, "interkit-levels"),
+                       (self.workers, "interkit-workers"), (self.demo, "interkit-demo")):
+            w.add_class(cls)
+        # ------------------------------------------------------------ run
+        self.run_button = widgets.Button(description="Run scan", button_style="primary", icon="play")
+        self.run_button.add_class("interkit-run")
+        self.cancel_button = widgets.Button(description="Cancel", icon="stop", disabled=True)
+        self.cancel_button.add_class("interkit-cancel")
+        self.progress = widgets.IntProgress(value=0, min=0, max=1, description="progress")
+        self.progress.add_class("interkit-progress")
+        self.progress_label = widgets.HTML()
+        self.progress_label.add_class("interkit-progress-label")
+        self.point_table = widgets.HTML()
+        self.point_table.add_class("interkit-point-status")
+        self.live = widgets.VBox()
+        self.result_box = widgets.VBox()
+        self.result_box.add_class("interkit-result")
+        # ------------------------------------------------------------ wiring
+        self.source.observe(self._on_source, "value")
+        self.demo.observe(lambda _c: self._load_demo(), "value")
+        self.upload.observe(self._on_upload, "value")
+        self.paste_button.on_click(lambda _b: self.load_xyz_text(self.paste.value, "pasted"))
+        for w in (self.fragment_a, *self.charges, *self.mults):
+            w.observe(lambda _c: self._reload(), "value")
+        for w in (self.coordinate, self.atom_a, self.atom_b):
+            w.observe(lambda _c: self._refresh_preview(), "value")
+        self.coordinate.observe(self._on_coordinate, "value")
+        self.grid_mode.observe(self._on_grid_mode, "value")
+        for w in (self.grid, self.levels, self.counterpoise, self.workers, self.seconds_per_calc):
+            w.observe(lambda _c: self.update_estimate(), "value")
+        self.levels.observe(lambda _c: self._guess_seconds(), "value")
+        self.run_button.on_click(lambda _b: self.run())
+        self.cancel_button.on_click(lambda _b: self.cancel())
+        self._source_box = widgets.VBox()
+        self._text_source = ""
+        h = widgets.HTML
+        form = widgets.VBox([
+            h("<b>1 · Dimer</b>"), self.source, self._source_box,
+            widgets.HBox([self.fragment_a]), widgets.HBox(self.charges), widgets.HBox(self.mults),
+            self.dimer_info,
+            h("<b>2 · Scan coordinate and grid</b>"), self.coordinate, widgets.HBox([self.atom_a, self.atom_b]),
+            self.grid_mode, self.grid,
+            h("<b>3 · Calculation</b>"), self.levels, self.counterpoise, self.workers,
+            widgets.HBox(self.unavailable), self.cache,
+            widgets.HBox([self.seconds_per_calc, self.estimate]),
+        ], layout=lay(width="470px"))
+        super().__init__(children=[
+            widgets.HBox([form, widgets.VBox([self.preview, self.message])]),
+            widgets.HBox([self.run_button, self.cancel_button, self.progress, self.progress_label]),
+            self.point_table, self.live, self.result_box,
+        ])
+        self.add_class("interkit-launcher")
+        self._on_source()
+
+    # ------------------------------------------------------------------ dimer input
+    def _on_source(self, _change=None) -> None:
+        src = self.source.value
+        if src == "bundled dimer":
+            self._source_box.children = [self.demo]
+            self._load_demo()
+        elif src == "XYZ file":
+            self._source_box.children = [self.upload, widgets.HTML(note_html(
+                "an XYZ file (angstrom); the two fragments are split by connectivity"))]
+        else:
+            self._source_box.children = [self.paste, self.paste_button]
+
+    @_shows_errors
+    def _load_demo(self) -> None:
+        name = self.demo.value
+        entry = demo_catalog()[name]
+        self._text_source = ""
+        self._set_quietly(entry)
+        self._set_dimer(load_demo(name))
+        contact = entry.get("contact")
+        if contact:
+            self.coordinate.value = COORDINATES[0]
+            a, b = (contact if contact[0] in self.dimer.fragment_a else contact[::-1])
+            self.atom_a.value, self.atom_b.value = int(a), int(b)
+
+    def _set_quietly(self, entry: dict) -> None:
+        """Put a catalog entry's charges and multiplicities into the form."""
+        self._loading = True
+        try:
+            self.fragment_a.value = ""
+            for k in range(2):
+                self.charges[k].value = int(entry.get("charges", (0, 0))[k])
+                self.mults[k].value = int(entry.get("multiplicities", (1, 1))[k])
+        finally:
+            self._loading = False
+
+    def _on_upload(self, change) -> None:
+        files = change["new"]
+        if not files:
+            return
+        item = files[0]
+        try:
+            text = bytes(item["content"]).decode("utf-8")
+        except UnicodeDecodeError:
+            self.message.value = error_html(f"XYZ file {item.get('name', '')!r}: not UTF-8 text")
+            return
+        self.load_xyz_text(text, os.path.splitext(item.get("name", "uploaded"))[0])
+
+    @_shows_errors
+    def load_xyz_text(self, text: str, name: str = "pasted") -> Dimer | None:
+        """Read a dimer from XYZ text with the form's fragment, charge and spin fields."""
+        self._text_source, self._text_name = text, name
+        return self._reload()
+
+    def _fragment_a(self) -> list[int] | None:
+        text = self.fragment_a.value.strip()
+        if not text:
+            return None
+        return [int(x) for x in parse_grid(text, "fragment A")]
+
+    @_shows_errors
+    def _reload(self) -> Dimer | None:
+        if getattr(self, "_loading", False):
+            return None
+        kwargs = {"fragment_a": self._fragment_a(), "charges": tuple(w.value for w in self.charges),
+                  "multiplicities": tuple(w.value for w in self.mults)}
+        if self._text_source:
+            dimer = Dimer.from_xyz_string(self._text_source, name=self._text_name, **kwargs)
+        else:
+            if kwargs["fragment_a"] is None:
+                kwargs.pop("fragment_a")
+            dimer = load_demo(self.demo.value, **kwargs)
+        self._set_dimer(dimer)
+        return dimer
+
+    def _set_dimer(self, dimer: Dimer) -> None:
+        self.dimer = dimer
+        self.message.value = ""
+        opts = {f: [(f"{i} · {dimer.symbols[i]} · fragment {f}", i) for i in idx]
+                for f, idx in (("A", dimer.fragment_a), ("B", dimer.fragment_b))}
+        self.atom_a.options, self.atom_b.options = opts["A"], opts["B"]
+        formula = {f: _formula([dimer.symbols[i] for i in idx])
+                   for f, idx in (("A", dimer.fragment_a), ("B", dimer.fragment_b))}
+        self.dimer_info.value = note_html(
+            f"{dimer.name}: {dimer.natoms} atoms · A {len(dimer.fragment_a)} atoms ({formula['A']}, charge "
+            f"{dimer.charges[0]}, 2S+1 = {dimer.multiplicities[0]}) · B {len(dimer.fragment_b)} atoms "
+            f"({formula['B']}, charge {dimer.charges[1]}, 2S+1 = {dimer.multiplicities[1]})")
+        self._guess_seconds()
+        self._refresh_preview()
+
+    # ------------------------------------------------------------------ coordinate, grid, estimate
+    def _on_coordinate(self, _change) -> None:
+        pair = self.coordinate.value == COORDINATES[0]
+        self.atom_a.disabled = self.atom_b.disabled = not pair
+
+    def _on_grid_mode(self, _change) -> None:
+        if self.grid_mode.value == GRID_MODES[0]:
+            self.grid.value = DEFAULT_FACTORS
+        elif self.dimer is not None:
+            try:
+                ref = self.scan_coordinate().value(self.dimer)
+                self.grid.value = ", ".join(f"{f * ref:.2f}" for f in parse_grid(DEFAULT_FACTORS))
+            except InterkitError as exc:
+                self.message.value = error_html(str(exc))
+
+    def scan_coordinate(self):
+        """The coordinate chosen in the form (AtomPair or CentreOfMass)."""
+        if self.coordinate.value == COORDINATES[1]:
+            return CentreOfMass()
+        if self.atom_a.value is None or self.atom_b.value is None:
+            raise InputError("coordinate: choose one atom in each fragment")
+        return AtomPair(int(self.atom_a.value), int(self.atom_b.value))
+
+    def _refresh_preview(self) -> None:
+        if self.dimer is None:
+            return
+        d = self.dimer
+        labels = d.fragment_labels
+        anchors, label = None, None
+        try:
+            coord = self.scan_coordinate()
+            coord.check(d)
+            anchors = np.stack(coord.anchors(d))
+            label = f"{coord.value(d):.3f} Å"
+        except InterkitError:
+            pass
+        self.preview.set_frames([scene_from_arrays(d.symbols, labels, d.coordinates, anchors, label=label)])
+        self.update_estimate()
+
+    def _level_list(self) -> list[str]:
+        return [t.strip() for t in self.levels.value.split(",") if t.strip()]
+
+    def _guess_seconds(self) -> None:
+        if self.dimer is not None:
+            self.seconds_per_calc.value = rough_seconds_per_calculation(self.dimer.natoms, self._level_list())
+
+    def n_calculations(self) -> int:
+        """Calculations the form's scan needs (levels × points × 3 + 2 per level with counterpoise)."""
+        n_points = len(parse_grid(self.grid.value, self.grid_mode.value.split()[0]))
+        n_levels = len(self._level_list())
+        if not n_levels:
+            raise InputError("levels: no level of theory given")
+        return count_calculations(n_levels, n_points, bool(self.counterpoise.value))
+
+    def update_estimate(self) -> None:
+        """Refresh the cost estimate shown before running."""
+        try:
+            n = self.n_calculations()
+        except InterkitError as exc:
+            self.estimate.value = error_html(str(exc))
+            return
+        n_points = len(parse_grid(self.grid.value))
+        n_levels = len(self._level_list())
+        per = 3 if self.counterpoise.value else 1
+        wall = n * self.seconds_per_calc.value / max(1, self.workers.value)
+        self.estimate.value = (
+            f'<div><b>{n}</b> calculations = {n_levels} level(s) × {n_points} points × {per} + 2 per level'
+            f"<br>about {_duration(wall)} with {self.workers.value} worker(s) "
+            f"(rough: {self.seconds_per_calc.value:g} s per calculation)</div>")
+
+    def build_spec(self) -> ScanSpec:
+        """The ScanSpec the form describes (raises InterkitError on bad input)."""
+        if self.dimer is None:
+            raise InputError("dimer: load a bundled dimer, an XYZ file or pasted XYZ first")
+        grid = parse_grid(self.grid.value, self.grid_mode.value.split()[0])
+        kwargs = {"factors": grid} if self.grid_mode.value == GRID_MODES[0] else {"distances": grid}
+        return ScanSpec(dimer=self.dimer, coordinate=self.scan_coordinate(), levels=self._level_list(),
+                        counterpoise=bool(self.counterpoise.value), name=self.dimer.name, **kwargs)
+
+    # ------------------------------------------------------------------ running
+    @_shows_errors
+    def run(self, wait: bool = False) -> BackgroundScan | None:
+        """Start the scan in a background thread (``wait=True`` blocks until it ends)."""
+        if self.scan is not None and self.scan.running:
+            raise InputError("run: a scan is already running; cancel it or wait")
+        spec = self.build_spec()
+        self.message.value = ""
+        executor = "serial" if self.workers.value == 1 else self.executor
+        self.result, self.explorer = None, None
+        self.result_box.children = []
+        self.scan = BackgroundScan(spec, executor=executor, cache=self.cache.value.strip() or None,
+                                   workers=self.workers.value, on_progress=self._on_progress,
+                                   on_done=self._on_done)
+        self.progress.max, self.progress.value = self.scan.total, self.scan.done
+        self.progress.bar_style = ""
+        self.progress_label.value = f"0 of {self.scan.total} calculations"
+        self.run_button.disabled, self.cancel_button.disabled = True, False
+        self._show_points()
+        self.scan.start()
+        if wait:
+            self.scan.wait()
+        return self.scan
+
+    def cancel(self) -> None:
+        """Stop after the running calculations; what finished is kept in the result."""
+        if self.scan is not None and self.scan.running:
+            self.scan.cancel()
+            self.cancel_button.disabled = True
+            self.progress_label.value = "cancelling: waiting for the running calculations…"
+
+    def wait(self, timeout: float | None = None) -> bool:
+        """Block until the running scan ends; True if it has ended."""
+        return True if self.scan is None else self.scan.wait(timeout)
+
+    def _on_progress(self, scan: BackgroundScan) -> None:
+        self.progress.value = scan.done
+        self.progress_label.value = f"{scan.done} of {scan.total} calculations"
+        self._show_points()
+        now = time.perf_counter()
+        if now - self._last_live > 0.5:
+            self._last_live = now
+            self._show_live(scan.partial())
+
+    def _on_done(self, scan: BackgroundScan) -> None:
+        self.run_button.disabled, self.cancel_button.disabled = False, True
+        if scan.error is not None:
+            self.progress.bar_style = "danger"
+            self.message.value = error_html(scan.error)
+            self.progress_label.value = "stopped by an error"
+            return
+        self.result = scan.result
+        cancelled = scan.cancel_event.is_set()
+        self.progress.value = scan.done
+        self.progress.bar_style = "warning" if cancelled else "success"
+        seconds = (scan.finished or 0) - (scan.started or 0)
+        self.progress_label.value = (f"{'cancelled' if cancelled else 'finished'} after {seconds:.1f} s · "
+                                     f"{scan.done} of {scan.total} calculations")
+        self._show_points()
+        self.live.children = []
+        self.explorer = ScanExplorer(self.result)
+        self.result_box.children = [widgets.HTML("<b>Result</b> (also in <code>launcher.result</code>)"),
+                                    self.explorer]
+
+    def _show_points(self) -> None:
+        if self.scan is None:
+            return
+        states = self.scan.point_states()
+        dist = [p.distance for p in self.scan.spec.points]
+        head = "".join(f'<th style="padding:0 6px;font-weight:normal">{d:.2f}</th>' for d in dist)
+        rows = []
+        for li, level in enumerate(self.scan.spec.levels):
+            cells = []
+            for pi in range(len(dist)):
+                mark, colour = STATUS_STYLE[states[li, pi]]
+                cells.append(f'<td title="{states[li, pi]}" data-state="{states[li, pi]}" '
+                             f'style="color:{colour};text-align:center">{mark}</td>')
+            rows.append(f"<tr><td>{html.escape(level.label)}</td>{''.join(cells)}</tr>")
+        legend = " ".join(f'<span style="color:{c}">{m}</span> {k}' for k, (m, c) in STATUS_STYLE.items())
+        self.point_table.value = (f'<table style="font-size:90%"><tr><th>point / Å</th>{head}</tr>'
+                                  f'{"".join(rows)}</table><div style="font-size:80%;color:#555">{legend}</div>')
+
+    def _show_live(self, ds) -> None:
+        panel = CurvePanel(ds, width=5.0, height=3.2)
+        if not np.isfinite(ds["e_int"].values).any() and not np.isfinite(ds["e_int_nocp"].values).any():
+            return
+        panel.redraw([str(x) for x in ds["level"].values], "kcal/mol", False, False, 0)
+        panel.image.add_class("interkit-live-curve")
+        self.live.children = [widgets.HTML("<i>curve so far</i>"), panel.image]

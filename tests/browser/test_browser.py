@@ -1,0 +1,206 @@
+"""The widgets in a real headless Chromium, served by Voilà on 127.0.0.1, offline.
+
+Every request that does not go to 127.0.0.1 is aborted, so a drawn 3D view proves that
+3Dmol.js came inline from the package and not from the network. Screenshots of
+failures go to ``test-artifacts/``.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import io
+import os
+import shutil
+import socket
+import statistics
+import subprocess
+import sys
+import time
+import urllib.request
+from pathlib import Path
+
+import pytest
+
+pytestmark = pytest.mark.browser
+
+CHROMIUM = "/usr/bin/chromium"
+ROOT = Path(__file__).resolve().parents[2]
+ARTIFACTS = ROOT / "test-artifacts"
+CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+                 "--disable-background-networking", "--disable-component-update", "--disable-sync"]
+LOCAL = ("http://127.0.0.1", "ws://127.0.0.1", "data:", "blob:", "about:")
+BACKGROUND_RGB = (0xF4, 0xF6, 0xF9)   # interkit.widgets.style.BACKGROUND_3D
+
+if not os.path.exists(CHROMIUM):
+    pytest.skip(f"{CHROMIUM} is missing (Debian package chromium)", allow_module_level=True)
+playwright_api = pytest.importorskip("playwright.sync_api")
+pytest.importorskip("voila")
+
+
+def _free_port() -> int:
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+@pytest.fixture(scope="module")
+def saved_scan(tmp_path_factory):
+    import interkit as ik
+    from interkit.demo import demo_catalog
+
+    i, j = demo_catalog()["water_methanol"]["contact"]
+    spec = ik.ScanSpec(dimer=ik.load_demo("water_methanol"), coordinate=ik.AtomPair(i, j),
+                       factors=[0.9, 1.0, 1.1, 1.25, 1.5, 2.0], levels=["hf/sto-3g"])
+    path = tmp_path_factory.mktemp("scan") / "saved.nc"
+    ik.save_scan(ik.run_scan(spec, executor="processes", progress=False), path)
+    return path
+
+
+@pytest.fixture(scope="module")
+def voila(tmp_path_factory, saved_scan):
+    """Voilà serving a temporary copy of notebooks/ on 127.0.0.1; yields the base URL."""
+    folder = tmp_path_factory.mktemp("served")
+    for nb in (ROOT / "notebooks").glob("*.ipynb"):
+        shutil.copy(nb, folder / nb.name)
+    port = _free_port()
+    env = dict(os.environ, INTERKIT_SCAN=str(saved_scan))
+    log = open(folder / "voila.log", "w")
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "voila", "--no-browser", f"--port={port}", "--Voila.ip=127.0.0.1",
+         "--ServerApp.ip=127.0.0.1", str(folder)],
+        cwd=folder, env=env, stdout=log, stderr=subprocess.STDOUT)
+    base = f"http://127.0.0.1:{port}"
+    try:
+        deadline = time.time() + 60
+        while True:
+            try:
+                urllib.request.urlopen(base + "/", timeout=2)
+                break
+            except OSError:
+                if time.time() > deadline or proc.poll() is not None:
+                    pytest.fail(f"Voilà did not start: {(folder / 'voila.log').read_text()[-2000:]}")
+                time.sleep(0.3)
+        yield base
+    finally:
+        proc.terminate()
+        try:
+            proc.wait(timeout=15)
+        except subprocess.TimeoutExpired:
+            proc.kill()
+        log.close()
+
+
+@pytest.fixture
+def page(tmp_path):
+    """A fresh Chromium profile; every non-local request is aborted and recorded."""
+    with playwright_api.sync_playwright() as p:
+        ctx = p.chromium.launch_persistent_context(
+            str(tmp_path / "profile"), executable_path=CHROMIUM, headless=True, args=CHROMIUM_ARGS,
+            viewport={"width": 1300, "height": 1700})
+        pg = ctx.new_page()
+        pg.blocked = []
+
+        def route(r):
+            if r.request.url.startswith(LOCAL):
+                r.continue_()
+            else:
+                pg.blocked.append(r.request.url)
+                r.abort()
+
+        pg.route("**/*", route)
+        try:
+            yield pg
+        finally:
+            ctx.close()
+
+
+def _drawn_fraction(png: bytes) -> float:
+    """Fraction of pixels that differ clearly from the 3D background colour."""
+    import numpy as np
+    from PIL import Image
+
+    img = np.asarray(Image.open(io.BytesIO(png)).convert("RGB")).astype(int)
+    diff = np.abs(img - np.array(BACKGROUND_RGB)).sum(axis=-1)
+    return float((diff > 40).mean())
+
+
+def _shot(page, name):
+    ARTIFACTS.mkdir(exist_ok=True)
+    with contextlib.suppress(Exception):
+        page.screenshot(path=str(ARTIFACTS / name), full_page=True)
+
+
+def test_explorer_follows_the_slider_offline(voila, page):
+    try:
+        page.goto(voila + "/voila/render/03-reopen.ipynb", timeout=120_000)
+        canvas = page.wait_for_selector(".interkit-explorer .interkit-3d canvas", timeout=120_000)
+        page.wait_for_function("() => Object.values(window.interkitViews || {}).some(v => v.shown > 0)")
+        page.wait_for_timeout(300)
+        drawn = _drawn_fraction(canvas.screenshot())
+        assert drawn > 0.01, f"the 3D canvas looks blank ({drawn:.2%} drawn pixels)"
+        assert not any("3dmol" in u.lower() for u in page.blocked), page.blocked
+        uid = page.eval_on_selector(".interkit-explorer .interkit-3d", "el => el.id")
+        handle = page.wait_for_selector(".interkit-point-slider .noUi-handle")
+        handle.focus()
+        before = canvas.screenshot()
+        latencies, index = [], 0
+        for key in ["ArrowRight"] * 3 + ["ArrowLeft"] * 2 + ["ArrowRight"] * 3 + ["ArrowLeft"] * 2:
+            index += 1 if key == "ArrowRight" else -1
+            old_src = page.eval_on_selector(".interkit-curves", "el => el.src")
+            t0 = time.perf_counter()
+            page.keyboard.press(key)
+            page.wait_for_function(
+                """([uid, index, old]) => {
+                    const v = (window.interkitViews || {})[uid];
+                    const label = document.querySelector('.interkit-point-label [data-index]');
+                    const img = document.querySelector('.interkit-curves');
+                    return v && v.frame === index && label && label.dataset.index === String(index)
+                           && img && img.src !== old;
+                }""", arg=[uid, index, old_src], polling="raf", timeout=10_000)
+            latencies.append(1000 * (time.perf_counter() - t0))
+        after = canvas.screenshot()
+        assert after != before, "the 3D view did not change when the point moved"
+        assert _drawn_fraction(after) > 0.01
+        median = statistics.median(latencies)
+        print(f"\nslider-to-update latency: {median:.0f} ms (median of {len(latencies)}; "
+              f"min {min(latencies):.0f}, max {max(latencies):.0f}) from a saved Dataset")
+        assert median < 500, "slider updates are far slower than the 150 ms target"
+    except Exception:
+        _shot(page, "explorer-failure.png")
+        raise
+
+
+def test_launcher_runs_with_progress_offline(voila, page):
+    try:
+        page.goto(voila + "/voila/render/01-quickstart.ipynb", timeout=180_000)
+        page.wait_for_selector(".interkit-launcher .interkit-run", timeout=180_000)
+        page.wait_for_function(
+            "() => document.querySelectorAll('.interkit-3d canvas').length >= 2", timeout=30_000)
+        preview = page.query_selector_all(".interkit-launcher .interkit-3d canvas")[0]
+        assert _drawn_fraction(preview.screenshot()) > 0.005, "launcher preview is blank"
+        page.fill(".interkit-launcher .interkit-grid input", "0.9, 1.0, 1.2, 1.5, 2.0")
+        page.press(".interkit-launcher .interkit-grid input", "Tab")
+        page.wait_for_function(
+            "() => document.querySelector('.interkit-estimate').textContent.includes('17 calculations')")
+        page.evaluate("""() => {
+            window.progressSeen = [];
+            const label = document.querySelector('.interkit-launcher .interkit-progress-label');
+            new MutationObserver(() => window.progressSeen.push(label.textContent))
+                .observe(label, {subtree: true, childList: true, characterData: true});
+        }""")
+        page.click(".interkit-launcher .interkit-run")
+        page.wait_for_selector(".interkit-result .interkit-explorer .interkit-curves", timeout=240_000)
+        seen = page.evaluate("window.progressSeen")
+        partial = [s for s in seen if " of 17 calculations" in s and not s.startswith(("finished", "0 of"))]
+        assert partial, f"no intermediate progress shown: {seen}"
+        assert any(s.startswith("finished") for s in seen), seen
+        states = page.eval_on_selector_all(".interkit-point-status td[data-state]", "els => els.map(e => e.dataset.state)")
+        assert states == ["ok"] * 5, states
+        src = page.eval_on_selector(".interkit-result .interkit-curves", "el => el.src")
+        assert src.startswith(("blob:", "data:"))
+        result_canvas = page.wait_for_selector(".interkit-result .interkit-3d canvas", timeout=30_000)
+        page.wait_for_timeout(300)
+        assert _drawn_fraction(result_canvas.screenshot()) > 0.005
+    except Exception:
+        _shot(page, "launcher-failure.png")
+        raise

@@ -1,0 +1,88 @@
+"""Execute the example notebooks with nbclient (kernel from this Python environment)."""
+
+from __future__ import annotations
+
+import shutil
+import sys
+import time
+from pathlib import Path
+
+import nbformat
+import pytest
+
+NOTEBOOKS = Path(__file__).resolve().parent.parent / "notebooks"
+NAMES = ["01-quickstart.ipynb", "02-levels.ipynb", "03-reopen.ipynb"]
+WIDGET_VIEW = "application/vnd.jupyter.widget-view+json"
+
+
+def _execute(path: Path, cwd: Path) -> nbformat.NotebookNode:
+    from nbclient import NotebookClient
+
+    nb = nbformat.read(path, as_version=4)
+    client = NotebookClient(nb, timeout=180, kernel_name="python3", resources={"metadata": {"path": str(cwd)}})
+    client.execute()
+    return nb
+
+
+def _texts(nb) -> str:
+    out = []
+    for cell in nb.cells:
+        for o in cell.get("outputs", []):
+            out.append(o.get("text", ""))
+            out.append(str(o.get("data", {}).get("text/plain", "")))
+    return "\n".join(out)
+
+
+def _widget_views(nb) -> int:
+    return sum(WIDGET_VIEW in o.get("data", {}) for c in nb.cells for o in c.get("outputs", []))
+
+
+def _no_errors(nb) -> None:
+    for cell in nb.cells:
+        for o in cell.get("outputs", []):
+            assert o.get("output_type") != "error", f"{o.get('ename')}: {o.get('evalue')}"
+
+
+@pytest.mark.parametrize("name", NAMES)
+def test_notebook_is_stored_without_outputs(name):
+    nb = nbformat.read(NOTEBOOKS / name, as_version=4)
+    for cell in nb.cells:
+        if cell.cell_type == "code":
+            assert cell.outputs == [] and cell.execution_count is None, f"{name}: outputs are not stripped"
+
+
+@pytest.fixture(scope="module")
+def saved_scan(tmp_path_factory):
+    """A small real scan on disk for 03-reopen (HF/STO-3G, 4 points)."""
+    import interkit as ik
+    from interkit.demo import demo_catalog
+
+    i, j = demo_catalog()["water_methanol"]["contact"]
+    spec = ik.ScanSpec(dimer=ik.load_demo("water_methanol"), coordinate=ik.AtomPair(i, j),
+                       factors=[0.9, 1.0, 1.2, 1.6], levels=["hf/sto-3g"])
+    path = tmp_path_factory.mktemp("saved") / "saved-scan.nc"
+    ik.save_scan(ik.run_scan(spec, executor="processes", progress=False), path)
+    return path
+
+
+@pytest.mark.parametrize("name", NAMES)
+def test_notebook_executes(name, tmp_path, monkeypatch, saved_scan):
+    assert Path(sys.executable).exists()
+    work = tmp_path / "nb"
+    work.mkdir()
+    shutil.copy(NOTEBOOKS / name, work / name)
+    monkeypatch.setenv("INTERKIT_SCAN", str(saved_scan))
+    t0 = time.perf_counter()
+    nb = _execute(work / name, work)
+    seconds = time.perf_counter() - t0
+    print(f"{name}: executed in {seconds:.1f} s")
+    _no_errors(nb)
+    text = _texts(nb)
+    if name == "01-quickstart.ipynb":
+        assert "calculations in" in text and _widget_views(nb) == 2    # explorer and launcher
+    elif name == "02-levels.ipynb":
+        assert text.count("lowest point") == 3 and _widget_views(nb) == 1
+    else:
+        assert "found saved scan" in text and "nothing to compute" in text
+        assert "computed and saved" not in text and _widget_views(nb) == 1
+    assert seconds < 90
