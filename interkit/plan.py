@@ -22,14 +22,34 @@ NUMERICS_VERSION = 1
 #: coordinates in job descriptions are rounded to this many decimals of an angstrom
 COORDINATE_DECIMALS = 10
 
-ROLES = ("dimer", "a_dimer_basis", "b_dimer_basis", "a_own_basis", "b_own_basis")
+CP_ROLES = ("dimer", "a_dimer_basis", "b_dimer_basis")
+OWN_BASIS_ROLES = ("a_own_basis", "b_own_basis")
+#: counterpoise calculations at B displaced by +h and -h along the coordinate, for
+#: numerical forces (levels without analytic gradients)
+DISPLACED_ROLES = tuple(f"{r}_{sign}" for sign in ("plus", "minus") for r in CP_ROLES)
+ROLES = CP_ROLES + OWN_BASIS_ROLES + DISPLACED_ROLES
 ROLE_LABELS = {
     "dimer": "dimer (dimer basis)",
     "a_dimer_basis": "A in dimer basis",
     "b_dimer_basis": "B in dimer basis",
     "a_own_basis": "A in own basis",
     "b_own_basis": "B in own basis",
+    **{f"{r}_{sign}": f"{label}, B displaced {'+' if sign == 'plus' else '-'}h"
+       for sign in ("plus", "minus")
+       for r, label in (("dimer", "dimer"), ("a_dimer_basis", "A in dimer basis"),
+                        ("b_dimer_basis", "B in dimer basis"))},
 }
+#: step (angstrom) of central differences along the scan coordinate
+NUMERICAL_FORCE_STEP_ANGSTROM = 0.005
+
+
+def force_method(level: LevelOfTheory) -> str:
+    """How forces are obtained for a level: analytic gradients where pyscf has them."""
+    if level.method in ("hf", "dft"):
+        return "analytic"
+    if level.method == "mp2":
+        return "analytic (conventional MP2)"
+    return "numerical"
 
 
 def _pyscf_version() -> str:
@@ -56,7 +76,7 @@ class Job:
     conv_tol : float
         SCF energy threshold in hartree.
     outputs : tuple of str
-        What to compute (``'energy'``).
+        What to compute: ``('energy',)`` or ``('energy', 'gradient')``.
     """
 
     symbols: tuple[str, ...]
@@ -118,14 +138,23 @@ class ScanPlan:
         Unique jobs by key.
     table : dict
         ``table[(level_index, point_index)][role] -> key``.
-    roles_per_point : tuple of str
-        The roles computed at each point.
     """
 
     spec: ScanSpec
     jobs: dict[str, Job]
     table: dict[tuple[int, int], dict[str, str]]
-    roles_per_point: tuple[str, ...]
+
+    @property
+    def roles(self) -> tuple[str, ...]:
+        """Every role used somewhere in the plan, in canonical order."""
+        used = {r for entry in self.table.values() for r in entry}
+        return tuple(r for r in ROLES if r in used)
+
+    def point_roles(self, level_index: int, point_index: int) -> tuple[str, ...]:
+        """Roles computed per point (own-basis monomers only for non-rigid scans)."""
+        entry = self.table[(level_index, point_index)]
+        skip = OWN_BASIS_ROLES if self.spec.is_rigid else ()
+        return tuple(r for r in ROLES if r in entry and r not in skip)
 
     @property
     def n_points(self) -> int:
@@ -140,14 +169,14 @@ class ScanPlan:
         calculation each per level) open the first and the last chunk of their level.
         """
         own_per_point = not self.spec.is_rigid
-        roles = self.roles_per_point + (("a_own_basis", "b_own_basis") if own_per_point else ())
         n_levels, n_points = len(self.spec.levels), self.n_points
         per_level = min(n_points, max(1, -(-int(n_chunks) // n_levels)))
         chunks: list[list[tuple[str, str]]] = []
         for li in range(n_levels):
             bounds = np.linspace(0, n_points, per_level + 1).round().astype(int)
             level_chunks = [
-                [(role, self.table[(li, pi)][role]) for pi in range(lo, hi) for role in roles]
+                [(role, self.table[(li, pi)][role]) for pi in range(lo, hi)
+                 for role in self.point_roles(li, pi)]
                 for lo, hi in zip(bounds[:-1], bounds[1:])
             ]
             if not own_per_point:
@@ -167,7 +196,8 @@ class ScanPlan:
         return out
 
 
-def _job_for(dimer, atoms, ghost_atoms, charge, spin, level, conv_tol, centre=False) -> Job:
+def _job_for(dimer, atoms, ghost_atoms, charge, spin, level, conv_tol, centre=False,
+             outputs=("energy",)) -> Job:
     idx = list(atoms) + list(ghost_atoms)
     idx.sort()
     coords = np.asarray(dimer.coordinates)[idx]
@@ -182,7 +212,21 @@ def _job_for(dimer, atoms, ghost_atoms, charge, spin, level, conv_tol, centre=Fa
         spin=int(spin),
         level=level,
         conv_tol=conv_tol,
+        outputs=tuple(outputs),
     )
+
+
+def _cp_jobs(spec: ScanSpec, geometry, level: LevelOfTheory, outputs, suffix: str = "") -> dict[str, Job]:
+    """The dimer and (with counterpoise) both ghosted monomers at one geometry."""
+    d0 = spec.dimer
+    a, b = d0.fragment_a, d0.fragment_b
+    (qa, qb), (sa, sb) = d0.charges, d0.spins
+    jobs = {"dimer" + suffix: _job_for(geometry, a + b, (), qa + qb, sa + sb, level, spec.conv_tol,
+                                       outputs=outputs)}
+    if spec.counterpoise:
+        jobs["a_dimer_basis" + suffix] = _job_for(geometry, a, b, qa, sa, level, spec.conv_tol, outputs=outputs)
+        jobs["b_dimer_basis" + suffix] = _job_for(geometry, b, a, qb, sb, level, spec.conv_tol, outputs=outputs)
+    return jobs
 
 
 def plan_scan(spec: ScanSpec) -> ScanPlan:
@@ -194,26 +238,29 @@ def plan_scan(spec: ScanSpec) -> ScanPlan:
     """
     jobs: dict[str, Job] = {}
     table: dict[tuple[int, int], dict[str, str]] = {}
-    roles = ("dimer", "a_dimer_basis", "b_dimer_basis") if spec.counterpoise else ("dimer",)
     d0 = spec.dimer
     a, b = d0.fragment_a, d0.fragment_b
     qa, qb = d0.charges
     sa, sb = d0.spins
+    h = NUMERICAL_FORCE_STEP_ANGSTROM
     for li, level in enumerate(spec.levels):
+        method = force_method(level) if spec.forces else "none"
+        outputs = ("energy", "gradient") if method.startswith("analytic") else ("energy",)
         for point in spec.points:
             dim = point.dimer
-            entry = {}
-            candidates = {
-                "dimer": _job_for(dim, a + b, (), qa + qb, sa + sb, level, spec.conv_tol),
-                "a_dimer_basis": _job_for(dim, a, b, qa, sa, level, spec.conv_tol),
-                "b_dimer_basis": _job_for(dim, b, a, qb, sb, level, spec.conv_tol),
-            }
+            candidates = {}
+
+            candidates.update(_cp_jobs(spec, dim, level, outputs))
+            if method == "numerical":
+                u = spec.coordinate.direction(dim)
+                candidates.update(_cp_jobs(spec, dim.translated_b(h * u), level, ("energy",), "_plus"))
+                candidates.update(_cp_jobs(spec, dim.translated_b(-h * u), level, ("energy",), "_minus"))
             own_geometry = d0 if spec.is_rigid else dim
             candidates["a_own_basis"] = _job_for(own_geometry, a, (), qa, sa, level, spec.conv_tol, centre=True)
             candidates["b_own_basis"] = _job_for(own_geometry, b, (), qb, sb, level, spec.conv_tol, centre=True)
-            for role in roles + ("a_own_basis", "b_own_basis"):
-                job = candidates[role]
+            entry = {}
+            for role, job in candidates.items():
                 jobs.setdefault(job.key, job)
                 entry[role] = job.key
             table[(li, point.index)] = entry
-    return ScanPlan(spec, jobs, table, roles)
+    return ScanPlan(spec, jobs, table)

@@ -35,7 +35,7 @@ import numpy as np
 import xarray as xr
 
 from .errors import InputError
-from .plan import ROLE_LABELS, ROLES, ScanPlan
+from .plan import ROLE_LABELS, ScanPlan
 from .units import CODATA_EDITION, HARTREE_TO_KCAL_PER_MOL
 
 SCHEMA_VERSION = "interkit-scan/1"
@@ -81,8 +81,9 @@ def assemble(plan: ScanPlan, records: dict[str, dict], missing_reason: str = "no
     points = spec.points
     nl, npnt = len(levels), len(points)
     d0 = spec.dimer
-    total = np.full((nl, npnt, len(ROLES)), np.nan)
-    keys = np.full((nl, npnt, len(ROLES)), "", dtype=object)
+    roles = plan.roles
+    total = np.full((nl, npnt, len(roles)), np.nan)
+    keys = np.full((nl, npnt, len(roles)), "", dtype=object)
     converged = np.zeros((nl, npnt), dtype=bool)
     status = np.full((nl, npnt), "failed", dtype=object)
     detail = np.full((nl, npnt), "", dtype=object)
@@ -91,7 +92,8 @@ def assemble(plan: ScanPlan, records: dict[str, dict], missing_reason: str = "no
         for pi in range(npnt):
             entry = plan.table[(li, pi)]
             states, notes = [], []
-            for ri, role in enumerate(ROLES):
+            per_point = plan.point_roles(li, pi)
+            for ri, role in enumerate(roles):
                 key = entry.get(role)
                 if key is None:
                     continue
@@ -108,7 +110,7 @@ def assemble(plan: ScanPlan, records: dict[str, dict], missing_reason: str = "no
                     total[li, pi, ri] = rec["energy_hartree"]
                     if rec["status"] == "retried":
                         notes.append(f"{ROLE_LABELS[role]}: converged with {rec.get('detail', '')}")
-                if role in plan.roles_per_point or not spec.is_rigid:
+                if role in per_point:
                     wall[li, pi] += float(rec.get("wall_time_s", 0.0))
             if "failed" in states:
                 status[li, pi] = "failed"
@@ -118,7 +120,7 @@ def assemble(plan: ScanPlan, records: dict[str, dict], missing_reason: str = "no
                 status[li, pi] = "ok"
             converged[li, pi] = status[li, pi] != "failed"
             detail[li, pi] = "; ".join(notes)
-    ri = {r: i for i, r in enumerate(ROLES)}
+    ri = {r: i for i, r in enumerate(roles)}
     e_dimer = total[..., ri["dimer"]]
     e_nocp = (e_dimer - total[..., ri["a_own_basis"]] - total[..., ri["b_own_basis"]]) * HARTREE_TO_KCAL_PER_MOL
     if spec.counterpoise:
@@ -132,6 +134,11 @@ def assemble(plan: ScanPlan, records: dict[str, dict], missing_reason: str = "no
     for arr in (e_cp, e_nocp, bsse):
         arr[bad] = np.nan
 
+    extra_vars = {}
+    if spec.forces:
+        from .forces import force_variables
+
+        extra_vars = force_variables(plan, records, converged)
     coords = np.stack([p.dimer.coordinates for p in points])
     anchors = np.stack([np.stack(spec.coordinate.anchors(p.dimer)) for p in points])
     energy_attrs = {"units": "kcal/mol", "sign_convention": "negative = bound"}
@@ -158,6 +165,7 @@ def assemble(plan: ScanPlan, records: dict[str, dict], missing_reason: str = "no
                         {"units": "angstrom", "long_name": "end points of the scan coordinate"}),
             "symbol": (("atom",), np.array(d0.symbols, dtype=str), {"long_name": "element"}),
             "fragment": (("atom",), np.array(d0.fragment_labels, dtype=str), {"long_name": "fragment (A or B)"}),
+            **extra_vars,
         },
         coords={
             "level": ("level", np.array(levels, dtype=str), {"long_name": "level of theory"}),
@@ -167,7 +175,7 @@ def assemble(plan: ScanPlan, records: dict[str, dict], missing_reason: str = "no
                        {"units": "1", "long_name": "value relative to the starting geometry"}),
             "atom": ("atom", np.arange(d0.natoms)),
             "xyz": ("xyz", np.array(["x", "y", "z"])),
-            "role": ("role", np.array(ROLES, dtype=str), {"long_name": "calculation in the counterpoise scheme"}),
+            "role": ("role", np.array(roles, dtype=str), {"long_name": "calculation in the counterpoise scheme"}),
             "end": ("end", np.array(["A", "B"])),
         },
         attrs={

@@ -120,7 +120,12 @@ class ScanSpec:
         Levels of theory, e.g. ``["hf/def2-svp", "b3lyp-d3bj/def2-svp"]``.
     counterpoise : bool
         Boys–Bernardi counterpoise correction (dimer-basis monomers at every point).
-    forces, decomposition, dispersion :
+    forces : bool
+        Counterpoise-corrected forces at every point: analytic gradients for HF, DFT
+        (with the dispersion correction's gradient) and MP2 (conventional), central
+        differences along the coordinate for SCS-MP2 and CCSD(T); plus the
+        Hellmann–Feynman (electrostatic) split for HF and DFT.
+    decomposition, dispersion :
         Reserved for later releases; anything but the default raises NotAvailableError.
     conv_tol : float
         SCF energy convergence threshold in hartree.
@@ -176,8 +181,8 @@ class ScanSpec:
         for key in ("counterpoise", "forces"):
             if not isinstance(getattr(self, key), (bool, np.bool_)):
                 raise InputError(f"{key}: {getattr(self, key)!r} is not true or false")
-        if self.forces:
-            raise NotAvailableError("forces: analytic forces along the scan are not available yet")
+        if self.forces and not self.counterpoise:
+            raise InputError("forces: forces are counterpoise-corrected; set counterpoise = true")
         if self.decomposition not in (None, "none"):
             raise NotAvailableError(f"decomposition: {self.decomposition!r} is not available yet")
         object.__setattr__(self, "decomposition", None)

@@ -67,7 +67,8 @@ CASES = [
     ("unknown spec key", WATER_HF, {"calculation": 'levels = ["hf/sto-3g"]\nbasis_set = "x"'},
      "'calculation.basis_set' is not recognised"),
     ("missing table", WATER_HF, {"scan": None}, "table [scan] is missing"),
-    ("forces not yet", WATER_HF, {"calculation": 'levels = ["hf/sto-3g"]\nforces = true'}, "not available yet"),
+    ("forces without counterpoise", WATER_HF,
+     {"calculation": 'levels = ["hf/sto-3g"]\nforces = true\ncounterpoise = false'}, "set counterpoise = true"),
     ("dispersion dimension not yet", WATER_HF, {"calculation": 'levels = ["hf/sto-3g"]\ndispersion = ["d3bj"]'},
      "not available yet"),
 ]

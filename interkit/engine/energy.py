@@ -7,6 +7,7 @@ separately so a worker can seed the next point's SCF with it.
 
 from __future__ import annotations
 
+import dataclasses
 import time
 import traceback
 
@@ -148,23 +149,35 @@ def run_energy_job(job: Job, guess=None) -> tuple[dict, object]:
         "guess": "previous point" if guess is not None else "default",
     }
     density = None
+    want_gradient = "gradient" in job.outputs
     try:
         mol = build_molecule(job)
         record["nao"] = int(mol.nao)
-        mf = _make_scf(mol, job.level, job.conv_tol)
+        level = job.level
+        if want_gradient and level.method == "mp2":
+            # DF-MP2 has no analytic gradient in pyscf: conventional reference and MP2
+            level = dataclasses.replace(level, density_fitting=False)
+        mf = _make_scf(mol, level, job.conv_tol)
+        if want_gradient and level.method == "dft":
+            # the gradient's grid response differentiates the full grid: no density-based
+            # pruning of grid points, or energy and gradient would not match
+            mf.small_rho_cutoff = 0.0
         status, detail = converge_scf(mf, guess)
         record["scf_cycles"] = int(getattr(mf, "cycles", 0) or 0)
         record["status"], record["detail"] = status, detail
         if status != "failed":
             density = mf.make_rdm1()
             e_scf = float(mf.e_tot)
-            e_corr = correlation_energy(mf, job.level)
-            e_disp = 0.0
-            if job.level.dispersion:
-                real = job.real_atoms
-                e_disp, _ = dispersion_energy_and_gradient(
-                    [job.symbols[i] for i in real], [job.coordinates[i] for i in real],
-                    job.level.functional, job.level.dispersion)
+            if want_gradient:
+                e_corr, e_disp = _gradient_outputs(job, mf, level, density, record)
+            else:
+                e_corr = correlation_energy(mf, job.level)
+                e_disp = 0.0
+                if job.level.dispersion:
+                    real = job.real_atoms
+                    e_disp, _ = dispersion_energy_and_gradient(
+                        [job.symbols[i] for i in real], [job.coordinates[i] for i in real],
+                        job.level.functional, job.level.dispersion)
             record.update(
                 scf_energy_hartree=e_scf,
                 correlation_energy_hartree=e_corr,
@@ -179,3 +192,25 @@ def run_energy_job(job: Job, guess=None) -> tuple[dict, object]:
         density = None
     record["wall_time_s"] = time.perf_counter() - t0
     return record, density
+
+
+def _gradient_outputs(job: Job, mf, level: LevelOfTheory, density, record: dict) -> tuple[float, float]:
+    """Fill the record's gradient and electrostatic force; return (E_corr, E_disp)."""
+    from .gradient import dispersion_gradient, electrostatic_forces, mp2_gradient, scf_gradient
+
+    mol = mf.mol
+    if level.method in ("hf", "dft"):
+        e_corr = 0.0
+        grad = scf_gradient(mf, level)
+        e_disp, g_disp = dispersion_gradient(job, mol.natm)
+        grad = grad + g_disp
+        es = electrostatic_forces(mol, density)
+        record["electrostatic_force_hartree_per_bohr"] = es.tolist()
+    elif level.method == "mp2":
+        e_corr, grad = mp2_gradient(mf, _frozen_core(mol))
+        e_disp = 0.0
+        record["electrostatic_force_hartree_per_bohr"] = None  # needs the relaxed density
+    else:
+        raise ValueError(f"no analytic gradient for {level.method}")
+    record["gradient_hartree_per_bohr"] = np.asarray(grad).tolist()
+    return e_corr, float(e_disp)
