@@ -89,3 +89,41 @@ def minimum_table(ds: xr.Dataset, variable: str = "e_int") -> list[dict]:
         row["failed_points"] = int((ds["status"].sel(level=level) == "failed").sum())
         rows.append(row)
     return rows
+
+
+def force_zero_crossing(distance, force) -> float:
+    """Distance (angstrom) where a force curve changes sign from repulsive (+) to
+    attractive (-), by a natural cubic spline through the finite points; NaN if the
+    sampled force never changes sign that way."""
+    r = np.asarray(distance, dtype=float)
+    f = np.asarray(force, dtype=float)
+    ok = np.isfinite(r) & np.isfinite(f)
+    r, f = r[ok], f[ok]
+    order = np.argsort(r)
+    r, f = r[order], f[order]
+    if len(r) < 2:
+        return float("nan")
+    changes = np.nonzero((f[:-1] > 0) & (f[1:] <= 0))[0]
+    if changes.size == 0:
+        return float("nan")
+    k = int(changes[0])
+    if len(r) < 4:
+        return float(r[k] + (r[k + 1] - r[k]) * f[k] / (f[k] - f[k + 1]))
+    spline = CubicSpline(r, f, bc_type="natural")
+    roots = [x for x in spline.roots(extrapolate=False) if r[k] <= x <= r[k + 1]]
+    return float(roots[0]) if roots else float(r[k] + (r[k + 1] - r[k]) * f[k] / (f[k] - f[k + 1]))
+
+
+def derivative_force(distance, energy) -> np.ndarray:
+    """``-dE/dR`` (kcal/mol/angstrom) of a smooth fit (natural cubic spline) through an
+    energy curve (kcal/mol), at the sampled distances; a check on analytic forces."""
+    r = np.asarray(distance, dtype=float)
+    e = np.asarray(energy, dtype=float)
+    out = np.full(r.shape, np.nan)
+    ok = np.isfinite(r) & np.isfinite(e)
+    if ok.sum() < 4:
+        return out
+    order = np.argsort(r[ok])
+    spline = CubicSpline(r[ok][order], e[ok][order], bc_type="natural")
+    out[ok] = -spline(r[ok], 1)
+    return out

@@ -73,3 +73,56 @@ def plot_curves(ds: xr.Dataset, ax=None, unit: str = "kcal/mol", show_uncorrecte
         span = max(abs(lo), 1e-6)
         ax.set_ylim(lo - 0.15 * span, max(0.6 * span, 0.2 * span + float(np.median(finite))))
     return ax
+
+
+def plot_forces(ds: xr.Dataset, ax=None, levels=None, show_fit: bool = True, show_split: bool = False):
+    """Net force on fragment B along the scan coordinate (positive = repulsive).
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A scan Dataset with forces (``force_along`` in kcal/mol/angstrom).
+    ax : matplotlib Axes, optional
+    levels : sequence of str, optional
+    show_fit : bool
+        Also draw ``-dE/dR`` of a smooth fit through the energies (dashed): it should
+        lie on the analytic force.
+    show_split : bool
+        Also draw the electrostatic (Hellmann–Feynman) force and the Pulay remainder.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+    """
+    import matplotlib.pyplot as plt
+
+    from .analysis import derivative_force, force_zero_crossing
+
+    if "force_along" not in ds.variables:
+        raise ValueError("dataset: no forces (run the scan with forces=True)")
+    if ax is None:
+        _, ax = plt.subplots(figsize=(6.4, 4.2))
+    r = ds["distance"].values
+    chosen = list(levels) if levels is not None else [str(x) for x in ds["level"].values]
+    for k, level in enumerate(chosen):
+        colour = LEVEL_COLOURS[k % len(LEVEL_COLOURS)]
+        f = ds["force_along"].sel(level=level).values
+        ax.plot(r, f, "o-", color=colour, lw=1.8, ms=4, label=f"{level}")
+        zero = force_zero_crossing(r, f)
+        if np.isfinite(zero):
+            ax.plot([zero], [0.0], marker="|", ms=16, mew=2.5, color=colour)
+            ax.annotate(f"{zero:.3f} Å", (zero, 0.0), textcoords="offset points", xytext=(4, 6),
+                        color=colour, fontsize=8)
+        if show_fit:
+            ax.plot(r, derivative_force(r, ds["e_int"].sel(level=level).values), "--", color=colour,
+                    lw=1.1, label=f"{level}, −dE/dR of a spline fit")
+        if show_split and "force_hf_along" in ds.variables:
+            ax.plot(r, ds["force_hf_along"].sel(level=level).values, ":", color=colour, lw=1.4,
+                    label=f"{level}, electrostatic (Hellmann–Feynman)")
+            ax.plot(r, ds["force_pulay_along"].sel(level=level).values, "-.", color=colour, lw=1.1,
+                    label=f"{level}, Pulay")
+    ax.axhline(0.0, color="#888888", lw=0.8)
+    ax.set_xlabel(f"{ds['distance'].attrs.get('long_name', 'distance')} / Å")
+    ax.set_ylabel("force on B along the coordinate / kcal/mol/Å  (+ repulsive)")
+    ax.legend(frameon=False, fontsize=8)
+    return ax
