@@ -187,3 +187,18 @@ def test_force_variables_roundtrip_and_units(tmp_path):
     import xarray as xr
 
     xr.testing.assert_identical(back, ds)
+
+
+def test_pulay_part_of_the_interaction_force_shrinks_with_the_basis():
+    """The same trend for a dimer (S22 water dimer, HF, counterpoise-corrected): the
+    Pulay part of the net force on B shrinks from def2-SVP to def2-TZVP to aug-cc-pVTZ
+    while the analytic force itself changes much less (practice: Pulay forces vanish only
+    in the basis-set limit, slowly for atoms with core electrons)."""
+    dimer = s22_dimer("Water_dimer")
+    pulay, full = [], []
+    for basis in ("def2-svp", "def2-tzvp", "aug-cc-pvtz"):
+        ds = _scan(dimer, f"hf/{basis}", ik.CentreOfMass())
+        pulay.append(abs(float(ds["force_pulay_along"].values[0, 0])))
+        full.append(float(ds["force_along"].values[0, 0]))
+    assert pulay[0] > pulay[1] > pulay[2]
+    assert max(full) - min(full) < 0.1 * pulay[0]

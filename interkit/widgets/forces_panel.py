@@ -1,0 +1,78 @@
+"""Force views for the explorer: the force curve panel and per-fragment arrows."""
+
+from __future__ import annotations
+
+import numpy as np
+import xarray as xr
+
+from ..plot import plot_forces
+from .curves import MARKER_COLOUR, CurvePanel
+
+#: arrows in the 3D view: angstrom of arrow per kcal/mol/angstrom of force
+ATOM_ARROW_SCALE = 0.05
+FRAGMENT_ARROW_SCALE = 0.08
+
+
+class ForcePanel(CurvePanel):
+    """Net force on fragment B along the coordinate (per level) with a movable marker."""
+
+    def redraw(self, levels, unit: str, show_uncorrected: bool, show_bsse: bool, index: int) -> None:
+        """Draw the force curves (the unit and toggles of the energy view do not apply)."""
+        self.levels = list(levels)
+        self.figure.set_layout_engine("constrained")
+        self.ax.clear()
+        plot_forces(self.ds, ax=self.ax, levels=self.levels, show_fit=True, show_split=show_bsse)
+        self._guide = self.ax.axvline(np.nan, color=MARKER_COLOUR, lw=0.8, ls=(0, (2, 3)), zorder=1,
+                                      animated=True)
+        self._curves = {lv: self.ds["force_along"].sel(level=lv).values for lv in self.levels}
+        self._markers = []
+        for k, _level in enumerate(self.levels):
+            (m,) = self.ax.plot([], [], marker="o", ms=11, mfc="none", mec=MARKER_COLOUR, mew=2.2,
+                                ls="none", zorder=6, animated=True)
+            m.set_gid(f"interkit-force-marker-{k}")
+            self._markers.append(m)
+        self.canvas.draw()
+        self.figure.set_layout_engine("none")
+        self._background = self.canvas.copy_from_bbox(self.figure.bbox)
+        self.move_marker(index)
+
+
+def force_arrows(ds: xr.Dataset, level: str, index: int, mode: str) -> list | None:
+    """Arrow segments (start, end) in angstrom for the 3D view.
+
+    Parameters
+    ----------
+    mode : {'atoms', 'fragments', 'off'}
+        One arrow per atom (scale ``ATOM_ARROW_SCALE``) or one per fragment at its
+        centre of mass (``FRAGMENT_ARROW_SCALE``).
+    """
+    if mode == "off" or "forces" not in ds.variables:
+        return None
+    coords = ds["coordinates"].values[index]
+    vec = np.asarray(ds["forces"].sel(level=level).isel(distance=index).transpose("atom", "xyz").values)
+    if not np.all(np.isfinite(vec)):
+        return None
+    if mode == "atoms":
+        return [(coords[a], coords[a] + ATOM_ARROW_SCALE * vec[a]) for a in range(len(coords))
+                if np.linalg.norm(vec[a]) > 1e-3]
+    from ..geometry import atomic_mass
+
+    masses = np.array([atomic_mass(str(s)) for s in ds["symbol"].values])
+    frag = ds["fragment"].values.astype(str)
+    arrows = []
+    for label in ("A", "B"):
+        idx = frag == label
+        com = (masses[idx, None] * coords[idx]).sum(axis=0) / masses[idx].sum()
+        net = vec[idx].sum(axis=0)
+        if np.linalg.norm(net) > 1e-3:
+            arrows.append((com, com + FRAGMENT_ARROW_SCALE * net))
+    return arrows
+
+
+def scale_legend(mode: str) -> str:
+    """One line saying what an arrow length means."""
+    if mode == "off":
+        return "force arrows off"
+    scale = ATOM_ARROW_SCALE if mode == "atoms" else FRAGMENT_ARROW_SCALE
+    return (f"arrows ({'per atom' if mode == 'atoms' else 'net force per fragment, at its centre of mass'}): "
+            f"1 Å of arrow = {1 / scale:.0f} kcal/mol/Å")
