@@ -42,7 +42,8 @@ def _build_parser() -> argparse.ArgumentParser:
     p.add_argument("-o", "--output-dir", default="demo-output", help="folder for scan.nc and curve.png")
     _add_run_options(p, default_cache=None)
 
-    p = sub.add_parser("show", help="print the minimum position and well depth of every level")
+    p = sub.add_parser("show", help="print the minimum position and well depth of every level "
+                                    "(and the SAPT0 components, if computed)")
     p.add_argument("scan", help="netCDF scan file")
 
     sub.add_parser("systems", help="list the bundled demo dimers")
@@ -84,6 +85,9 @@ def _minimum_report(ds) -> str:
             note.append(f"{row['failed_points']} failed point(s)")
         lines.append(f"{row['level']:<28s} {row['r_min_angstrom']:>10.3f} "
                      f"{row['well_depth_kcal_per_mol']:>22.3f}  {'; '.join(note)}")
+    from .decomposition import decomposition_report
+
+    lines.extend(decomposition_report(ds))
     lines.append("Note: " + ds.attrs.get("caution", ""))
     return "\n".join(lines)
 

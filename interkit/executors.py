@@ -23,7 +23,12 @@ _THREAD_VARS = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
 def run_chunk(tasks, jobs: dict[str, Job], store_root: str | None = None,
               report: Callable[[str, dict], None] | None = None,
               cancel=None) -> list[tuple[str, dict]]:
-    """Run one chunk in this process; return ``[(key, record), ...]``."""
+    """Run one chunk in this process; return ``[(key, record), ...]``.
+
+    Jobs asking for ``'sapt0'`` go to :func:`interkit.engine.decomposition.run_decomposition_job`,
+    every other job to :func:`interkit.engine.energy.run_energy_job`.
+    """
+    from .engine.decomposition import run_decomposition_job
     from .engine.energy import run_energy_job
     from .store import ResultStore
 
@@ -34,7 +39,10 @@ def run_chunk(tasks, jobs: dict[str, Job], store_root: str | None = None,
         if cancel is not None and cancel.is_set():
             break
         job = jobs[key]
-        record, density = run_energy_job(job, guesses.get(role))
+        if "sapt0" in job.outputs:
+            record, density = run_decomposition_job(job), None
+        else:
+            record, density = run_energy_job(job, guesses.get(role))
         if density is not None:
             guesses[role] = density
         else:

@@ -41,6 +41,11 @@ ROLE_LABELS = {
 }
 #: step (angstrom) of central differences along the scan coordinate
 NUMERICAL_FORCE_STEP_ANGSTROM = 0.005
+#: role of the per-point SAPT0 decomposition job (outside the counterpoise table)
+DECOMPOSITION_ROLE = "sapt0"
+#: SCF energy threshold (hartree) of the monomer and dimer SCFs of a decomposition,
+#: unless the spec asks for a tighter one: the SAPT0 terms need well-converged orbitals
+DECOMPOSITION_CONV_TOL_HARTREE = 1e-10
 
 
 def force_method(level: LevelOfTheory) -> str:
@@ -76,7 +81,16 @@ class Job:
     conv_tol : float
         SCF energy threshold in hartree.
     outputs : tuple of str
-        What to compute: ``('energy',)`` or ``('energy', 'gradient')``.
+        What to compute: ``('energy',)``, ``('energy', 'gradient')`` or ``('sapt0',)``
+        (the SAPT0 terms of the two fragments, in the basis of every atom).
+    fragment_a : tuple of int
+        Atoms of fragment A (indices into ``symbols``) for jobs that need the split
+        (``'sapt0'``); empty otherwise.
+    fragment_charges : tuple of int
+        Net charges of fragments A and B for such jobs; empty otherwise.
+    memory_limit_mb : float
+        Largest tensor the calculation may build (MB); a resource limit that does not
+        change the numbers, so it is not part of :meth:`describe` or the key.
     """
 
     symbols: tuple[str, ...]
@@ -87,6 +101,9 @@ class Job:
     level: LevelOfTheory
     conv_tol: float
     outputs: tuple[str, ...] = ("energy",)
+    fragment_a: tuple[int, ...] = ()
+    fragment_charges: tuple[int, ...] = ()
+    memory_limit_mb: float = field(default=4000.0, compare=False)
     key: str = field(default="", compare=False)
 
     def __post_init__(self):
@@ -95,7 +112,7 @@ class Job:
 
     def describe(self) -> dict:
         """Complete plain-data description; its hash is the job's key."""
-        return {
+        out = {
             "symbols": list(self.symbols),
             "coordinates_angstrom": [list(c) for c in self.coordinates],
             "ghost": list(self.ghost),
@@ -105,6 +122,11 @@ class Job:
             "conv_tol": self.conv_tol,
             "outputs": list(self.outputs),
         }
+        # only jobs that split the atoms into fragments carry these (older keys unchanged)
+        if self.fragment_a:
+            out["fragment_a"] = list(self.fragment_a)
+            out["fragment_charges"] = list(self.fragment_charges)
+        return out
 
     @property
     def real_atoms(self) -> list[int]:
@@ -138,11 +160,15 @@ class ScanPlan:
         Unique jobs by key.
     table : dict
         ``table[(level_index, point_index)][role] -> key``.
+    decomposition : dict
+        ``decomposition[point_index] -> key`` of the point's SAPT0 job (independent
+        of the levels); empty without a decomposition.
     """
 
     spec: ScanSpec
     jobs: dict[str, Job]
     table: dict[tuple[int, int], dict[str, str]]
+    decomposition: dict[int, str] = field(default_factory=dict)
 
     @property
     def roles(self) -> tuple[str, ...]:
@@ -183,6 +209,12 @@ class ScanPlan:
                 level_chunks[0].insert(0, ("a_own_basis", self.table[(li, 0)]["a_own_basis"]))
                 level_chunks[-1].insert(0, ("b_own_basis", self.table[(li, 0)]["b_own_basis"]))
             chunks.extend(level_chunks)
+        if self.decomposition:
+            keys = [self.decomposition[pi] for pi in sorted(self.decomposition)]
+            n_sapt = min(len(keys), max(1, int(n_chunks)))
+            bounds = np.linspace(0, len(keys), n_sapt + 1).round().astype(int)
+            chunks.extend([[(DECOMPOSITION_ROLE, k) for k in keys[lo:hi]]
+                           for lo, hi in zip(bounds[:-1], bounds[1:])])
         seen: set[str] = set()
         out = []
         for tasks in chunks:
@@ -263,4 +295,34 @@ def plan_scan(spec: ScanSpec) -> ScanPlan:
                 jobs.setdefault(job.key, job)
                 entry[role] = job.key
             table[(li, point.index)] = entry
-    return ScanPlan(spec, jobs, table)
+    decomposition = {}
+    if spec.decomposition == "sapt0":
+        for point in spec.points:
+            job = decomposition_job(spec, point.dimer)
+            jobs.setdefault(job.key, job)
+            decomposition[point.index] = job.key
+    return ScanPlan(spec, jobs, table, decomposition)
+
+
+def decomposition_level(spec: ScanSpec) -> LevelOfTheory:
+    """The level of a SAPT0 job: Hartree–Fock (density-fitted) in the decomposition basis."""
+    return LevelOfTheory("hf", spec.decomposition_basis)
+
+
+def decomposition_job(spec: ScanSpec, geometry) -> Job:
+    """The SAPT0 job of one geometry: every atom real, the fragment split and charges
+    as data, Hartree–Fock in the dimer-centred decomposition basis."""
+    d0 = spec.dimer
+    return Job(
+        symbols=tuple(geometry.symbols),
+        coordinates=_rounded(geometry.coordinates),
+        ghost=(False,) * geometry.natoms,
+        charge=int(sum(d0.charges)),
+        spin=0,
+        level=decomposition_level(spec),
+        conv_tol=min(spec.conv_tol, DECOMPOSITION_CONV_TOL_HARTREE),
+        outputs=(DECOMPOSITION_ROLE,),
+        fragment_a=tuple(int(i) for i in d0.fragment_a),
+        fragment_charges=tuple(int(q) for q in d0.charges),
+        memory_limit_mb=spec.sapt_memory_limit_mb,
+    )

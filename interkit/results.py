@@ -21,7 +21,9 @@ factor                      distance                    1
 ==========================  ==========================  ===========
 
 Sign convention: interaction energies are negative when the dimer is bound. Every
-later variable (forces, components, dispersion corrections) is added to this layout.
+later variable (forces, components, dispersion corrections) is added to this layout:
+forces see :mod:`interkit.forces`, the SAPT0 components (dimension ``distance`` only)
+see :mod:`interkit.decomposition`.
 """
 
 from __future__ import annotations
@@ -139,6 +141,12 @@ def assemble(plan: ScanPlan, records: dict[str, dict], missing_reason: str = "no
         from .forces import force_variables
 
         extra_vars = force_variables(plan, records, converged)
+    decomposition_attrs = {}
+    if spec.decomposition:
+        from .decomposition import decomposition_variables
+
+        decomposition_vars, decomposition_attrs = decomposition_variables(plan, records)
+        extra_vars.update(decomposition_vars)
     coords = np.stack([p.dimer.coordinates for p in points])
     anchors = np.stack([np.stack(spec.coordinate.anchors(p.dimer)) for p in points])
     energy_attrs = {"units": "kcal/mol", "sign_convention": "negative = bound"}
@@ -189,6 +197,7 @@ def assemble(plan: ScanPlan, records: dict[str, dict], missing_reason: str = "no
             "codata": CODATA_EDITION,
             "created_utc": datetime.now(timezone.utc).isoformat(timespec="seconds"),
             "caution": CAUTION,
+            **decomposition_attrs,
             **_versions(),
         },
     )
@@ -222,6 +231,9 @@ def validate(ds: xr.Dataset) -> None:
     failed = ds["status"] == "failed"
     if bool((failed & ds["e_int_nocp"].notnull()).any()):
         raise InputError("dataset: a failed point carries a number in e_int_nocp")
+    from .decomposition import check_decomposition
+
+    check_decomposition(ds)
     try:
         json.loads(ds.attrs["spec_json"])
     except (KeyError, ValueError):

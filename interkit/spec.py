@@ -16,7 +16,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .coordinates import AtomPair, CentreOfMass, Frames, ScanCoordinate, Vector, coordinate_from_dict
-from .errors import InputError, NotAvailableError
+from .errors import InputError, NotAvailableError, ResourceError
 from .geometry import Dimer, covalent_radius_angstrom
 from .levels import LevelOfTheory, check_basis, parse_level
 
@@ -78,6 +78,13 @@ def check_contacts(dimer: Dimer, where: str) -> None:
                 )
 
 
+#: orbital basis of the SAPT0 decomposition unless the spec names another
+DEFAULT_DECOMPOSITION_BASIS = "jun-cc-pvdz"
+#: the decomposition is refused above this estimated size of its largest tensor (MB)
+DEFAULT_SAPT_MEMORY_LIMIT_MB = 8000.0
+DECOMPOSITIONS = ("sapt0",)
+
+
 #: CCSD(T) warning threshold in dimer basis functions. Measured here on one core
 #: (pyscf 2.14, frozen core): 48 functions 1.5 s, 82 functions 12.5 s, 100 functions
 #: 23 s per calculation; the cost grows roughly as N^6-N^7 beyond that, so 200
@@ -125,8 +132,18 @@ class ScanSpec:
         (with the dispersion correction's gradient) and MP2 (conventional), central
         differences along the coordinate for SCS-MP2 and CCSD(T); plus the
         Hellmann–Feynman (electrostatic) split for HF and DFT.
-    decomposition, dispersion :
-        Reserved for later releases; anything but the default raises NotAvailableError.
+    decomposition : {None, 'sapt0'}
+        ``'sapt0'`` adds a closed-shell density-fitted SAPT0 decomposition at every
+        point (one calculation per point, in the dimer-centred ``decomposition_basis``,
+        independent of ``levels``): electrostatics, exchange, induction (with δHF) and
+        dispersion. Open-shell fragments are refused.
+    decomposition_basis : str
+        Orbital basis of the decomposition (default ``'jun-cc-pvdz'``).
+    sapt_memory_limit_mb : float
+        Refuse the decomposition (ResourceError) if its largest tensor, estimated
+        before anything runs, would exceed this many MB.
+    dispersion :
+        Reserved for a later release; anything but the default raises NotAvailableError.
     conv_tol : float
         SCF energy convergence threshold in hartree.
     name : str
@@ -141,6 +158,8 @@ class ScanSpec:
     counterpoise: bool = True
     forces: bool = False
     decomposition: str | None = None
+    decomposition_basis: str = DEFAULT_DECOMPOSITION_BASIS
+    sapt_memory_limit_mb: float = DEFAULT_SAPT_MEMORY_LIMIT_MB
     dispersion: Sequence[str] | None = None
     conv_tol: float = DEFAULT_CONV_TOL_HARTREE
     name: str = ""
@@ -183,9 +202,7 @@ class ScanSpec:
                 raise InputError(f"{key}: {getattr(self, key)!r} is not true or false")
         if self.forces and not self.counterpoise:
             raise InputError("forces: forces are counterpoise-corrected; set counterpoise = true")
-        if self.decomposition not in (None, "none"):
-            raise NotAvailableError(f"decomposition: {self.decomposition!r} is not available yet")
-        object.__setattr__(self, "decomposition", None)
+        self._check_decomposition()
         if self.dispersion not in (None, "none") and list(self.dispersion) not in ([], ["none"]):
             raise NotAvailableError(
                 "dispersion: a dimension of post-hoc dispersion schemes is not available yet; "
@@ -201,6 +218,64 @@ class ScanSpec:
         object.__setattr__(self, "conv_tol", tol)
         object.__setattr__(self, "name", str(self.name or self.dimer.name))
         object.__setattr__(self, "_points", self._build_points())
+
+    def _check_decomposition(self) -> None:
+        """Validate the decomposition fields; estimate its size (no calculation runs)."""
+        kind = self.decomposition
+        if kind is not None and not isinstance(kind, str):
+            raise InputError(f"decomposition: {kind!r} is not one of 'none', {', '.join(map(repr, DECOMPOSITIONS))}")
+        kind = (kind or "none").strip().lower()
+        if kind not in ("none",) + DECOMPOSITIONS:
+            raise InputError(
+                f"decomposition: {self.decomposition!r} is not one of 'none', {', '.join(map(repr, DECOMPOSITIONS))}")
+        basis = self.decomposition_basis
+        if not isinstance(basis, str) or not basis.strip():
+            raise InputError(f"decomposition_basis: {basis!r} is not a basis-set name")
+        limit = self.sapt_memory_limit_mb
+        if isinstance(limit, bool) or not isinstance(limit, (int, float, np.integer, np.floating)) \
+                or not math.isfinite(float(limit)) or float(limit) <= 0:
+            raise InputError(f"sapt_memory_limit_mb: {limit!r} is not a positive number of MB")
+        object.__setattr__(self, "decomposition", None if kind == "none" else kind)
+        object.__setattr__(self, "decomposition_basis", basis.strip().lower())
+        object.__setattr__(self, "sapt_memory_limit_mb", float(limit))
+        object.__setattr__(self, "_decomposition_cost", None)
+        if kind == "none":
+            return
+        for label, mult in zip("AB", self.dimer.multiplicities):
+            if mult != 1:
+                raise NotAvailableError(
+                    f"decomposition: fragment {label} has multiplicity {mult}; "
+                    "the SAPT0 decomposition needs closed-shell fragments (multiplicity 1)")
+        import warnings
+
+        from .engine.molecule import ecp_for
+        from .engine.sapt0 import estimate_sapt0_cost
+
+        heavy = ecp_for(self.decomposition_basis, self.dimer.symbols)
+        if heavy:
+            raise NotAvailableError(
+                f"decomposition_basis: {self.decomposition_basis!r} needs effective core potentials for "
+                f"{', '.join(sorted(heavy))}; the SAPT0 decomposition is all-electron only")
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                cost = estimate_sapt0_cost(self.dimer, self.decomposition_basis)
+        except Exception as exc:  # pyscf raises several types for unknown basis sets
+            raise InputError(
+                f"decomposition_basis: {self.decomposition_basis!r} cannot be built for the elements "
+                f"{', '.join(sorted(set(self.dimer.symbols)))}") from exc
+        if cost["peak_memory_mb"] > self.sapt_memory_limit_mb:
+            raise ResourceError(
+                f"sapt_memory_limit_mb: the SAPT0 decomposition in {self.decomposition_basis} needs about "
+                f"{cost['peak_memory_mb']:.0f} MB ({cost['largest_tensor']} tensor), above the limit of "
+                f"{self.sapt_memory_limit_mb:g} MB")
+        object.__setattr__(self, "_decomposition_cost", cost)
+
+    @property
+    def decomposition_cost(self) -> dict | None:
+        """Size estimate of one SAPT0 calculation (see
+        :func:`interkit.engine.sapt0.estimate_sapt0_cost`), or None without decomposition."""
+        return self._decomposition_cost  # type: ignore[attr-defined]
 
     # ------------------------------------------------------------------ points
     def _build_points(self) -> tuple[ScanPoint, ...]:
@@ -258,6 +333,8 @@ class ScanSpec:
             "counterpoise": bool(self.counterpoise),
             "forces": bool(self.forces),
             "decomposition": self.decomposition,
+            "decomposition_basis": self.decomposition_basis,
+            "sapt_memory_limit_mb": self.sapt_memory_limit_mb,
             "dispersion": self.dispersion,
             "conv_tol": self.conv_tol,
         }
@@ -278,6 +355,8 @@ class ScanSpec:
             counterpoise=data.get("counterpoise", True),
             forces=data.get("forces", False),
             decomposition=data.get("decomposition"),
+            decomposition_basis=data.get("decomposition_basis", DEFAULT_DECOMPOSITION_BASIS),
+            sapt_memory_limit_mb=data.get("sapt_memory_limit_mb", DEFAULT_SAPT_MEMORY_LIMIT_MB),
             dispersion=data.get("dispersion"),
             conv_tol=data.get("conv_tol", DEFAULT_CONV_TOL_HARTREE),
             name=data.get("name", ""),
@@ -294,7 +373,8 @@ _TOML_KEYS = {
     "": {"name", "system", "scan", "calculation"},
     "system": {"geometry", "demo", "fragment_a", "charges", "multiplicities"},
     "scan": {"coordinate", "atoms", "vector", "distances", "factors", "frames", "values"},
-    "calculation": {"levels", "counterpoise", "forces", "decomposition", "dispersion", "conv_tol"},
+    "calculation": {"levels", "counterpoise", "forces", "decomposition", "decomposition_basis",
+                    "sapt_memory_limit_mb", "dispersion", "conv_tol"},
 }
 
 
@@ -360,6 +440,8 @@ def spec_from_mapping(data: dict, base_dir: str | os.PathLike = ".") -> ScanSpec
         counterpoise=calc.get("counterpoise", True),
         forces=calc.get("forces", False),
         decomposition=calc.get("decomposition"),
+        decomposition_basis=calc.get("decomposition_basis", DEFAULT_DECOMPOSITION_BASIS),
+        sapt_memory_limit_mb=calc.get("sapt_memory_limit_mb", DEFAULT_SAPT_MEMORY_LIMIT_MB),
         dispersion=calc.get("dispersion"),
         conv_tol=calc.get("conv_tol", DEFAULT_CONV_TOL_HARTREE),
         name=str(data.get("name", "")),
@@ -382,6 +464,9 @@ def load_spec_toml(path: str | os.PathLike) -> ScanSpec:
         [calculation]
         levels = ["hf/def2-svp"]
         counterpoise = true
+        decomposition = "sapt0"             # optional: SAPT0 components at every point
+        decomposition_basis = "jun-cc-pvdz" # optional
+        sapt_memory_limit_mb = 8000         # optional
     """
     path = os.fspath(path)
     if not os.path.isfile(path):

@@ -69,6 +69,18 @@ CASES = [
     ("missing table", WATER_HF, {"scan": None}, "table [scan] is missing"),
     ("forces without counterpoise", WATER_HF,
      {"calculation": 'levels = ["hf/sto-3g"]\nforces = true\ncounterpoise = false'}, "set counterpoise = true"),
+    ("unknown decomposition", WATER_HF, {"calculation": 'levels = ["hf/sto-3g"]\ndecomposition = "sapt2+"'},
+     "decomposition: 'sapt2+' is not one of"),
+    ("decomposition of an open-shell fragment", WATER_HF,
+     {"system": 'geometry = "g.xyz"\nmultiplicities = [1, 3]',
+      "calculation": 'levels = ["hf/sto-3g"]\ndecomposition = "sapt0"'},
+     "fragment B has multiplicity 3"),
+    ("decomposition above the memory limit", WATER_HF,
+     {"calculation": 'levels = ["hf/sto-3g"]\ndecomposition = "sapt0"\nsapt_memory_limit_mb = 0.01'},
+     "above the limit of 0.01 MB"),
+    ("unknown decomposition basis", WATER_HF,
+     {"calculation": 'levels = ["hf/sto-3g"]\ndecomposition = "sapt0"\ndecomposition_basis = "jun-nonsense"'},
+     "decomposition_basis: 'jun-nonsense'"),
     ("dispersion dimension not yet", WATER_HF, {"calculation": 'levels = ["hf/sto-3g"]\ndispersion = ["d3bj"]'},
      "not available yet"),
 ]
@@ -100,9 +112,12 @@ def test_invalid_toml(tmp_path, capsys):
 def test_api_errors_are_typed(small_dimer):
     with pytest.raises(ik.InputError, match="levels: no level"):
         ik.ScanSpec(dimer=small_dimer, coordinate=ik.AtomPair(1, 2), factors=[1.0], levels=[])
-    with pytest.raises(ik.NotAvailableError, match="decomposition"):
+    with pytest.raises(ik.InputError, match="decomposition: 'sapt9' is not one of"):
         ik.ScanSpec(dimer=small_dimer, coordinate=ik.AtomPair(1, 2), factors=[1.0], levels=["hf/sto-3g"],
-                    decomposition="sapt0")
+                    decomposition="sapt9")
+    with pytest.raises(ik.ResourceError, match="sapt_memory_limit_mb"):
+        ik.ScanSpec(dimer=small_dimer, coordinate=ik.AtomPair(1, 2), factors=[1.0], levels=["hf/sto-3g"],
+                    decomposition="sapt0", sapt_memory_limit_mb=0.001)
     spec = ik.ScanSpec(dimer=small_dimer, coordinate=ik.AtomPair(1, 2), factors=[1.0], levels=["hf/sto-3g"])
     with pytest.raises(ik.NotAvailableError, match="Dask"):
         ik.run_scan(spec, executor=object(), progress=False)

@@ -11,7 +11,7 @@ import nbformat
 import pytest
 
 NOTEBOOKS = Path(__file__).resolve().parent.parent / "notebooks"
-NAMES = ["01-quickstart.ipynb", "02-levels.ipynb", "03-reopen.ipynb"]
+NAMES = ["01-quickstart.ipynb", "02-levels.ipynb", "03-reopen.ipynb", "04-forces.ipynb", "05-decomposition.ipynb"]
 WIDGET_VIEW = "application/vnd.jupyter.widget-view+json"
 
 
@@ -82,6 +82,15 @@ def test_notebook_executes(name, tmp_path, monkeypatch, saved_scan):
         assert "calculations in" in text and _widget_views(nb) == 2    # explorer and launcher
     elif name == "02-levels.ipynb":
         assert text.count("lowest point") == 3 and _widget_views(nb) == 1
+    elif name == "04-forces.ipynb":
+        assert "analytic forces" in text and _widget_views(nb) == 1
+        line = next(x for x in text.splitlines() if x.startswith("energy minimum at"))
+        r_min, r_zero = (float(w) for w in line.replace("Å", "").replace(",", "").split() if w[0].isdigit())
+        assert abs(r_min - r_zero) < 0.05    # the force vanishes at the minimum
+    elif name == "05-decomposition.ipynb":
+        assert text.count("SAPT0/jun-cc-pvdz components at") == 2 and _widget_views(nb) == 1
+        assert "water_methanol: largest attractive component: electrostatics" in text
+        assert "methane_ethene: largest attractive component: dispersion" in text
     else:
         assert "found saved scan" in text and "nothing to compute" in text
         assert "computed and saved" not in text and _widget_views(nb) == 1

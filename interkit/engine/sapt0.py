@@ -31,6 +31,21 @@ mixed second derivative along the dispersion amplitudes plus the normalization t
 F_1 d_2 + F_2 d_1 (d = <Ψ0|A Ψ(ε)>/<Ψ0|A Ψ0>). The derivation is ours; see the module
 tests for the checks against independent quantities.
 
+Long-range behaviour of E(10)exch (measured on the S22 water dimer moved rigidly along
+the centre-of-mass axis). With aug-cc-pVDZ, E(10)exch and E(10)exch(S^2) change sign
+between 7 and 8 Å and stay negative: -5.6e-10, -1.5e-10, -1.8e-11 and -1.8e-13 hartree at
+8, 9, 10 and 12 Å. This is not a numerical floor and not a density-fitting error: the
+values agree within about 10 % with a much larger fitting basis (aug-cc-pV5Z-RI as the
+JK fit), with exact four-index integrals (eigen-decomposed ERI matrix instead of the
+fitted factors) and with a 100 times tighter SCF threshold, |E(10)exch| keeps falling
+exponentially, and the full and S^2 values agree to three digits. In the S^2 expression
+the negative part is the exchange-integral term, -2 K(X_A, X_B), which outlives the
+potential-weighted terms when the basis carries diffuse functions; with cc-pVDZ (no
+diffuse functions) E(10)exch(S^2) stays positive out to 12 Å. So the sign change is a
+property of SAPT0 in a finite Gaussian basis with diffuse functions; the values are
+reported as computed (no clipping). The only numerical floor seen is that of
+E(10)exch = E(10) - E(10)elst, about 1e-15 hartree.
+
 All energies are in hartree. The compute core prints nothing and writes no files.
 """
 

@@ -126,17 +126,45 @@ def level_colour(k: int) -> str:
     return LEVEL_COLOURS[k % len(LEVEL_COLOURS)]
 
 
-def component_figure(values: dict[str, float], unit: str, title: str) -> bytes:
-    """A small bar chart of energy components (PNG bytes)."""
-    fig = Figure(figsize=(3.6, 2.4), dpi=90, layout="constrained")
+#: colours of stacked component bars (labels not listed fall back to grey)
+COMPONENT_BAR_COLOURS = {"electrostatics": "#2b5d9e", "exchange": "#c2492d", "induction": "#3f8f5a",
+                         "dispersion": "#8a5fb0"}
+
+
+def component_figure(values: dict[str, float], unit: str, title: str, total: float | None = None) -> bytes:
+    """Stacked bars of energy components at one point (PNG bytes).
+
+    Attractive (negative) components stack downwards from zero, repulsive ones upwards,
+    in one column; a second column shows their sum (or ``total`` when given).
+    """
+    fig = Figure(figsize=(3.9, 2.7), dpi=90, layout="constrained")
     ax = fig.add_subplot()
-    names = list(values)
-    vals = [values[n] for n in names]
-    colours = ["#3d6fb6" if v < 0 else "#d08c1f" for v in vals]
-    ax.bar(names, vals, color=colours)
+    up = down = 0.0
+    finite = all(np.isfinite(v) for v in values.values())
+    for name, v in values.items():
+        if not np.isfinite(v):
+            continue
+        base = up if v >= 0 else down
+        ax.bar(0, v, bottom=base, width=0.55, color=COMPONENT_BAR_COLOURS.get(name, "#9a9a9a"),
+               edgecolor="white", lw=0.6, label=f"{name} {v:+.2f}")
+        if v >= 0:
+            up += v
+        else:
+            down += v
+    net = total if total is not None else (up + down if finite else float("nan"))
+    if np.isfinite(net):
+        ax.bar(1, net, width=0.55, color="#1f1f1f", label=f"total {net:+.2f}")
+    else:
+        ax.text(0.5, 0.5, "no decomposition at this point", transform=ax.transAxes, ha="center",
+                va="center", fontsize=8, color="#555555")
     ax.axhline(0.0, color="#777777", lw=0.8)
-    ax.set_ylabel(f"energy / {unit}")
-    ax.set_title(title, fontsize=9)
+    ax.set_xticks([0, 1], ["components", "total"], fontsize=8)
+    ax.set_xlim(-0.6, 2.9)
+    ax.set_ylabel(f"energy / {unit}", fontsize=8)
+    ax.tick_params(axis="y", labelsize=7)
+    ax.set_title(title, fontsize=8.5)
+    if ax.get_legend_handles_labels()[0]:
+        ax.legend(loc="center right", fontsize=6.5, frameon=False, handlelength=1.0)
     buf = io.BytesIO()
     fig.savefig(buf, format="png")
     return buf.getvalue()

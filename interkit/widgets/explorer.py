@@ -24,7 +24,8 @@ from .viewer3d import Molecule3D, scene_from_arrays
 
 ALL_LEVELS = "all levels"
 COMPONENTS = ("e_elst", "e_exch", "e_ind", "e_disp")
-COMPONENT_LABELS = {"e_elst": "elst", "e_exch": "exch", "e_ind": "ind", "e_disp": "disp"}
+COMPONENT_LABELS = {"e_elst": "electrostatics", "e_exch": "exchange", "e_ind": "induction",
+                    "e_disp": "dispersion"}
 #: force arrows: angstrom drawn per kcal/mol/angstrom
 ARROW_SCALE = 0.05
 
@@ -272,17 +273,28 @@ class ScanExplorer(widgets.VBox):
                               "negative = bound</div>")
 
     def _update_components(self) -> None:
-        """Slot for energy components: a bar chart when the Dataset has them."""
+        """Stacked bars of the energy components at the selected point, when the
+        Dataset has them (SAPT0: one set per point, shared by every level)."""
         ds = self.ds
         if not all(name in ds.variables for name in COMPONENTS):
             if self.components.children != (self._component_note,):
                 self.components.children = [self._component_note]
             return
         level = self._force_level()
-        values = {COMPONENT_LABELS[n]: float(convert_energy(float(ds[n].sel(level=level).values[self.index]),
-                                                            "kcal/mol", self.unit)) for n in COMPONENTS}
+        values, total = {}, None
+        for name in COMPONENTS + ("e_sapt0",):
+            if name not in ds.variables:
+                continue
+            var = ds[name].sel(level=level) if "level" in ds[name].dims else ds[name]
+            v = float(convert_energy(float(var.values[self.index]), "kcal/mol", self.unit))
+            if name == "e_sapt0":
+                total = v
+            else:
+                values[COMPONENT_LABELS[name]] = v
+        shared = "level" not in ds[COMPONENTS[0]].dims
+        where = (f"SAPT0/{ds.attrs.get('decomposition_basis', '?')}" if shared else level)
         self._component_image.value = component_figure(
-            values, self.unit, f"{level}, {self.distances[self.index]:.3f} Å")
+            values, self.unit, f"{where}, {self.distances[self.index]:.3f} Å", total=total)
         self.components.children = [self._component_image]
 
     # ------------------------------------------------------------------ exports
