@@ -85,11 +85,27 @@ def _minimum_report(ds) -> str:
             note.append(f"{row['failed_points']} failed point(s)")
         lines.append(f"{row['level']:<28s} {row['r_min_angstrom']:>10.3f} "
                      f"{row['well_depth_kcal_per_mol']:>22.3f}  {'; '.join(note)}")
+    lines.extend(_force_report(ds))
     from .decomposition import decomposition_report
 
     lines.extend(decomposition_report(ds))
     lines.append("Note: " + ds.attrs.get("caution", ""))
     return "\n".join(lines)
+
+
+def _force_report(ds) -> list[str]:
+    """Where the net force along the coordinate vanishes, per level (if the scan has forces)."""
+    if "force_along" not in ds.variables:
+        return []
+    from .analysis import force_zero_crossing
+
+    lines = [f"{'level':<28s} {'force zero / Å':>14s}  forces from"]
+    for level in ds["level"].values:
+        r0 = force_zero_crossing(ds["distance"].values, ds["force_along"].sel(level=level).values)
+        method = str(ds["force_method"].sel(level=level).values)
+        text = f"{r0:>14.3f}" if r0 == r0 else f"{'no sign change':>14s}"
+        lines.append(f"{str(level):<28s} {text}  {method}")
+    return lines
 
 
 def _run(spec, args):

@@ -6,6 +6,7 @@ import subprocess
 import sys
 
 import numpy as np
+import pytest
 
 import interkit as ik
 import interkit.analysis
@@ -68,3 +69,17 @@ def test_every_demo_system_loads_with_its_catalog_charges():
         assert list(d.charges) == entry["charges"] and list(d.multiplicities) == entry["multiplicities"]
         i, j = entry["contact"]
         ik.AtomPair(i, j).check(d)
+
+
+def test_show_reports_where_the_force_vanishes(tmp_path):
+    i, j = ik.demo.demo_catalog()["water_methanol"]["contact"]
+    spec = ik.ScanSpec(dimer=ik.load_demo("water_methanol"), coordinate=ik.AtomPair(i, j),
+                       factors=[0.9, 1.0, 1.1, 1.25, 1.5], levels=["hf/sto-3g"], forces=True)
+    ds = ik.run_scan(spec, progress=False)
+    ik.save_scan(ds, tmp_path / "f.nc")
+    out = _cli("show", str(tmp_path / "f.nc"))
+    assert out.returncode == 0
+    row = next(line for line in out.stdout.splitlines() if line.startswith("hf/sto-3g") and "analytic" in line)
+    r0 = float(row.split()[1])
+    assert r0 == pytest.approx(ik.analysis.force_zero_crossing(ds["distance"].values, ds["force_along"].values[0]))
+    assert abs(r0 - ik.analysis.find_minimum(ds["distance"].values, ds["e_int"].values[0]).r_min_angstrom) < 0.05

@@ -116,3 +116,17 @@ def test_cached_orbital_values_leave_dft_energies_unchanged(spin, functional):
         mf.conv_tol = 1e-11
         energies.append(mf.kernel())
     assert energies[1] == pytest.approx(energies[0], abs=1e-10)
+
+
+def test_ghosted_jobs_reuse_the_dimer_grid_without_changing_energies(small_dimer):
+    from interkit.engine import energy
+
+    level = ik.parse_level("b3lyp/def2-svp")
+    jobs = [_job_for(small_dimer, (0, 1), (2, 3), 0, 0, level, 1e-10),
+            _job_for(small_dimer, (0, 1, 2, 3), (), 0, 0, level, 1e-10)]
+    energy._GRID_CACHE.clear()
+    cold = [run_energy_job(j)[0]["energy_hartree"] for j in jobs[::-1]]  # dimer first: builds the grid
+    assert len(energy._GRID_CACHE) == 1
+    for j, e in zip(jobs[::-1], cold):
+        energy._GRID_CACHE.clear()
+        assert run_energy_job(j)[0]["energy_hartree"] == pytest.approx(e, abs=1e-10)

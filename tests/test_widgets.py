@@ -211,6 +211,13 @@ def test_launcher_builds_specs_from_the_form(launcher):
     assert isinstance(spec.coordinate, ik.CentreOfMass) and spec.distances == (2.8, 3.0, 3.5)
     for box in launcher.unavailable:
         assert box.disabled and box.tooltip == "not available yet"
+    launcher.forces.value = True
+    launcher.decomposition.value = True
+    spec = launcher.build_spec()
+    assert spec.forces and spec.decomposition == "sapt0"
+    # the estimate counts the plan's jobs exactly: 3 per point, 2 own-basis monomers, 1 SAPT0 per point
+    assert launcher.n_calculations() == 3 * 3 + 2 + 3
+    assert "SAPT0" in launcher.estimate.value
 
 
 def test_launcher_shows_input_errors_without_traceback(launcher):
@@ -271,3 +278,30 @@ def test_cancel_keeps_finished_points(launcher):
     assert np.isfinite(ds.e_int.values[0][ok]).all() and np.isnan(ds.e_int.values[0][~ok]).all()
     assert "cancelled" in launcher.progress_label.value
     assert launcher.progress.bar_style == "warning"
+
+
+def test_explorer_shows_forces_when_the_scan_has_them(tmp_path):
+    from interkit.widgets.forces_panel import FRAGMENT_ARROW_SCALE
+
+    i, j = ik.demo.demo_catalog()["water_methanol"]["contact"]
+    spec = ik.ScanSpec(dimer=ik.load_demo("water_methanol"), coordinate=ik.AtomPair(i, j),
+                       factors=[0.9, 1.1, 1.4], levels=["hf/sto-3g"], forces=True)
+    ds = ik.run_scan(spec, executor="serial", progress=False)
+    ex = W.ScanExplorer(ds)
+    assert ex.force_panel is not None and ex.force_panel.image in ex.children[1].children[1].children
+    ex.index = 2
+    x, y = ex.force_panel.marker_xy["hf/sto-3g"]
+    assert x == pytest.approx(ds["distance"].values[2])
+    assert y == pytest.approx(float(ds["force_along"].values[0, 2]))
+    scene = ex.scene(2)
+    assert len(scene["arrows"]) >= 1
+    ex.arrow_mode.value = "fragments"
+    arrows = ex.scene(2)["arrows"]
+    assert len(arrows) == 2
+    net_b = ds["fragment_force"].values[0, 2, 1]
+    start, end = (np.asarray(p) for p in arrows[1])
+    assert np.allclose(end - start, FRAGMENT_ARROW_SCALE * net_b, atol=2e-5)
+    assert "kcal/mol/Å" in ex.arrow_legend.value and "per fragment" in ex.arrow_legend.value
+    ex.arrow_mode.value = "off"
+    assert not ex.scene(2).get("arrows")
+    assert "force along" in ex.readout.value

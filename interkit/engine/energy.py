@@ -10,6 +10,7 @@ from __future__ import annotations
 import dataclasses
 import time
 import traceback
+from collections import OrderedDict
 
 import numpy as np
 from pyscf import cc, dft, mp, scf
@@ -23,6 +24,28 @@ from .numint_cache import CachingNumInt
 
 #: SCF iterations per rung of the convergence ladder
 MAX_SCF_CYCLES = 100
+
+
+#: DFT grids of the last few geometries (process-local): the dimer and both ghosted
+#: monomers of a point share one grid, since ghost atoms keep their grids
+_GRID_CACHE: OrderedDict = OrderedDict()
+_GRID_CACHE_SIZE = 2
+
+
+def _share_grids(mf, job: Job) -> None:
+    """Give a DFT calculation the already-built grid of the same atoms and positions."""
+    key = (job.symbols, job.coordinates, job.level.basis, mf.grids.level, mf.grids.prune)
+    cached = _GRID_CACHE.get(key)
+    if cached is None:
+        mf.grids.build(with_non0tab=True)
+        _GRID_CACHE[key] = mf.grids.copy()  # pruning later replaces arrays, never edits them
+        while len(_GRID_CACHE) > _GRID_CACHE_SIZE:
+            _GRID_CACHE.popitem(last=False)
+    else:
+        _GRID_CACHE.move_to_end(key)
+        grids = cached.copy()
+        grids.mol = mf.mol
+        mf.grids = grids
 
 
 def _make_scf(mol, level: LevelOfTheory, conv_tol: float):
@@ -158,6 +181,8 @@ def run_energy_job(job: Job, guess=None) -> tuple[dict, object]:
             # DF-MP2 has no analytic gradient in pyscf: conventional reference and MP2
             level = dataclasses.replace(level, density_fitting=False)
         mf = _make_scf(mol, level, job.conv_tol)
+        if level.method == "dft":
+            _share_grids(mf, job)
         if want_gradient and level.method == "dft":
             # the gradient's grid response differentiates the full grid: no density-based
             # pruning of grid points, or energy and gradient would not match

@@ -19,6 +19,7 @@ from ..results import open_scan, validate
 from ..units import convert_energy
 from .curves import CurvePanel, component_figure, level_colour
 from .exports import write_csv, write_netcdf
+from .forces_panel import ForcePanel, force_arrows, scale_legend
 from .style import DISPLAY_UNITS, FRAGMENT_COLOURS, SCAN_LINE_COLOUR, error_html, note_html
 from .viewer3d import Molecule3D, scene_from_arrays
 
@@ -26,8 +27,6 @@ ALL_LEVELS = "all levels"
 COMPONENTS = ("e_elst", "e_exch", "e_ind", "e_disp")
 COMPONENT_LABELS = {"e_elst": "electrostatics", "e_exch": "exchange", "e_ind": "induction",
                     "e_disp": "dispersion"}
-#: force arrows: angstrom drawn per kcal/mol/angstrom
-ARROW_SCALE = 0.05
 
 
 def _fmt(value: float, unit: str) -> str:
@@ -100,6 +99,12 @@ class ScanExplorer(widgets.VBox):
             widgets.link((self, name), (control, "value"))
         # ---------------------------------------------------------------- views
         self.curves = CurvePanel(ds)
+        self.has_forces = "forces" in ds.variables and "force_along" in ds.variables
+        self.arrow_mode = widgets.ToggleButtons(options=["atoms", "fragments", "off"], value="atoms",
+                                                description="arrows", style={"button_width": "80px"},
+                                                tooltip="force arrows in the 3D view")
+        self.arrow_legend = widgets.HTML()
+        self.force_panel = ForcePanel(ds, height=3.3) if self.has_forces else None
         self.view3d = Molecule3D(self.scenes(), frame=0)
         self.readout = widgets.HTML()
         self.readout.add_class("interkit-readout")
@@ -132,8 +137,15 @@ class ScanExplorer(widgets.VBox):
                   f'<span style="color:{FRAGMENT_COLOURS["B"]}">■ fragment B</span> &nbsp; '
                   f'<span style="color:{SCAN_LINE_COLOUR}">┄ {html.escape(self._coordinate_name())}</span>')
         header = widgets.HTML(self._header_html())
-        left = widgets.VBox([self.view3d, widgets.HTML(f'<div style="font-size:90%">{legend}</div>')])
-        right = widgets.VBox([self.curves.image, self.components])
+        left_parts = [self.view3d, widgets.HTML(f'<div style="font-size:90%">{legend}</div>')]
+        right_parts = [self.curves.image]
+        if self.has_forces:
+            self.arrow_mode.observe(self._on_arrow_mode, names="value")
+            self.arrow_legend.value = f'<div style="font-size:85%;color:#444">{scale_legend("atoms")}</div>'
+            left_parts += [self.arrow_mode, self.arrow_legend]
+            right_parts.append(self.force_panel.image)   # force slot: net force on B along the scan
+        right = widgets.VBox(right_parts + [self.components])
+        left = widgets.VBox(left_parts)
         controls = widgets.VBox([
             widgets.HBox([self.slider, self.point_label]),
             widgets.HBox([self.level_select, self.uncorrected_box, self.bsse_box]),
@@ -207,16 +219,8 @@ class ScanExplorer(widgets.VBox):
         coords = ds["coordinates"].values[index]
         anchors = ds["anchors"].values[index] if "anchors" in ds.variables else None
         arrows = None
-        if "forces" in ds.variables and {"atom", "xyz"} <= set(ds["forces"].dims):
-            f = ds["forces"]
-            if "level" in f.dims:
-                f = f.sel(level=self._force_level())
-            if "distance" in f.dims:
-                f = f.isel(distance=index)
-            vec = np.asarray(f.transpose("atom", "xyz").values, dtype=float)
-            if np.all(np.isfinite(vec)):
-                arrows = [(coords[a], coords[a] + ARROW_SCALE * vec[a]) for a in range(len(coords))
-                          if np.linalg.norm(vec[a]) > 1e-3]
+        if getattr(self, "has_forces", False):
+            arrows = force_arrows(ds, self._force_level(), index, self.arrow_mode.value)
         label = f"{self.distances[index]:.3f} Å"
         return scene_from_arrays(ds["symbol"].values, ds["fragment"].values, coords, anchors, arrows, label)
 
@@ -228,6 +232,8 @@ class ScanExplorer(widgets.VBox):
         self.view3d.show_frame(self.index)      # first: the page draws while the kernel goes on
         self._update_point()
         self.curves.move_marker(self.index)
+        if self.force_panel is not None:
+            self.force_panel.move_marker(self.index)
         self._update_components()
 
     @traitlets.observe("level", "unit", "show_uncorrected", "show_bsse")
@@ -244,6 +250,12 @@ class ScanExplorer(widgets.VBox):
 
     def _redraw_curves(self) -> None:
         self.curves.redraw(self.shown_levels, self.unit, self.show_uncorrected, self.show_bsse, self.index)
+        if self.force_panel is not None:
+            self.force_panel.redraw(self.shown_levels, self.unit, False, False, self.index)
+
+    def _on_arrow_mode(self, change) -> None:
+        self.arrow_legend.value = f'<div style="font-size:85%;color:#444">{scale_legend(change["new"])}</div>'
+        self.view3d.set_frames(self.scenes(), self.index)
 
     def _update_point(self) -> None:
         i, ds = self.index, self.ds

@@ -155,9 +155,14 @@ class ScanLauncher(widgets.VBox):
         self.counterpoise = widgets.Checkbox(value=True, description="counterpoise correction", indent=False)
         ncpu = os.cpu_count() or 1
         self.workers = widgets.IntSlider(value=ncpu, min=1, max=max(ncpu, 1), description="workers")
+        self.forces = widgets.Checkbox(value=False, description="forces", indent=False,
+                                       tooltip="counterpoise-corrected forces and their electrostatic part")
+        self.decomposition = widgets.Checkbox(value=False, description="SAPT0 decomposition", indent=False,
+                                              tooltip="electrostatics, exchange, induction, dispersion "
+                                                      "(closed-shell fragments, jun-cc-pVDZ)")
         self.unavailable = [widgets.Checkbox(value=False, description=d, disabled=True, indent=False,
                                              tooltip=NOT_AVAILABLE)
-                            for d in ("forces", "energy decomposition", "dispersion schemes")]
+                            for d in ("dispersion schemes",)]
         self.cache = widgets.Text(value=os.fspath(cache) if cache else "", description="store",
                                   placeholder="optional folder that keeps finished calculations",
                                   layout=lay(width="440px"))
@@ -193,7 +198,8 @@ class ScanLauncher(widgets.VBox):
             w.observe(lambda _c: self._refresh_preview(), "value")
         self.coordinate.observe(self._on_coordinate, "value")
         self.grid_mode.observe(self._on_grid_mode, "value")
-        for w in (self.grid, self.levels, self.counterpoise, self.workers, self.seconds_per_calc):
+        for w in (self.grid, self.levels, self.counterpoise, self.workers, self.seconds_per_calc, self.forces,
+                  self.decomposition):
             w.observe(lambda _c: self.update_estimate(), "value")
         self.levels.observe(lambda _c: self._guess_seconds(), "value")
         self.run_button.on_click(lambda _b: self.run())
@@ -208,7 +214,7 @@ class ScanLauncher(widgets.VBox):
             h("<b>2 · Scan coordinate and grid</b>"), self.coordinate, widgets.HBox([self.atom_a, self.atom_b]),
             self.grid_mode, self.grid,
             h("<b>3 · Calculation</b>"), self.levels, self.counterpoise, self.workers,
-            widgets.HBox(self.unavailable), self.cache,
+            widgets.HBox([self.forces, self.decomposition, *self.unavailable]), self.cache,
             widgets.HBox([self.seconds_per_calc, self.estimate]),
         ], layout=lay(width="470px"))
         super().__init__(children=[
@@ -356,11 +362,17 @@ class ScanLauncher(widgets.VBox):
             self.seconds_per_calc.value = rough_seconds_per_calculation(self.dimer.natoms, self._level_list())
 
     def n_calculations(self) -> int:
-        """Calculations the form's scan needs (levels × points × 3 + 2 per level with counterpoise)."""
+        """Calculations the form's scan needs: levels × points × 3 + 2 per level with
+        counterpoise, plus one SAPT0 job per point and displaced points for numerical
+        forces (counted exactly from the plan when the form describes a valid scan)."""
         n_points = len(parse_grid(self.grid.value, self.grid_mode.value.split()[0]))
         n_levels = len(self._level_list())
         if not n_levels:
             raise InputError("levels: no level of theory given")
+        if self.dimer is not None and (self.forces.value or self.decomposition.value):
+            from ..plan import plan_scan
+
+            return len(plan_scan(self.build_spec()).jobs)
         return count_calculations(n_levels, n_points, bool(self.counterpoise.value))
 
     def update_estimate(self) -> None:
@@ -374,8 +386,16 @@ class ScanLauncher(widgets.VBox):
         n_levels = len(self._level_list())
         per = 3 if self.counterpoise.value else 1
         wall = n * self.seconds_per_calc.value / max(1, self.workers.value)
+        extras = []
+        if self.forces.value:
+            wall *= 1.6  # analytic gradients: about 1.5x an energy scan for DFT (benchmarks/forces_cost.py)
+            extras.append("with gradients")
+        if self.decomposition.value:
+            extras.append(f"{n_points} of them SAPT0")
+        detail = f" ({', '.join(extras)})" if extras else ""
         self.estimate.value = (
-            f'<div><b>{n}</b> calculations = {n_levels} level(s) × {n_points} points × {per} + 2 per level'
+            f'<div><b>{n}</b> calculations{detail} = {n_levels} level(s) × {n_points} points × {per} '
+            "+ 2 per level"
             f"<br>about {_duration(wall)} with {self.workers.value} worker(s) "
             f"(rough: {self.seconds_per_calc.value:g} s per calculation)</div>")
 
@@ -386,7 +406,9 @@ class ScanLauncher(widgets.VBox):
         grid = parse_grid(self.grid.value, self.grid_mode.value.split()[0])
         kwargs = {"factors": grid} if self.grid_mode.value == GRID_MODES[0] else {"distances": grid}
         return ScanSpec(dimer=self.dimer, coordinate=self.scan_coordinate(), levels=self._level_list(),
-                        counterpoise=bool(self.counterpoise.value), name=self.dimer.name, **kwargs)
+                        counterpoise=bool(self.counterpoise.value), forces=bool(self.forces.value),
+                        decomposition="sapt0" if self.decomposition.value else None,
+                        name=self.dimer.name, **kwargs)
 
     # ------------------------------------------------------------------ running
     @_shows_errors
