@@ -15,6 +15,8 @@ from collections.abc import Callable
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from contextlib import contextmanager
 
+import numpy as np
+
 from .plan import Job
 
 _THREAD_VARS = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
@@ -33,7 +35,7 @@ def run_chunk(tasks, jobs: dict[str, Job], store_root: str | None = None,
     from .store import ResultStore
 
     store = ResultStore(store_root) if store_root else None
-    guesses: dict[str, object] = {}
+    history: dict[str, list] = {}
     out = []
     for role, key in tasks:
         if cancel is not None and cancel.is_set():
@@ -42,11 +44,11 @@ def run_chunk(tasks, jobs: dict[str, Job], store_root: str | None = None,
         if "sapt0" in job.outputs:
             record, density = run_decomposition_job(job), None
         else:
-            record, density = run_energy_job(job, guesses.get(role))
+            record, density = run_energy_job(job, extrapolated_guess(history.get(role, []), job))
         if density is not None:
-            guesses[role] = density
+            history[role] = (history.get(role, []) + [(np.asarray(job.coordinates), density)])[-2:]
         else:
-            guesses.pop(role, None)
+            history.pop(role, None)
         record["role"] = role
         if store is not None and record["status"] != "failed":
             store.put(key, record, job.describe())
@@ -54,6 +56,35 @@ def run_chunk(tasks, jobs: dict[str, Job], store_root: str | None = None,
         if report is not None:
             report(key, record)
     return out
+
+
+def extrapolated_guess(previous: list, job: Job):
+    """Initial density for ``job`` from the same role at the previous points.
+
+    With two previous points on a straight path (a rigid scan), the density is
+    extrapolated linearly along the displacement; otherwise the last density is used.
+    Only the starting point of the SCF changes, never its converged result.
+    """
+    if not previous:
+        return None
+    coords = np.asarray(job.coordinates)
+    c1, d1 = previous[-1]
+    if len(previous) < 2 or np.shape(c1) != coords.shape:
+        return d1
+    c0, d0 = previous[-2]
+    if np.shape(d0) != np.shape(d1):
+        return d1
+    step_prev, step = (c1 - c0).ravel(), (coords - c1).ravel()
+    norm_prev = float(np.linalg.norm(step_prev))
+    if norm_prev < 1e-12:
+        return d1
+    cosine = float(step_prev @ step) / (norm_prev * max(float(np.linalg.norm(step)), 1e-300))
+    if cosine < 0.999:
+        return d1
+    t = float(np.linalg.norm(step)) / norm_prev
+    if t > 2.0:  # far ahead: extrapolation would overshoot
+        return d1
+    return d1 + t * (d1 - d0)
 
 
 def _init_worker(threads: int) -> None:

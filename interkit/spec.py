@@ -25,7 +25,7 @@ from .levels import LevelOfTheory, check_basis, parse_level
 SAFE_CONTACT_FRACTION = 0.75
 SAFE_CONTACT_FLOOR_ANGSTROM = 0.5
 #: SCF energy convergence threshold in hartree
-DEFAULT_CONV_TOL_HARTREE = 1e-9
+DEFAULT_CONV_TOL_HARTREE = 1e-8
 
 
 @dataclass(frozen=True)
@@ -145,7 +145,9 @@ class ScanSpec:
     dispersion :
         Reserved for a later release; anything but the default raises NotAvailableError.
     conv_tol : float
-        SCF energy convergence threshold in hartree.
+        SCF energy convergence threshold in hartree (default 1e-8: the error of an
+        interaction energy is second order in the density error, below 1e-5 kcal/mol).
+        Calculations with gradients converge to at least 1e-10.
     name : str
         Label of the scan.
     """

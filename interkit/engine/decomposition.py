@@ -83,7 +83,7 @@ def run_decomposition_job(job: Job) -> dict:
     try:
         dimer = job_dimer(job)
         terms = sapt0_terms(dimer, job.level.basis, max_memory_mb=float(job.memory_limit_mb),
-                            conv_tol=float(job.conv_tol), scaled=True)
+                            conv_tol=min(float(job.conv_tol), 1e-10), scaled=True)  # CPHF needs tight SCF
         missing = [k for k in TERM_KEYS + SCALED_KEYS if k not in terms]
         if missing:
             raise RuntimeError(f"terms missing from the SAPT0 result: {', '.join(missing)}")

@@ -22,6 +22,8 @@ from .dispersion import dispersion_energy_and_gradient
 from .molecule import build_molecule
 from .numint_cache import CachingNumInt
 
+#: SCF energy threshold (hartree) at least applied to calculations with gradients
+GRADIENT_CONV_TOL_HARTREE = 1e-10
 #: SCF iterations per rung of the convergence ladder
 MAX_SCF_CYCLES = 100
 
@@ -180,7 +182,10 @@ def run_energy_job(job: Job, guess=None) -> tuple[dict, object]:
         if want_gradient and level.method == "mp2":
             # DF-MP2 has no analytic gradient in pyscf: conventional reference and MP2
             level = dataclasses.replace(level, density_fitting=False)
-        mf = _make_scf(mol, level, job.conv_tol)
+        # forces are first order in the density error, energies second order: gradient
+        # jobs converge at least to GRADIENT_CONV_TOL_HARTREE
+        conv_tol = min(job.conv_tol, GRADIENT_CONV_TOL_HARTREE) if want_gradient else job.conv_tol
+        mf = _make_scf(mol, level, conv_tol)
         if level.method == "dft":
             _share_grids(mf, job)
         if want_gradient and level.method == "dft":
