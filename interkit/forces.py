@@ -71,6 +71,9 @@ def force_variables(plan: ScanPlan, records: dict, converged: np.ndarray) -> dic
     es_along = np.einsum("lpx,px->lp", f_es[:, :, frag["B"]].sum(axis=2), direction)
     pulay_along = np.einsum("lpx,px->lp", pulay[:, :, frag["B"]].sum(axis=2), direction)
     net = np.stack([forces[:, :, frag[e]].sum(axis=2) for e in ("A", "B")], axis=2)
+    # electrostatic forces of an approximate density need not sum to zero: keep both fragments
+    net_es = np.stack([f_es[:, :, frag[e]].sum(axis=2) for e in ("A", "B")], axis=2)
+    net_pulay = np.stack([pulay[:, :, frag[e]].sum(axis=2) for e in ("A", "B")], axis=2)
     torque = np.full((nl, npnt, 2, 3), np.nan)
     masses = spec.dimer.masses()
     for pi, point in enumerate(spec.points):
@@ -92,6 +95,10 @@ def force_variables(plan: ScanPlan, records: dict, converged: np.ndarray) -> dic
                               dict(FORCE_ATTRS, long_name="Pulay force on B along the coordinate")),
         "fragment_force": (("level", "distance", "end", "xyz"), net,
                            dict(FORCE_ATTRS, long_name="net force on each fragment")),
+        "fragment_force_hf": (("level", "distance", "end", "xyz"), net_es,
+                              dict(FORCE_ATTRS, long_name="net electrostatic (Hellmann-Feynman) force on each fragment")),
+        "fragment_force_pulay": (("level", "distance", "end", "xyz"), net_pulay,
+                                 dict(FORCE_ATTRS, long_name="net Pulay force on each fragment")),
         "fragment_torque": (("level", "distance", "end", "xyz"), torque,
                             {"units": "kcal/mol", "long_name": "torque on each fragment about its centre of mass"}),
         "force_direction": (("distance", "xyz"), direction,

@@ -182,6 +182,10 @@ def test_force_variables_roundtrip_and_units(tmp_path):
     for name in ("forces", "force_hf", "force_pulay", "force_along", "fragment_force"):
         assert ds[name].attrs["units"] == "kcal/mol/angstrom"
     np.testing.assert_allclose(ds["force_hf"] + ds["force_pulay"], ds["forces"], atol=1e-10)
+    # per-fragment sums of the split, projected on the coordinate, match the B values
+    along_b = np.einsum("lpx,px->lp", ds["fragment_force_hf"].values[:, :, 1], ds["force_direction"].values)
+    np.testing.assert_allclose(along_b, ds["force_hf_along"].values, atol=1e-10)
+    np.testing.assert_allclose(ds["fragment_force_hf"] + ds["fragment_force_pulay"], ds["fragment_force"], atol=1e-10)
     ik.save_scan(ds, tmp_path / "f.nc")
     back = ik.open_scan(tmp_path / "f.nc")
     import xarray as xr
