@@ -17,7 +17,7 @@ $(STAMP): pyproject.toml
 
 ## offline 3D views: 3Dmol.js from the npm registry (version py3Dmol expects); git-ignored
 $(JS3DMOL): $(STAMP)
-	$(PY) -m interkit.widgets.fetch_3dmol
+	$(PY) -m interkit.widgets.fetch_3dmol || echo "warning: 3Dmol.js not fetched (needs npm); 3D views will say so until it is"
 
 ## run the bundled demo scan (water-methanol, HF and B3LYP-D3(BJ)/def2-SVP); writes demo-output/
 demo: install
