@@ -20,7 +20,7 @@ class NotAvailableError(InterkitError, NotImplementedError):
 
 
 class ConvergenceError(InterkitError, RuntimeError):
-    """An electronic-structure calculation did not converge."""
+    """An electronic-structure calculation or a curve fit did not converge."""
 
 
 class ResourceError(InterkitError, RuntimeError):
