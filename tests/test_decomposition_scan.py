@@ -285,3 +285,16 @@ def test_decomposition_engine_keeps_the_core_layer_contract(module):
     from test_units_and_layers import test_compute_core_layer_contract
 
     test_compute_core_layer_contract(module)
+
+
+def test_csv_export_carries_the_components(water_scan, tmp_path):
+    import csv
+
+    from interkit.widgets.exports import write_csv
+
+    path = write_csv(water_scan, tmp_path / "components.csv", unit="kJ/mol")
+    with open(path, newline="", encoding="utf-8") as fh:
+        rows = list(csv.DictReader(fh))
+    assert len(rows) == water_scan.sizes["level"] * water_scan.sizes["distance"]
+    expected = float(water_scan["e_elst"].values[1]) * 4.184  # kcal -> kJ (thermochemical calorie)
+    assert float(rows[1]["e_elst [kJ/mol]"]) == pytest.approx(expected, rel=1e-7)

@@ -30,8 +30,9 @@ def write_csv(ds: xr.Dataset, path: str | os.PathLike, unit: str = "kcal/mol") -
     folder = os.path.dirname(os.path.abspath(path))
     if not os.path.isdir(folder):
         raise InputError(f"export: folder {folder!r} does not exist")
-    extra = [name for name in ("force_along", "e_elst", "e_exch", "e_ind", "e_disp")
-             if name in ds.variables and ds[name].dims == ("level", "distance")]
+    # per-level curves, or per-point values shared by every level (SAPT0 components)
+    extra = [name for name in ("force_along", "e_elst", "e_exch", "e_ind", "e_disp", "e_sapt0")
+             if name in ds.variables and ds[name].dims in (("level", "distance"), ("distance",))]
     header = ["level", "distance [angstrom]", "factor [1]"]
     header += [f"{name} [{unit}]" for name in CSV_ENERGIES]
     for name in extra:
@@ -47,7 +48,7 @@ def write_csv(ds: xr.Dataset, path: str | os.PathLike, unit: str = "kcal/mol") -
             sub = ds.sel(level=level)
             cols = [convert_energy(sub[name].values, "kcal/mol", unit) for name in CSV_ENERGIES]
             for name in extra:
-                vals = sub[name].values
+                vals = sub[name].values if "level" in ds[name].dims else ds[name].values
                 cols.append(vals if name == "force_along" else convert_energy(vals, "kcal/mol", unit))
             status = sub["status"].values
             for i in range(r.size):
