@@ -130,3 +130,13 @@ def test_ghosted_jobs_reuse_the_dimer_grid_without_changing_energies(small_dimer
     for j, e in zip(jobs[::-1], cold):
         energy._GRID_CACHE.clear()
         assert run_energy_job(j)[0]["energy_hartree"] == pytest.approx(e, abs=1e-10)
+    # and against plain pyscf (no shared grid, no cached orbital values, no pruning)
+    from pyscf.dft import numint
+
+    from interkit.engine.molecule import build_molecule
+
+    mf = dft.RKS(build_molecule(jobs[0]), xc="b3lyp").density_fit()
+    mf._numint = numint.NumInt()
+    mf.small_rho_cutoff = 0.0
+    mf.conv_tol = 1e-10
+    assert mf.kernel() == pytest.approx(cold[1], abs=1e-9)

@@ -187,11 +187,11 @@ def run_energy_job(job: Job, guess=None) -> tuple[dict, object]:
         conv_tol = min(job.conv_tol, GRADIENT_CONV_TOL_HARTREE) if want_gradient else job.conv_tol
         mf = _make_scf(mol, level, conv_tol)
         if level.method == "dft":
-            _share_grids(mf, job)
-        if want_gradient and level.method == "dft":
-            # the gradient's grid response differentiates the full grid: no density-based
-            # pruning of grid points, or energy and gradient would not match
+            # no density-based pruning of grid points: the dimer and both ghosted monomers
+            # of a point then share one grid and its orbital values, and the gradient's
+            # grid response differentiates exactly the grid the energy used
             mf.small_rho_cutoff = 0.0
+            _share_grids(mf, job)
         status, detail = converge_scf(mf, guess)
         record["scf_cycles"] = int(getattr(mf, "cycles", 0) or 0)
         record["status"], record["detail"] = status, detail

@@ -76,9 +76,8 @@ def _ghost_aware_grids(mf):
 def scf_gradient(mf, level: LevelOfTheory) -> np.ndarray:
     """Analytic gradient (hartree/bohr) of a converged HF or DFT calculation, with exact
     grid response for DFT."""
-    if getattr(getattr(mf, "_numint", None), "_ao_cache", None) is not None:
-        mf._numint._ao_cache = None  # the gradient uses other grids; free the cache
-        mf._numint.max_cache_mb = 0
+    if hasattr(getattr(mf, "_numint", None), "max_cache_mb"):
+        mf._numint.max_cache_mb = 0  # the gradient uses other grids: no caching there
     g = mf.nuc_grad_method()
     g.verbose = 0
     if level.method == "dft":

@@ -12,16 +12,15 @@ calculation, so a worker running a scan touches fresh memory only once.
 
 from __future__ import annotations
 
-import weakref
-
 import numpy as np
 from pyscf.dft import numint
 
 #: per-calculation memory budget for cached orbital values, MB
 DEFAULT_CACHE_MB = 1200
 
-# process-wide pool of aligned buffers and the instance whose cache currently uses them
-_POOL: dict = {"owner": None, "buffers": []}
+# process-wide pool of aligned buffers and the one cache that currently uses them:
+# (grid coordinates array, block signature, basis fingerprint, blocks)
+_POOL: dict = {"cache": None, "buffers": []}
 
 
 def _pool_buffer(index: int, size: int) -> np.ndarray:
@@ -48,41 +47,58 @@ def _pooled_copy(ao: np.ndarray, index: int) -> np.ndarray | None:
 
 
 def release_pool() -> None:
-    """Free the process-wide buffers (and invalidate any cache using them)."""
-    owner = _POOL["owner"]() if _POOL["owner"] is not None else None
-    if owner is not None:
-        owner._ao_cache = None
-    _POOL["owner"] = None
+    """Free the process-wide buffers and the cache using them."""
+    _POOL["cache"] = None
     _POOL["buffers"] = []
 
 
+def _basis_fingerprint(mol) -> bytes:
+    """Identity of the basis functions: per shell its centre, angular momentum, exponents
+    and contraction coefficients (the same for a ghost atom and a real one)."""
+    import hashlib
+
+    h = hashlib.sha256()
+    h.update(f"{mol.nao} {mol.cart}".encode())
+    for i in range(mol.nbas):
+        h.update(np.asarray(mol.atom_coord(mol.bas_atom(i))).tobytes())
+        h.update(np.int64(mol.bas_angular(i)).tobytes())
+        h.update(np.asarray(mol.bas_exp(i)).tobytes())
+        h.update(np.asarray(mol.bas_ctr_coeff(i)).tobytes())
+    return h.digest()
+
+
 class CachingNumInt(numint.NumInt):
-    """NumInt whose ``block_loop`` replays stored AO blocks for the same grid and mol."""
+    """NumInt whose ``block_loop`` replays stored AO blocks for the same grid and basis.
+
+    The stored blocks are shared by every calculation in the process that uses the same
+    grid object and the same basis functions: the dimer and both ghosted monomers of a
+    scan point (ghost atoms keep their basis functions and grids).
+    """
 
     def __init__(self, max_cache_mb: float = DEFAULT_CACHE_MB):
         super().__init__()
         self.max_cache_mb = max_cache_mb
-        self._ao_cache = None
 
-    def _claim_pool(self) -> None:
-        owner = _POOL["owner"]() if _POOL["owner"] is not None else None
-        if owner is not None and owner is not self:
-            owner._ao_cache = None  # its blocks are about to be overwritten
-        _POOL["owner"] = weakref.ref(self)
+    @property
+    def _ao_cache(self):
+        return _POOL.get("cache")
+
+    @_ao_cache.setter
+    def _ao_cache(self, value) -> None:
+        _POOL["cache"] = value
 
     def block_loop(self, mol, grids, nao=None, deriv=0, max_memory=2000, non0tab=None, blksize=None,
                    buf=None):
         coords = grids.coords
         signature = (deriv, nao, blksize, non0tab is None)
-        cached = self._ao_cache
-        if cached is not None and coords is not None and cached[0] is mol and cached[1] is coords \
-                and cached[2] == signature:
+        cached = _POOL.get("cache")
+        if (self.max_cache_mb > 0 and cached is not None and coords is not None and cached[0] is coords
+                and cached[1] == signature and cached[2] == _basis_fingerprint(mol)):
             yield from cached[3]
             return
         blocks: list | None = [] if self.max_cache_mb > 0 else None
         if blocks is not None:
-            self._ao_cache = None
-            self._claim_pool()
+            _POOL["cache"] = None  # its buffers are about to be overwritten
         size = 0.0
         limit = self.max_cache_mb * 1e6
         for ao, mask, weight, pts in super().block_loop(mol, grids, nao, deriv, max_memory, non0tab,
@@ -95,5 +111,5 @@ class CachingNumInt(numint.NumInt):
                 else:
                     blocks.append((copy, mask, weight, pts))
             yield ao, mask, weight, pts
-        if blocks is not None and grids.coords is not None:
-            self._ao_cache = (mol, grids.coords, signature, blocks)
+        if blocks is not None and grids.coords is coords and coords is not None:
+            _POOL["cache"] = (coords, signature, _basis_fingerprint(mol), blocks)
