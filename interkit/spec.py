@@ -147,7 +147,7 @@ class ScanSpec:
     conv_tol : float
         SCF energy convergence threshold in hartree (default 1e-8: the error of an
         interaction energy is second order in the density error, below 1e-5 kcal/mol).
-        Calculations with gradients converge to at least 1e-10.
+        Calculations with gradients converge to at least 1e-9, SAPT0 to 1e-10.
     name : str
         Label of the scan.
     """

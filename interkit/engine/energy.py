@@ -23,7 +23,7 @@ from .molecule import build_molecule
 from .numint_cache import CachingNumInt
 
 #: SCF energy threshold (hartree) at least applied to calculations with gradients
-GRADIENT_CONV_TOL_HARTREE = 1e-10
+GRADIENT_CONV_TOL_HARTREE = 1e-9
 #: SCF iterations per rung of the convergence ladder
 MAX_SCF_CYCLES = 100
 
