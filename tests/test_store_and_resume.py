@@ -67,10 +67,8 @@ def test_killed_scan_resumes_computing_only_what_is_missing(tmp_path, small_dime
     fresh = ik.run_scan(spec, cache=None, progress=False)
     _compare(resumed, fresh)
     # a finished spec reruns from the store alone
-    t0 = time.perf_counter()
     again = ik.run_scan(spec, cache=store, progress=False)
-    assert again.attrs["calculations_computed"] == 0
-    assert time.perf_counter() - t0 < 10
+    assert again.attrs["calculations_computed"] == 0  # (its time is measured in benchmarks/)
     _compare(again, resumed, atol=0)
 
 
