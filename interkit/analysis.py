@@ -41,6 +41,15 @@ class CurveMinimum:
         return asdict(self)
 
 
+def finite_sorted(distance, values) -> tuple[np.ndarray, np.ndarray]:
+    """The points of a curve where both coordinates are finite, by increasing distance."""
+    r = np.asarray(distance, dtype=float)
+    v = np.asarray(values, dtype=float)
+    ok = np.isfinite(r) & np.isfinite(v)
+    order = np.argsort(r[ok])
+    return r[ok][order], v[ok][order]
+
+
 def find_minimum(distance, energy) -> CurveMinimum:
     """Locate the minimum of E(R) with a natural cubic spline through the finite points.
 
@@ -51,12 +60,7 @@ def find_minimum(distance, energy) -> CurveMinimum:
     energy : array-like
         Energies in kcal/mol; NaN points are skipped.
     """
-    r = np.asarray(distance, dtype=float)
-    e = np.asarray(energy, dtype=float)
-    ok = np.isfinite(r) & np.isfinite(e)
-    r, e = r[ok], e[ok]
-    order = np.argsort(r)
-    r, e = r[order], e[order]
+    r, e = finite_sorted(distance, energy)
     n = len(r)
     nan = float("nan")
     if n == 0:
@@ -95,12 +99,7 @@ def force_zero_crossing(distance, force) -> float:
     """Distance (angstrom) where a force curve changes sign from repulsive (+) to
     attractive (-), by a natural cubic spline through the finite points; NaN if the
     sampled force never changes sign that way."""
-    r = np.asarray(distance, dtype=float)
-    f = np.asarray(force, dtype=float)
-    ok = np.isfinite(r) & np.isfinite(f)
-    r, f = r[ok], f[ok]
-    order = np.argsort(r)
-    r, f = r[order], f[order]
+    r, f = finite_sorted(distance, force)
     if len(r) < 2:
         return float("nan")
     changes = np.nonzero((f[:-1] > 0) & (f[1:] <= 0))[0]

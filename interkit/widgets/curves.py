@@ -57,16 +57,24 @@ class CurvePanel:
         self.marker_xy: dict[str, tuple[float, float]] = {}
         self._curves: dict[str, np.ndarray] = {}
 
+    def _draw(self, unit: str, show_uncorrected: bool, show_bsse: bool) -> None:
+        """Draw the static curves of ``self.levels`` on ``self.ax``."""
+        plot_curves(self.ds, ax=self.ax, unit=unit, show_uncorrected=show_uncorrected,
+                    show_bsse=show_bsse, levels=self.levels)
+
+    def _marked_values(self, level: str, unit: str) -> np.ndarray:
+        """The values the marker of ``level`` follows, one per point."""
+        return shown_energy(self.ds, level, unit)
+
     def redraw(self, levels, unit: str, show_uncorrected: bool, show_bsse: bool, index: int) -> None:
         """Draw the curves from scratch, then place the marker at point ``index``."""
         self.levels, self.unit = list(levels), unit
         self.figure.set_layout_engine("constrained")
         self.ax.clear()
-        plot_curves(self.ds, ax=self.ax, unit=unit, show_uncorrected=show_uncorrected,
-                    show_bsse=show_bsse, levels=self.levels)
+        self._draw(unit, show_uncorrected, show_bsse)
         self._guide = self.ax.axvline(np.nan, color=MARKER_COLOUR, lw=0.8, ls=(0, (2, 3)), zorder=1,
                                       animated=True)
-        self._curves = {lv: shown_energy(self.ds, lv, unit) for lv in self.levels}
+        self._curves = {lv: self._marked_values(lv, unit) for lv in self.levels}
         self._markers = []
         for k, _level in enumerate(self.levels):
             (m,) = self.ax.plot([], [], marker="o", ms=11, mfc="none", mec=MARKER_COLOUR, mew=2.2,

@@ -6,7 +6,7 @@ import numpy as np
 import xarray as xr
 
 from ..plot import plot_forces
-from .curves import MARKER_COLOUR, CurvePanel
+from .curves import CurvePanel
 
 #: arrows in the 3D view: angstrom of arrow per kcal/mol/angstrom of force
 ATOM_ARROW_SCALE = 0.05
@@ -16,25 +16,12 @@ FRAGMENT_ARROW_SCALE = 0.08
 class ForcePanel(CurvePanel):
     """Net force on fragment B along the coordinate (per level) with a movable marker."""
 
-    def redraw(self, levels, unit: str, show_uncorrected: bool, show_bsse: bool, index: int) -> None:
-        """Draw the force curves (the unit and toggles of the energy view do not apply)."""
-        self.levels = list(levels)
-        self.figure.set_layout_engine("constrained")
-        self.ax.clear()
-        plot_forces(self.ds, ax=self.ax, levels=self.levels, show_fit=True, show_split=show_bsse)
-        self._guide = self.ax.axvline(np.nan, color=MARKER_COLOUR, lw=0.8, ls=(0, (2, 3)), zorder=1,
-                                      animated=True)
-        self._curves = {lv: self.ds["force_along"].sel(level=lv).values for lv in self.levels}
-        self._markers = []
-        for k, _level in enumerate(self.levels):
-            (m,) = self.ax.plot([], [], marker="o", ms=11, mfc="none", mec=MARKER_COLOUR, mew=2.2,
-                                ls="none", zorder=6, animated=True)
-            m.set_gid(f"interkit-force-marker-{k}")
-            self._markers.append(m)
-        self.canvas.draw()
-        self.figure.set_layout_engine("none")
-        self._background = self.canvas.copy_from_bbox(self.figure.bbox)
-        self.move_marker(index)
+    def _draw(self, unit: str, show_uncorrected: bool, show_bsse: bool) -> None:
+        # the unit and toggles of the energy view do not apply to forces
+        plot_forces(self.ds, ax=self.ax, levels=self.levels, show_fit=True, show_split=False)
+
+    def _marked_values(self, level: str, unit: str) -> np.ndarray:
+        return self.ds["force_along"].sel(level=level).values
 
 
 def force_arrows(ds: xr.Dataset, level: str, index: int, mode: str) -> list | None:
