@@ -8,6 +8,8 @@ import numpy as np
 import xarray as xr
 from scipy.interpolate import CubicSpline
 
+from .corrections import flatten_dispersion
+
 
 @dataclass(frozen=True)
 class CurveMinimum:
@@ -84,6 +86,7 @@ def find_minimum(distance, energy) -> CurveMinimum:
 
 def minimum_table(ds: xr.Dataset, variable: str = "e_int") -> list[dict]:
     """Minimum of ``variable`` for every level of a scan Dataset, as rows of dicts."""
+    ds = flatten_dispersion(ds)
     rows = []
     for level in ds["level"].values:
         curve = ds[variable].sel(level=level)

@@ -59,6 +59,9 @@ def _add_run_options(p, default_cache: str | None = ".interkit-cache") -> None:
 
 
 def _energy_table(ds) -> str:
+    from .corrections import flatten_dispersion
+
+    ds = flatten_dispersion(ds)
     levels = [str(x) for x in ds["level"].values]
     width = max(14, *(len(lv) + 2 for lv in levels))
     head = f"{'R / Å':>8s}  " + "".join(f"{lv:>{width}s}" for lv in levels)
@@ -74,6 +77,9 @@ def _energy_table(ds) -> str:
 
 
 def _minimum_report(ds) -> str:
+    from .corrections import flatten_dispersion
+
+    ds = flatten_dispersion(ds)
     from .analysis import minimum_table
 
     lines = [f"scan: {ds.attrs.get('title', '')}",

@@ -322,6 +322,9 @@ def ranking_table(ds: xr.Dataset, reference_level: str | None = None, reference=
             continue
         schemes = [str(v) for v in ds["dispersion"].values] if has_disp else [None]
         for disp in schemes:
+            if disp is not None and "dispersion_status" in ds and \
+                    str(ds["dispersion_status"].sel(level=level, dispersion=disp).values) != "ok":
+                continue  # the scheme does not apply to the level (see dispersion_status)
             row = {"level": level}
             curve = da.sel(level=level)
             if disp is not None:

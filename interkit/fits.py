@@ -448,6 +448,9 @@ def _curves(ds: xr.Dataset, variable: str):
     for level in ds["level"].values:
         if has_disp:
             for disp in ds["dispersion"].values:
+                if "dispersion_status" in ds and \
+                        str(ds["dispersion_status"].sel(level=level, dispersion=disp).values) != "ok":
+                    continue
                 curve = da.sel(level=level, dispersion=disp).transpose("distance")
                 yield {"level": str(level), "dispersion": str(disp)}, curve.values
         else:

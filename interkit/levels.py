@@ -13,8 +13,13 @@ from functools import lru_cache
 from .errors import InputError
 
 WAVEFUNCTION_METHODS = ("hf", "mp2", "scs-mp2", "ccsd(t)")
-DISPERSION_SCHEMES = ("d3zero", "d3bj", "d4")
-DISPERSION_LABELS = {"d3zero": "D3(0)", "d3bj": "D3(BJ)", "d4": "D4"}
+#: post-hoc dispersion corrections: two-body D3 with zero or Becke–Johnson damping, D4;
+#: the ``-atm`` variants add the three-body Axilrod–Teller–Muto term
+DISPERSION_SCHEMES = ("d3zero", "d3bj", "d4", "d3zero-atm", "d3bj-atm", "d4-atm")
+DISPERSION_LABELS = {"d3zero": "D3(0)", "d3bj": "D3(BJ)", "d4": "D4", "d3zero-atm": "D3(0)+ATM",
+                     "d3bj-atm": "D3(BJ)+ATM", "d4-atm": "D4+ATM"}
+#: functionals with their own nonlocal (VV10-type) correlation: no post-hoc correction
+NONLOCAL_FUNCTIONALS = ("wb97m-v", "wb97x-v", "b97m-v", "vv10", "lc-vv10", "scan-rvv10")
 
 #: SCS-MP2 spin-component scaling factors (Grimme, J. Chem. Phys. 118, 9095 (2003))
 SCS_OPPOSITE_SPIN = 6.0 / 5.0
@@ -34,7 +39,8 @@ class LevelOfTheory:
     functional : str, optional
         Exchange-correlation functional (libxc/pyscf name) for ``method='dft'``.
     dispersion : str, optional
-        Post-hoc dispersion correction for DFT: ``'d3zero'``, ``'d3bj'`` or ``'d4'``.
+        Post-hoc dispersion correction for DFT: ``'d3zero'``, ``'d3bj'`` or ``'d4'``,
+        optionally with the three-body term (``'d3bj-atm'`` etc.).
     density_fitting : bool
         Density-fit the Coulomb and exchange matrices of the SCF (RI-JK). MP2 always
         uses density fitting with the RI auxiliary basis matching ``basis``.
@@ -121,7 +127,7 @@ def parse_level(text: str | LevelOfTheory) -> LevelOfTheory:
         raise InputError(f"levels: {text!r} is not of the form 'method/basis'")
     head = head.lower()
     dispersion = None
-    for scheme in DISPERSION_SCHEMES:
+    for scheme in sorted(DISPERSION_SCHEMES, key=len, reverse=True):
         if head.endswith("-" + scheme):
             dispersion = scheme
             head = head[: -len(scheme) - 1]
@@ -148,6 +154,10 @@ def check_functional(functional: str) -> None:
 def check_dispersion_parameters(functional: str, scheme: str) -> None:
     """Raise InputError if the dispersion library has no parameters for the pair."""
     from .engine.dispersion import dispersion_energy_and_gradient
+
+    if functional in NONLOCAL_FUNCTIONALS:
+        raise InputError(f"level dispersion: functional {functional!r} has its own nonlocal (VV10) "
+                         f"correlation; run it without {DISPERSION_LABELS[scheme]}")
 
     try:
         dispersion_energy_and_gradient(("H", "H"), [[0.0, 0.0, 0.0], [0.0, 0.0, 0.74]], functional, scheme)

@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
+from .corrections import flatten_dispersion
 from .units import convert_energy
 
 #: our own palette for levels of theory (colour-blind-safe order)
@@ -35,6 +36,7 @@ def plot_curves(ds: xr.Dataset, ax=None, unit: str = "kcal/mol", show_uncorrecte
     -------
     matplotlib.axes.Axes
     """
+    ds = flatten_dispersion(ds)
     import matplotlib.pyplot as plt
 
     if ax is None:
@@ -94,6 +96,7 @@ def plot_forces(ds: xr.Dataset, ax=None, levels=None, show_fit: bool = True, sho
     -------
     matplotlib.axes.Axes
     """
+    ds = flatten_dispersion(ds)
     import matplotlib.pyplot as plt
 
     from .analysis import derivative_force, force_zero_crossing

@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
+from .corrections import flatten_dispersion
 from .decomposition import COMPONENT_NAMES, COMPONENTS, has_decomposition
 from .errors import InputError
 from .units import convert_energy
@@ -41,6 +42,7 @@ def plot_components(ds: xr.Dataset, ax=None, unit: str = "kcal/mol", show_total:
     -------
     matplotlib.axes.Axes
     """
+    ds = flatten_dispersion(ds)
     import matplotlib.pyplot as plt
 
     if not has_decomposition(ds):

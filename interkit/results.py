@@ -7,6 +7,8 @@ variable                    dimensions                  units
 ==========================  ==========================  ===========
 e_int                       level, distance             kcal/mol
 e_int_nocp                  level, distance             kcal/mol
+                            (level, dispersion, distance when the spec lists
+                            dispersion schemes: see :mod:`interkit.corrections`)
 bsse                        level, distance             kcal/mol
 e_total_hartree             level, distance, role       hartree
 converged                   level, distance             (bool)
@@ -58,16 +60,35 @@ REQUIRED_VARIABLES = ("e_int", "e_int_nocp", "bsse", "converged", "status", "coo
                       "symbol", "fragment")
 
 
+#: distributions of the dispersion libraries recorded in every Dataset (attribute name ->
+#: distribution name); absent ones are recorded as "not installed"
+DISPERSION_DISTRIBUTIONS = {
+    "pyscf_dispersion_version": "pyscf-dispersion",
+    "dftd3_version": "dftd3",
+    "dftd4_version": "dftd4",
+}
+
+
 def _versions() -> dict[str, str]:
+    """Versions of interkit and of every library whose numbers enter a scan."""
+    from importlib import metadata
+
     import pyscf
 
     from . import __version__
 
-    return {"interkit_version": __version__, "pyscf_version": pyscf.__version__,
-            "xarray_version": xr.__version__, "numpy_version": np.__version__}
+    out = {"interkit_version": __version__, "pyscf_version": pyscf.__version__,
+           "xarray_version": xr.__version__, "numpy_version": np.__version__}
+    for attr, dist in DISPERSION_DISTRIBUTIONS.items():
+        try:
+            out[attr] = metadata.version(dist)
+        except metadata.PackageNotFoundError:
+            out[attr] = "not installed"
+    return out
 
 
-def assemble(plan: ScanPlan, records: dict[str, dict], missing_reason: str = "not computed") -> xr.Dataset:
+def assemble(plan: ScanPlan, records: dict[str, dict], missing_reason: str = "not computed",
+             dispersion_terms: dict | None = None) -> xr.Dataset:
     """Build the scan Dataset from job records (pure: no I/O).
 
     Parameters
@@ -77,7 +98,22 @@ def assemble(plan: ScanPlan, records: dict[str, dict], missing_reason: str = "no
         Job key -> result record (see :func:`interkit.engine.energy.run_energy_job`).
     missing_reason : str
         Status detail for points whose jobs have no record (e.g. a cancelled run).
+    dispersion_terms : dict, optional
+        ``(job key, scheme) -> term`` of the post-hoc schemes listed in the spec's
+        ``dispersion`` (see :func:`interkit.engine.dispersion.dispersion_terms`); the
+        Dataset then gets a ``dispersion`` dimension (see :mod:`interkit.corrections`).
     """
+    if not plan.spec.dispersion:
+        return _assemble_single(plan, records, missing_reason)
+    from .corrections import assemble_with_schemes
+    from .engine.dispersion import scheme_unavailable_reason
+
+    return assemble_with_schemes(plan, records, dispersion_terms or {},
+                                 lambda p, r: _assemble_single(p, r, missing_reason),
+                                 scheme_unavailable_reason)
+
+
+def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: str) -> xr.Dataset:
     spec = plan.spec
     levels = [lv.label for lv in spec.levels]
     points = spec.points
@@ -216,8 +252,11 @@ def validate(ds: xr.Dataset) -> None:
     for name in ("e_int", "e_int_nocp", "bsse"):
         if ds[name].attrs.get("units") != "kcal/mol":
             raise InputError(f"dataset variable {name}: units {ds[name].attrs.get('units')!r} is not 'kcal/mol'")
-        if ds[name].dims != ("level", "distance"):
-            raise InputError(f"dataset variable {name}: dimensions {ds[name].dims} are not ('level', 'distance')")
+        allowed = (("level", "dispersion", "distance"),) if "dispersion" in ds.dims else (("level", "distance"),)
+        if name == "bsse":
+            allowed = (("level", "distance"),)
+        if ds[name].dims not in allowed:
+            raise InputError(f"dataset variable {name}: dimensions {ds[name].dims} are not {allowed[0]}")
     if ds["distance"].attrs.get("units") != "angstrom":
         raise InputError("dataset coordinate distance: units must be 'angstrom'")
     if ds["coordinates"].dims != ("distance", "atom", "xyz"):
@@ -228,6 +267,8 @@ def validate(ds: xr.Dataset) -> None:
     bad = set(np.unique(ds["status"].values)) - {"ok", "retried", "failed"}
     if bad:
         raise InputError(f"dataset variable status: unexpected values {sorted(bad)}")
+    if "dispersion" in ds.dims and "dispersion_status" not in ds.variables:
+        raise InputError("dataset: variable 'dispersion_status' is missing")
     failed = ds["status"] == "failed"
     if bool((failed & ds["e_int_nocp"].notnull()).any()):
         raise InputError("dataset: a failed point carries a number in e_int_nocp")

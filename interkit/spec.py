@@ -18,7 +18,7 @@ import numpy as np
 from .coordinates import AtomPair, CentreOfMass, Frames, ScanCoordinate, Vector, coordinate_from_dict
 from .errors import InputError, NotAvailableError, ResourceError
 from .geometry import Dimer, covalent_radius_angstrom
-from .levels import LevelOfTheory, check_basis, parse_level
+from .levels import DISPERSION_SCHEMES, LevelOfTheory, check_basis, parse_level
 
 #: inter-fragment atoms may not come closer than this fraction of the sum of their
 #: covalent radii (and never closer than 0.5 Å)
@@ -142,8 +142,14 @@ class ScanSpec:
     sapt_memory_limit_mb : float
         Refuse the decomposition (ResourceError) if its largest tensor, estimated
         before anything runs, would exceed this many MB.
-    dispersion :
-        Reserved for a later release; anything but the default raises NotAvailableError.
+    dispersion : sequence of str, optional
+        Post-hoc dispersion schemes compared on the same SCF, e.g.
+        ``["none", "d3zero", "d3bj", "d4"]`` (``-atm`` variants add the three-body
+        term). The Dataset then gets a ``dispersion`` dimension on ``e_int``,
+        ``e_int_nocp``, ``e_disp_corr`` (and the forces): one SCF per point serves
+        every scheme. DFT levels must then be given without a dispersion suffix;
+        non-DFT levels carry values under ``'none'`` only, and a scheme without
+        parameters for a functional is reported in ``dispersion_status``.
     conv_tol : float
         SCF energy convergence threshold in hartree (default 1e-8: the error of an
         interaction energy is second order in the density error, below 1e-5 kcal/mol).
@@ -205,12 +211,7 @@ class ScanSpec:
         if self.forces and not self.counterpoise:
             raise InputError("forces: forces are counterpoise-corrected; set counterpoise = true")
         self._check_decomposition()
-        if self.dispersion not in (None, "none") and list(self.dispersion) not in ([], ["none"]):
-            raise NotAvailableError(
-                "dispersion: a dimension of post-hoc dispersion schemes is not available yet; "
-                "use a level suffix such as 'b3lyp-d3bj/def2-svp'"
-            )
-        object.__setattr__(self, "dispersion", None)
+        object.__setattr__(self, "dispersion", _check_dispersion_list(self.dispersion, levels))
         try:
             tol = float(self.conv_tol)
         except (TypeError, ValueError):
@@ -378,6 +379,36 @@ _TOML_KEYS = {
     "calculation": {"levels", "counterpoise", "forces", "decomposition", "decomposition_basis",
                     "sapt_memory_limit_mb", "dispersion", "conv_tol"},
 }
+
+
+def _check_dispersion_list(schemes, levels) -> tuple[str, ...] | None:
+    """Validate the ``dispersion`` list of a spec: known, distinct schemes; DFT levels
+    without their own suffix. Returns None for no comparison."""
+    if schemes is None:
+        return None
+    if isinstance(schemes, str):
+        schemes = [schemes]
+    try:
+        items = [str(x).strip().lower() for x in schemes]
+    except TypeError:
+        raise InputError(f"dispersion: {schemes!r} is not a list of scheme names") from None
+    if not items:
+        return None
+    allowed = ("none",) + DISPERSION_SCHEMES
+    for item in items:
+        if item not in allowed:
+            raise InputError(f"dispersion: {item!r} is not one of {', '.join(allowed)}")
+        if items.count(item) > 1:
+            raise InputError(f"dispersion: {item!r} appears twice")
+    if items == ["none"]:
+        return None
+    for lv in levels:
+        if lv.dispersion:
+            raise InputError(f"levels: {lv.label!r} carries its own dispersion suffix; give the bare "
+                             f"functional when the dispersion list compares schemes")
+    if not any(lv.method == "dft" for lv in levels):
+        raise InputError("dispersion: the schemes apply to DFT levels only, and no level is DFT")
+    return tuple(items)
 
 
 def _check_keys(table: dict, section: str) -> None:

@@ -81,8 +81,17 @@ CASES = [
     ("unknown decomposition basis", WATER_HF,
      {"calculation": 'levels = ["hf/sto-3g"]\ndecomposition = "sapt0"\ndecomposition_basis = "jun-nonsense"'},
      "decomposition_basis: 'jun-nonsense'"),
-    ("dispersion dimension not yet", WATER_HF, {"calculation": 'levels = ["hf/sto-3g"]\ndispersion = ["d3bj"]'},
-     "not available yet"),
+    ("dispersion schemes without a DFT level", WATER_HF,
+     {"calculation": 'levels = ["hf/sto-3g"]\ndispersion = ["d3bj"]'}, "apply to DFT levels only"),
+    ("unknown dispersion scheme", WATER_HF,
+     {"calculation": 'levels = ["b3lyp/sto-3g"]\ndispersion = ["none", "d5"]'}, "dispersion: 'd5' is not one of"),
+    ("dispersion scheme twice", WATER_HF,
+     {"calculation": 'levels = ["b3lyp/sto-3g"]\ndispersion = ["d4", "d4"]'}, "dispersion: 'd4' appears twice"),
+    ("suffix level in a dispersion comparison", WATER_HF,
+     {"calculation": 'levels = ["b3lyp-d3bj/sto-3g"]\ndispersion = ["none", "d4"]'},
+     "carries its own dispersion suffix"),
+    ("nonlocal functional with a post-hoc correction", WATER_HF,
+     {"calculation": 'levels = ["wb97m-v-d3bj/sto-3g"]'}, "own nonlocal (VV10)"),
 ]
 
 

@@ -27,7 +27,8 @@ def dispersion_energy_and_gradient(
         Positions in angstrom.
     functional : str
         Functional whose damping parameters are used.
-    scheme : {'d3zero', 'd3bj', 'd4'}
+    scheme : {'d3zero', 'd3bj', 'd4', 'd3zero-atm', 'd3bj-atm', 'd4-atm'}
+        ``-atm`` adds the three-body Axilrod–Teller–Muto term.
     """
     from pyscf import gto
 
@@ -41,15 +42,78 @@ def dispersion_energy_and_gradient(
     mol.spin = None
     mol.verbose = 0
     mol.build(parse_arg=False)
-    if scheme in ("d3zero", "d3bj"):
+    base, _, three_body = scheme.partition("-")
+    atm = three_body == "atm"
+    if three_body not in ("", "atm"):
+        base = ""
+    if base in ("d3zero", "d3bj"):
         from pyscf.dispersion import dftd3
 
-        model = dftd3.DFTD3Dispersion(mol, functional, version=scheme, atm=False)
-    elif scheme == "d4":
+        model = dftd3.DFTD3Dispersion(mol, functional, version=base, atm=atm)
+    elif base == "d4":
         from pyscf.dispersion import dftd4
 
-        model = dftd4.DFTD4Dispersion(mol, functional, atm=False)
+        model = dftd4.DFTD4Dispersion(mol, functional, atm=atm)
     else:
-        raise InputError(f"dispersion: {scheme!r} is not one of d3zero, d3bj, d4")
+        raise InputError(f"dispersion: {scheme!r} is not one of d3zero, d3bj, d4 (optionally with -atm)")
     result = model.get_dispersion(grad=True)
     return float(np.asarray(result["energy"])), np.asarray(result["gradient"], dtype=float)
+
+
+def scheme_unavailable_reason(functional: str, scheme: str) -> str:
+    """Why ``scheme`` cannot correct ``functional`` ('' when it can)."""
+    from ..levels import check_dispersion_parameters
+
+    try:
+        check_dispersion_parameters(functional, scheme)
+    except InputError as exc:
+        return str(exc).removeprefix("level dispersion: ")
+    return ""
+
+
+def dispersion_terms(jobs, schemes: Sequence[str], with_gradient: bool = False) -> dict:
+    """Post-hoc dispersion energies of DFT calculations, for several schemes at once.
+
+    The corrections depend on the real atoms' positions only (ghost atoms carry no
+    nucleus), so they are evaluated after the SCF, which all schemes share.
+
+    Parameters
+    ----------
+    jobs : iterable of Job
+        Calculations; non-DFT jobs are skipped.
+    schemes : sequence of str
+        Scheme names (``'none'`` is skipped).
+    with_gradient : bool
+        Also return the gradient, one row per atom of the job (ghost rows zero).
+
+    Returns
+    -------
+    dict
+        ``(job key, scheme) -> {'energy_hartree': float, 'gradient_hartree_per_bohr':
+        list or None}``; pairs a scheme cannot serve are absent (see
+        :func:`scheme_unavailable_reason`).
+    """
+    out: dict = {}
+    usable: dict = {}
+    for job in jobs:
+        if job.level.method != "dft":
+            continue
+        real = job.real_atoms
+        symbols = [job.symbols[i] for i in real]
+        coords = [job.coordinates[i] for i in real]
+        for scheme in schemes:
+            if scheme == "none":
+                continue
+            pair = (job.level.functional, scheme)
+            if pair not in usable:
+                usable[pair] = not scheme_unavailable_reason(*pair)
+            if not usable[pair]:
+                continue
+            energy, grad = dispersion_energy_and_gradient(symbols, coords, job.level.functional, scheme)
+            full = None
+            if with_gradient:
+                full = np.zeros((len(job.symbols), 3))
+                full[real] = grad
+                full = full.tolist()
+            out[(job.key, scheme)] = {"energy_hartree": energy, "gradient_hartree_per_bohr": full}
+    return out

@@ -16,6 +16,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from PIL import Image
 
+from ..corrections import flatten_dispersion
 from ..plot import LEVEL_COLOURS, plot_curves
 from ..units import convert_energy
 
@@ -43,7 +44,7 @@ class CurvePanel:
     """
 
     def __init__(self, ds: xr.Dataset, width: float = 5.8, height: float = 3.9):
-        self.ds = ds
+        self.ds = flatten_dispersion(ds)
         self.figure = Figure(figsize=(width, height), dpi=90, layout="constrained")
         self.canvas = FigureCanvasAgg(self.figure)
         self.ax = self.figure.add_subplot()

@@ -14,6 +14,7 @@ import numpy as np
 import traitlets
 import xarray as xr
 
+from ..corrections import flatten_dispersion
 from ..errors import InterkitError
 from ..results import open_scan, validate
 from ..units import convert_energy
@@ -72,6 +73,9 @@ class ScanExplorer(widgets.VBox):
         if isinstance(ds, (str, os.PathLike)):
             ds = open_scan(ds)
         validate(ds)
+        # the explorer draws one curve per level: schemes of a dispersion comparison
+        # become levels of their own (see CorrectionComparison for the comparison view)
+        ds = flatten_dispersion(ds)
         self.ds = ds
         self.distances = ds["distance"].values
         self.levels = [str(x) for x in ds["level"].values]

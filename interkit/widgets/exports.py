@@ -8,6 +8,7 @@ import os
 import numpy as np
 import xarray as xr
 
+from ..corrections import flatten_dispersion
 from ..errors import InputError
 from ..results import save_scan
 from ..units import convert_energy
@@ -26,6 +27,7 @@ def write_csv(ds: xr.Dataset, path: str | os.PathLike, unit: str = "kcal/mol") -
 
     The header names the units, e.g. ``e_int [kJ/mol]``; missing values are empty.
     """
+    ds = flatten_dispersion(ds)
     path = os.fspath(path)
     folder = os.path.dirname(os.path.abspath(path))
     if not os.path.isdir(folder):
