@@ -4,6 +4,7 @@
     interkit demo [-o DIR] [--workers N]
     interkit show scan.nc
     interkit systems
+    interkit compare scan.nc [--reference LABEL | --reference-csv FILE] [--table out.csv]
 
 Usage errors and bad input print one line and exit with status 2 (no traceback).
 """
@@ -47,6 +48,10 @@ def _build_parser() -> argparse.ArgumentParser:
     p.add_argument("scan", help="netCDF scan file")
 
     sub.add_parser("systems", help="list the bundled demo dimers")
+
+    from .cli_compare import add_commands as add_compare
+
+    add_compare(sub)
     return parser
 
 
@@ -210,6 +215,9 @@ def main(argv: list[str] | None = None) -> int:
         print(f"interkit: error: --workers: {args.workers} is not a positive integer", file=sys.stderr)
         return EXIT_USAGE
     handlers = {"scan": _cmd_scan, "demo": _cmd_demo, "show": _cmd_show, "systems": _cmd_systems}
+    from .cli_compare import run_compare
+
+    handlers["compare"] = run_compare
     try:
         return handlers[args.command](args)
     except InterkitError as exc:

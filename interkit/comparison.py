@@ -256,6 +256,55 @@ def _energy_array(ds: xr.Dataset, variable: str) -> xr.DataArray:
     return da
 
 
+def resolve_reference(ds: xr.Dataset, reference_level: str | None = None, reference=None,
+                      variable: str = "e_int", reference_dispersion: str | None = None) -> tuple[np.ndarray, str]:
+    """The reference curve at ``ds.distance`` (kcal/mol) and a label for it.
+
+    Parameters are those of :func:`ranking_table`. Returns ``(values, label)``; the
+    label names the level (and scheme) or the external curve's source.
+    """
+    if (reference_level is None) == (reference is None):
+        raise InputError("reference: give exactly one of reference_level and reference")
+    da = _energy_array(ds, variable)
+    distance = ds["distance"].values
+    has_disp = "dispersion" in da.dims
+    levels = [str(v) for v in ds["level"].values]
+    if reference_level is not None:
+        if reference_level not in levels:
+            raise InputError(f"reference_level: {reference_level!r} is not a level of the dataset ({levels})")
+        ref_da = da.sel(level=reference_level)
+        if has_disp:
+            schemes = [str(v) for v in ds["dispersion"].values]
+            if reference_dispersion is not None:
+                if reference_dispersion not in schemes:
+                    raise InputError(f"reference_dispersion: {reference_dispersion!r} is not a scheme "
+                                     f"of the dataset ({schemes})")
+                chosen = reference_dispersion
+            else:
+                finite = [s for s in schemes if np.isfinite(ref_da.sel(dispersion=s).values).any()]
+                if not finite:
+                    raise InputError(f"reference_level: {reference_level!r} has no finite {variable}")
+                chosen = "none" if "none" in finite else finite[0]
+            ref_da = ref_da.sel(dispersion=chosen)
+        ref = ref_da.transpose("distance").values
+        label = reference_level
+        if has_disp and chosen != "none":
+            from .corrections import scheme_label
+            from .levels import parse_level
+
+            label = scheme_label(parse_level(reference_level), chosen)
+    elif isinstance(reference, ReferenceCurve):
+        ref = reference.on(distance)
+        label = f"external curve ({reference.source})"
+    else:
+        ref = np.asarray(reference, dtype=float)
+        if ref.shape != distance.shape:
+            raise InputError(f"reference: length {ref.size} does not match distance length {distance.size}")
+        label = "external values"
+
+    return ref, label
+
+
 def ranking_table(ds: xr.Dataset, reference_level: str | None = None, reference=None,
                   variable: str = "e_int", reference_dispersion: str | None = None) -> list[dict]:
     """Rank the curves of a scan Dataset by RMSE against a reference.
@@ -285,40 +334,15 @@ def ranking_table(ds: xr.Dataset, reference_level: str | None = None, reference=
         point last): ``rank``, ``level`` [, ``dispersion``], ``status`` and the fields of
         :class:`CurveComparison`.
     """
-    if (reference_level is None) == (reference is None):
-        raise InputError("reference: give exactly one of reference_level and reference")
     da = _energy_array(ds, variable)
-    distance = ds["distance"].values
     has_disp = "dispersion" in da.dims
     levels = [str(v) for v in ds["level"].values]
-    if reference_level is not None:
-        if reference_level not in levels:
-            raise InputError(f"reference_level: {reference_level!r} is not a level of the dataset ({levels})")
-        ref_da = da.sel(level=reference_level)
-        if has_disp:
-            schemes = [str(v) for v in ds["dispersion"].values]
-            if reference_dispersion is not None:
-                if reference_dispersion not in schemes:
-                    raise InputError(f"reference_dispersion: {reference_dispersion!r} is not a scheme "
-                                     f"of the dataset ({schemes})")
-                chosen = reference_dispersion
-            else:
-                finite = [s for s in schemes if np.isfinite(ref_da.sel(dispersion=s).values).any()]
-                if not finite:
-                    raise InputError(f"reference_level: {reference_level!r} has no finite {variable}")
-                chosen = "none" if "none" in finite else finite[0]
-            ref_da = ref_da.sel(dispersion=chosen)
-        ref = ref_da.transpose("distance").values
-    elif isinstance(reference, ReferenceCurve):
-        ref = reference.on(distance)
-    else:
-        ref = np.asarray(reference, dtype=float)
-        if ref.shape != distance.shape:
-            raise InputError(f"reference: length {ref.size} does not match distance length {distance.size}")
+    distance = ds["distance"].values
+    ref, _ = resolve_reference(ds, reference_level, reference, variable, reference_dispersion)
 
     rows = []
     for level in levels:
-        if level == reference_level:
+        if level == reference_level and not has_disp:
             continue
         schemes = [str(v) for v in ds["dispersion"].values] if has_disp else [None]
         for disp in schemes:
@@ -330,6 +354,10 @@ def ranking_table(ds: xr.Dataset, reference_level: str | None = None, reference=
             if disp is not None:
                 row["dispersion"] = disp
                 curve = curve.sel(dispersion=disp)
+                values = curve.transpose("distance").values
+                if level == reference_level and (np.array_equal(values, ref, equal_nan=True)
+                                                 or np.isnan(values).all()):
+                    continue  # the reference itself, or a scheme it does not have
             try:
                 stats = curve_errors(distance, curve.transpose("distance").values, ref).to_dict()
                 row["status"] = "ok"
@@ -343,3 +371,35 @@ def ranking_table(ds: xr.Dataset, reference_level: str | None = None, reference=
     rows.sort(key=lambda d: (not np.isfinite(d["rmse_kcal_per_mol"]), d["rmse_kcal_per_mol"]
                              if np.isfinite(d["rmse_kcal_per_mol"]) else 0.0))
     return [{"rank": i + 1, **row} for i, row in enumerate(rows)]
+
+
+#: preferred references, most accurate first (common practice)
+REFERENCE_PREFERENCE = ("ccsd(t)", "mp2", "scs-mp2")
+
+
+def curve_pairs(ds: xr.Dataset) -> dict[str, tuple[str, str | None]]:
+    """Folded label -> (level, scheme or None) of every curve with values."""
+    from .corrections import scheme_label
+    from .levels import parse_level
+
+    out = {}
+    if "dispersion" in ds.dims:
+        from .corrections import available_pairs
+
+        for level, scheme in available_pairs(ds):
+            if np.isfinite(ds["e_int"].sel(level=level, dispersion=scheme).values).any():
+                out[scheme_label(parse_level(level), scheme)] = (level, scheme)
+    else:
+        for level in ds["level"].values:
+            if np.isfinite(ds["e_int"].sel(level=level).values).any():
+                out[str(level)] = (str(level), None)
+    return out
+
+
+def default_reference(labels: list[str]) -> str:
+    """The most accurate wavefunction level among ``labels`` (else the first label)."""
+    for method in REFERENCE_PREFERENCE:
+        for label in labels:
+            if label.split("/")[0] == method:
+                return label
+    return labels[0]

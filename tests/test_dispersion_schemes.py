@@ -146,3 +146,69 @@ def test_b3lyp_needs_dispersion_to_bind_the_methane_dimer():
     m = ik.analysis.find_minimum(ds["factor"].values, corrected)
     assert m.interior and 0.9 < m.r_min_angstrom < 1.2, m
     assert m.well_depth_kcal_per_mol > 0.2
+
+
+def test_correction_comparison_widget(comparison, tmp_path):
+    import csv
+
+    import interkit.widgets  # noqa: F401  (registers ik.widgets)
+
+    _, ds = comparison
+    w = ik.widgets.CorrectionComparison(ds, reference="b3lyp-d3bj/sto-3g", export_dir=tmp_path)
+    curves = [row["curve"] for row in w.rows]
+    assert "b3lyp-d3bj/sto-3g" not in curves and "m062x-d4/sto-3g" not in curves
+    assert w.rows[0]["curve"] == "b3lyp-d3bj-atm/sto-3g"  # the three-body term is a small change
+    assert len(w.image.value) > 1000
+    w.reference_select.value = "hf/sto-3g"
+    assert "b3lyp-d3bj/sto-3g" in [row["curve"] for row in w.rows]
+    w.curve_select.value = ("b3lyp/sto-3g", "b3lyp-d4/sto-3g")
+    assert [row["curve"] for row in w.rows] == sorted(["b3lyp/sto-3g", "b3lyp-d4/sto-3g"],
+                                                      key=[r["curve"] for r in w.rows].index)
+    path = w.export()
+    with open(path, newline="") as fh:
+        lines = list(csv.reader(fh))
+    assert lines[0] == ["# reference: hf/sto-3g"] and len(lines) == 2 + 2
+    # an external CSV reference; a bad path is an inline error, not an exception
+    ref = tmp_path / "ref.csv"
+    ref.write_text("distance_angstrom,e_int_kcal_per_mol\n" + "\n".join(
+        f"{r},{e}" for r, e in zip(ds.distance.values, ds.e_int.sel(level="hf/sto-3g", dispersion="none").values)))
+    w.csv_path.value = str(tmp_path / "missing.csv")
+    w._load_csv()
+    assert "interkit-error" in w.message.value
+    w.csv_path.value = str(ref)
+    w._load_csv()
+    assert w.reference_select.value == "external: ref.csv"
+    hf = next(row for row in ranking_table_rows(ds, "hf/sto-3g") if row["curve"] == "b3lyp-d4/sto-3g")
+    ext = next(row for row in w.rows if row["curve"] == "b3lyp-d4/sto-3g")
+    assert ext["rmse_kcal_per_mol"] == pytest.approx(hf["rmse_kcal_per_mol"], abs=1e-9)
+
+
+def ranking_table_rows(ds, reference):
+    from interkit.comparison import ranking_table
+    from interkit.corrections import scheme_label
+
+    rows = ranking_table(ds, reference_level=reference)
+    return [dict(r, curve=scheme_label(ik.parse_level(r["level"]), r["dispersion"])) for r in rows]
+
+
+def test_cli_scan_with_schemes_and_compare(tmp_path, capsys):
+    from interkit.cli import main
+
+    xyz = tmp_path / "hf2.xyz"
+    xyz.write_text("4\nHF dimer, test geometry\nF 0 0 0\nH 0 0 0.92\nF 0 0 2.75\nH 0.85 0 3.05\n")
+    toml = tmp_path / "spec.toml"
+    toml.write_text('name = "hf2"\n[system]\ngeometry = "hf2.xyz"\n[scan]\ncoordinate = "atom-pair"\n'
+                    'atoms = [1, 2]\nfactors = [0.95, 1.1, 1.4]\n[calculation]\n'
+                    'levels = ["pbe/sto-3g", "hf/sto-3g"]\ndispersion = ["none", "d3bj", "d4"]\n')
+    out = tmp_path / "scan.nc"
+    assert main(["scan", str(toml), "-o", str(out), "--serial", "--quiet", "--cache", str(tmp_path / "c")]) == 0
+    text = capsys.readouterr().out
+    assert "pbe-d3bj/sto-3g" in text and "pbe-d4/sto-3g" in text
+    assert ik.open_scan(out)["e_int"].dims == ("level", "dispersion", "distance")
+    assert main(["compare", str(out), "--reference", "hf/sto-3g", "--table", str(tmp_path / "rank.csv")]) == 0
+    text = capsys.readouterr().out
+    assert text.splitlines()[0].startswith("reference: hf/sto-3g")
+    assert {"pbe/sto-3g", "pbe-d3bj/sto-3g", "pbe-d4/sto-3g"} <= set(text.split())
+    assert (tmp_path / "rank.csv").read_text().count("\n") == 2 + 3
+    assert main(["compare", str(out), "--reference", "ccsd(t)/cbs"]) == 2
+    assert "--reference: 'ccsd(t)/cbs' is not a curve" in capsys.readouterr().err

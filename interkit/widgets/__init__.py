@@ -10,12 +10,14 @@ Examples
 >>> import interkit.widgets
 >>> ik.widgets.ScanExplorer(ik.open_scan("scan.nc"))       # doctest: +SKIP
 >>> launcher = ik.widgets.ScanLauncher()                   # doctest: +SKIP
+>>> ik.widgets.CorrectionComparison("scan.nc")             # doctest: +SKIP
 """
 
 from __future__ import annotations
 
+from .comparison import CorrectionComparison
 from .explorer import ScanExplorer
 from .launcher import ScanLauncher
 from .viewer3d import Molecule3D, library_available
 
-__all__ = ["Molecule3D", "ScanExplorer", "ScanLauncher", "library_available"]
+__all__ = ["CorrectionComparison", "Molecule3D", "ScanExplorer", "ScanLauncher", "library_available"]

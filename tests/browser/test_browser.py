@@ -57,13 +57,44 @@ def saved_scan(tmp_path_factory):
 
 
 @pytest.fixture(scope="module")
-def voila(tmp_path_factory, saved_scan):
+def scheme_scan(tmp_path_factory):
+    """A small scan with a dispersion dimension (B3LYP and PBE0 x four schemes, HF)."""
+    import interkit as ik
+    from interkit.demo import demo_catalog
+
+    i, j = demo_catalog()["water_methanol"]["contact"]
+    spec = ik.ScanSpec(dimer=ik.load_demo("water_methanol"), coordinate=ik.AtomPair(i, j),
+                       factors=[0.9, 1.0, 1.2, 1.6], levels=["b3lyp/sto-3g", "pbe0/sto-3g", "hf/sto-3g"],
+                       dispersion=["none", "d3zero", "d3bj", "d4"])
+    path = tmp_path_factory.mktemp("schemes") / "schemes.nc"
+    ik.save_scan(ik.run_scan(spec, executor="processes", progress=False), path)
+    return path
+
+
+COMPARISON_NOTEBOOK = """\
+import os
+import interkit as ik
+import interkit.widgets
+ik.widgets.CorrectionComparison(os.environ["INTERKIT_SCHEME_SCAN"], reference="b3lyp-d3bj/sto-3g",
+                                export_dir=os.environ["INTERKIT_EXPORT_DIR"])
+"""
+
+
+@pytest.fixture(scope="module")
+def voila(tmp_path_factory, saved_scan, scheme_scan):
     """Voilà serving a temporary copy of notebooks/ on 127.0.0.1; yields the base URL."""
+    import nbformat
+
     folder = tmp_path_factory.mktemp("served")
     for nb in (ROOT / "notebooks").glob("*.ipynb"):
         shutil.copy(nb, folder / nb.name)
+    nbformat.write(nbformat.v4.new_notebook(cells=[nbformat.v4.new_code_cell(COMPARISON_NOTEBOOK)],
+                                            metadata={"kernelspec": {"name": "python3", "language": "python",
+                                                                     "display_name": "Python 3"}}),
+                   folder / "comparison-view.ipynb")
     port = _free_port()
-    env = dict(os.environ, INTERKIT_SCAN=str(saved_scan))
+    env = dict(os.environ, INTERKIT_SCAN=str(saved_scan), INTERKIT_SCHEME_SCAN=str(scheme_scan),
+               INTERKIT_EXPORT_DIR=str(folder))
     log = open(folder / "voila.log", "w")
     proc = subprocess.Popen(
         [sys.executable, "-m", "voila", "--no-browser", f"--port={port}", "--Voila.ip=127.0.0.1",
@@ -203,4 +234,31 @@ def test_launcher_runs_with_progress_offline(voila, page):
         assert _drawn_fraction(result_canvas.screenshot()) > 0.005
     except Exception:
         _shot(page, "launcher-failure.png")
+        raise
+
+
+def test_correction_comparison_switches_reference_and_exports_offline(voila, page):
+    try:
+        page.goto(voila + "/voila/render/comparison-view.ipynb", timeout=120_000)
+        page.wait_for_selector(".interkit-correction-comparison .interkit-ranking-table", timeout=120_000)
+        image = page.wait_for_selector(".interkit-comparison-figure")
+        page.wait_for_function("() => document.querySelector('.interkit-comparison-figure').naturalWidth > 0")
+        rows = page.eval_on_selector_all(".interkit-ranking-table tbody tr",
+                                         "els => els.map(e => e.children[1].textContent)")
+        # eight B3LYP/PBE0 curves and HF, minus the reference itself
+        assert len(rows) == 8 and "b3lyp-d3bj/sto-3g" not in rows, rows
+        old_src = image.get_attribute("src")
+        page.select_option(".interkit-reference select", "hf/sto-3g")
+        page.wait_for_function(
+            "old => document.querySelector('.interkit-comparison-figure').src !== old", arg=old_src, timeout=30_000)
+        page.wait_for_function(
+            "() => [...document.querySelectorAll('.interkit-ranking-table tbody tr')]"
+            ".some(r => r.children[1].textContent === 'b3lyp-d3bj/sto-3g')", timeout=30_000)
+        page.click(".interkit-export-ranking")
+        page.wait_for_function(
+            "() => document.querySelector('.interkit-correction-comparison').textContent.includes('ranking.csv')",
+            timeout=30_000)
+        assert page.blocked == [] or not any("3dmol" in u.lower() for u in page.blocked)
+    except Exception:
+        _shot(page, "comparison-failure.png")
         raise
