@@ -104,5 +104,5 @@ def plot_comparison(ds: xr.Dataset, reference_level: str | None = None, referenc
         low = convert_energy(float(finite.min()), "kcal/mol", unit)
         span = abs(low) if low < 0 else 1.0
         ax_curve.set_ylim(low - 0.8 * span, 1.5 * span)
-    ax_curve.legend(fontsize=6.5, frameon=False, loc="upper right")
+    ax_curve.legend(fontsize=6.5, frameon=False, loc="best")
     return ax_curve, ax_err
