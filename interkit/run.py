@@ -111,12 +111,8 @@ def run_scan(
     finally:
         close()
     cancelled = cancel is not None and cancel.is_set()
-    terms, t_disp = None, time.perf_counter()
-    if spec.dispersion:
-        # post-hoc schemes on the finished SCFs: milliseconds per calculation
-        from .engine.dispersion import dispersion_terms
-
-        terms = dispersion_terms(plan.jobs.values(), spec.dispersion, with_gradient=spec.forces)
+    t_disp = time.perf_counter()
+    terms = posthoc_dispersion(plan)
     t_disp = time.perf_counter() - t_disp
     ds = assemble(plan, records, missing_reason="cancelled" if cancelled else "not computed",
                   dispersion_terms=terms)
@@ -128,6 +124,17 @@ def run_scan(
     if spec.dispersion:
         ds.attrs["dispersion_wall_time_s"] = t_disp
     return ds
+
+
+def posthoc_dispersion(plan: ScanPlan) -> dict | None:
+    """The post-hoc dispersion terms of every scheme in ``plan.spec.dispersion`` for the
+    plan's DFT calculations (None without schemes). They depend on the geometry only,
+    so they can be computed before, during or after the SCFs: milliseconds each."""
+    if not plan.spec.dispersion:
+        return None
+    from .engine.dispersion import dispersion_terms
+
+    return dispersion_terms(plan.jobs.values(), plan.spec.dispersion, with_gradient=plan.spec.forces)
 
 
 def _pending_chunks(plan: ScanPlan, records: dict, n_workers: int) -> list[list[tuple[str, str]]]:

@@ -209,8 +209,14 @@ def test_launcher_builds_specs_from_the_form(launcher):
     launcher.grid.value = "2.8, 3.0, 3.5"
     spec = launcher.build_spec()
     assert isinstance(spec.coordinate, ik.CentreOfMass) and spec.distances == (2.8, 3.0, 3.5)
-    for box in launcher.unavailable:
-        assert box.disabled and box.tooltip == "not available yet"
+    launcher.levels.value = "b3lyp/sto-3g, hf/sto-3g"
+    launcher.dispersion.value = "none, d3bj, d4"
+    spec = launcher.build_spec()
+    assert spec.dispersion == ("none", "d3bj", "d4")
+    launcher.dispersion.value = "d5"
+    assert "dispersion: &#x27;d5&#x27; is not one of" in launcher.estimate.value  # shown inline, escaped
+    launcher.dispersion.value = ""
+    launcher.levels.value = "hf/def2-svp"
     launcher.forces.value = True
     launcher.decomposition.value = True
     spec = launcher.build_spec()

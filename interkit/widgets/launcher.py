@@ -24,7 +24,7 @@ from ..spec import ScanSpec
 from .curves import CurvePanel
 from .explorer import ScanExplorer
 from .runner import BackgroundScan, count_calculations
-from .style import NOT_AVAILABLE, STATUS_STYLE, error_html, note_html
+from .style import STATUS_STYLE, error_html, note_html
 from .viewer3d import Molecule3D, scene_from_arrays
 
 SOURCES = ("bundled dimer", "XYZ file", "pasted XYZ")
@@ -160,9 +160,12 @@ class ScanLauncher(widgets.VBox):
         self.decomposition = widgets.Checkbox(value=False, description="SAPT0 decomposition", indent=False,
                                               tooltip="electrostatics, exchange, induction, dispersion "
                                                       "(closed-shell fragments, jun-cc-pVDZ)")
-        self.unavailable = [widgets.Checkbox(value=False, description=d, disabled=True, indent=False,
-                                             tooltip=NOT_AVAILABLE)
-                            for d in ("dispersion schemes",)]
+        self.dispersion = widgets.Text(value="", description="dispersion",
+                                       placeholder="optional: compare schemes, e.g. none, d3bj, d4",
+                                       tooltip="post-hoc schemes on one SCF per point (bare DFT functionals); "
+                                               "d3zero, d3bj, d4, their -atm variants, none",
+                                       layout=lay(width="440px"))
+        self.dispersion.add_class("interkit-dispersion")
         self.cache = widgets.Text(value=os.fspath(cache) if cache else "", description="store",
                                   placeholder="optional folder that keeps finished calculations",
                                   layout=lay(width="440px"))
@@ -199,7 +202,7 @@ class ScanLauncher(widgets.VBox):
         self.coordinate.observe(self._on_coordinate, "value")
         self.grid_mode.observe(self._on_grid_mode, "value")
         for w in (self.grid, self.levels, self.counterpoise, self.workers, self.seconds_per_calc, self.forces,
-                  self.decomposition):
+                  self.decomposition, self.dispersion):
             w.observe(lambda _c: self.update_estimate(), "value")
         self.levels.observe(lambda _c: self._guess_seconds(), "value")
         self.run_button.on_click(lambda _b: self.run())
@@ -214,7 +217,7 @@ class ScanLauncher(widgets.VBox):
             h("<b>2 · Scan coordinate and grid</b>"), self.coordinate, widgets.HBox([self.atom_a, self.atom_b]),
             self.grid_mode, self.grid,
             h("<b>3 · Calculation</b>"), self.levels, self.counterpoise, self.workers,
-            widgets.HBox([self.forces, self.decomposition, *self.unavailable]), self.cache,
+            self.dispersion, widgets.HBox([self.forces, self.decomposition]), self.cache,
             widgets.HBox([self.seconds_per_calc, self.estimate]),
         ], layout=lay(width="470px"))
         super().__init__(children=[
@@ -369,7 +372,7 @@ class ScanLauncher(widgets.VBox):
         n_levels = len(self._level_list())
         if not n_levels:
             raise InputError("levels: no level of theory given")
-        if self.dimer is not None and (self.forces.value or self.decomposition.value):
+        if self.dimer is not None and (self.forces.value or self.decomposition.value or self.dispersion.value.strip()):
             from ..plan import plan_scan
 
             return len(plan_scan(self.build_spec()).jobs)
@@ -392,6 +395,8 @@ class ScanLauncher(widgets.VBox):
             extras.append("with gradients")
         if self.decomposition.value:
             extras.append(f"{n_points} of them SAPT0")
+        if self.dispersion.value.strip():
+            extras.append("every dispersion scheme on the same SCFs")
         detail = f" ({', '.join(extras)})" if extras else ""
         self.estimate.value = (
             f'<div><b>{n}</b> calculations{detail} = {n_levels} level(s) × {n_points} points × {per} '
@@ -408,6 +413,7 @@ class ScanLauncher(widgets.VBox):
         return ScanSpec(dimer=self.dimer, coordinate=self.scan_coordinate(), levels=self._level_list(),
                         counterpoise=bool(self.counterpoise.value), forces=bool(self.forces.value),
                         decomposition="sapt0" if self.decomposition.value else None,
+                        dispersion=[t.strip() for t in self.dispersion.value.split(",") if t.strip()] or None,
                         name=self.dimer.name, **kwargs)
 
     # ------------------------------------------------------------------ running
@@ -496,6 +502,6 @@ class ScanLauncher(widgets.VBox):
         panel = CurvePanel(ds, width=5.0, height=3.2)
         if not np.isfinite(ds["e_int"].values).any() and not np.isfinite(ds["e_int_nocp"].values).any():
             return
-        panel.redraw([str(x) for x in ds["level"].values], "kcal/mol", False, False, 0)
+        panel.redraw([str(x) for x in panel.ds["level"].values], "kcal/mol", False, False, 0)
         panel.image.add_class("interkit-live-curve")
         self.live.children = [widgets.HTML("<i>curve so far</i>"), panel.image]

@@ -18,7 +18,7 @@ import xarray as xr
 from ..errors import InterkitError
 from ..plan import plan_scan
 from ..results import assemble
-from ..run import run_scan
+from ..run import posthoc_dispersion, run_scan
 from ..spec import ScanSpec
 
 
@@ -69,6 +69,7 @@ class BackgroundScan:
         self.error: str | None = None
         self.started = self.finished = None
         self._thread: threading.Thread | None = None
+        self._dispersion_terms: dict | None = None
         if cache is not None:
             self._preload(cache)
 
@@ -133,7 +134,9 @@ class BackgroundScan:
         """The scan as far as it has come (missing points are NaN, status 'failed')."""
         with self._lock:
             records = dict(self.records)
-        return assemble(self.plan, records, missing_reason="pending")
+        if self._dispersion_terms is None:
+            self._dispersion_terms = posthoc_dispersion(self.plan)
+        return assemble(self.plan, records, missing_reason="pending", dispersion_terms=self._dispersion_terms)
 
     def point_states(self) -> np.ndarray:
         """(level, point) array of 'waiting', 'partial', 'ok', 'retried' or 'failed'."""

@@ -20,7 +20,6 @@ STATUS_STYLE = {
     "retried": ("●", "#c7961c"),
     "failed": ("✕", "#b3261e"),
 }
-NOT_AVAILABLE = "not available yet"
 
 
 def error_html(message: str) -> str:
