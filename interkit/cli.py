@@ -1,10 +1,18 @@
 """The ``interkit`` command line.
 
     interkit scan SPEC.toml -o scan.nc [--workers N] [--cache DIR] [--serial] [--quiet]
+                  [--scheduler ADDRESS]
     interkit demo [-o DIR] [--workers N]
     interkit show scan.nc
     interkit systems
+    interkit store info DIR | interkit store prune DIR --max-size 500MB
+    interkit rerun scan.nc [-o out.nc] [--cache DIR] [--workers N]   # same spec, compare with the file
+    interkit verify scan.nc [--sample N] [--seed S]    # recompute N points fresh; exit 1 off tolerance
+    interkit report scan.nc -o report.html [--reference LEVEL]   # self-contained HTML, works offline
+    interkit export scan.nc -o out.csv|out.json       # tidy CSV, or JSON with QCSchema molecules
     interkit compare scan.nc [--reference LABEL | --reference-csv FILE] [--table out.csv]
+
+The saved-file commands (rerun, verify, report, export) live in :mod:`interkit.cli_saved`.
 
 Usage errors and bad input print one line and exit with status 2 (no traceback).
 """
@@ -49,9 +57,23 @@ def _build_parser() -> argparse.ArgumentParser:
 
     sub.add_parser("systems", help="list the bundled demo dimers")
 
+    from .cli_saved import add_commands
+
+    add_commands(sub, _add_run_options)
+
     from .cli_compare import add_commands as add_compare
 
     add_compare(sub)
+
+    p = sub.add_parser("store", help="inspect or shrink a result store (the --cache folder)")
+    store_sub = p.add_subparsers(dest="store_command", metavar="ACTION", parser_class=_Parser)
+    store_sub.required = True
+    q = store_sub.add_parser("info", help="entries, size, least and most recent use, damaged entries")
+    q.add_argument("store", help="store folder")
+    q = store_sub.add_parser("prune", help="remove the least recently used entries until the store "
+                                           "fits a size limit")
+    q.add_argument("store", help="store folder")
+    q.add_argument("--max-size", required=True, help="size limit, e.g. 500MB, 2GB or 1GiB")
     return parser
 
 
@@ -61,6 +83,9 @@ def _add_run_options(p, default_cache: str | None = ".interkit-cache") -> None:
                    help="result store folder (default: %(default)s); finished calculations are reused")
     p.add_argument("--serial", action="store_true", help="run in this process instead of worker processes")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.add_argument("--scheduler", metavar="ADDRESS", default=None,
+                   help="run one calculation per task on the Dask cluster of this scheduler "
+                        "(e.g. tcp://HOST:8786); the --cache folder must be visible to its workers")
 
 
 def _energy_table(ds) -> str:
@@ -122,6 +147,8 @@ def _force_report(ds) -> list[str]:
 def _run(spec, args):
     from .run import run_scan
 
+    if getattr(args, "scheduler", None):
+        return _run_on_scheduler(spec, args)
     return run_scan(spec, executor="serial" if args.serial else "processes", cache=args.cache,
                     progress=not args.quiet, workers=args.workers)
 
@@ -197,6 +224,47 @@ def _cmd_systems(args) -> int:
     return 0
 
 
+def _run_on_scheduler(spec, args):
+    from .errors import InputError
+    from .executors_dask import connect
+    from .run import run_scan
+
+    if args.serial or args.workers is not None:
+        raise InputError("--scheduler: the cluster's workers run the scan; leave out --serial and --workers")
+    client = connect(args.scheduler)
+    try:
+        return run_scan(spec, executor=client, cache=args.cache, progress=not args.quiet)
+    finally:
+        client.close()
+
+
+def _cmd_store(args) -> int:
+    from .store import ResultStore, format_size, parse_size
+
+    if args.store_command == "prune":
+        limit = parse_size(args.max_size, "--max-size")
+        store = ResultStore(args.store, create=False)
+        res = store.prune(limit)
+        print(f"removed {res.removed_entries} least recently used entries, {res.removed_damaged} damaged "
+              f"and {res.removed_partial} abandoned temporary files ({format_size(res.freed_bytes)})")
+        print(f"{args.store}: {res.remaining_entries} entries, {format_size(res.remaining_bytes)} "
+              f"(limit {format_size(limit)})")
+        return 0
+    info = ResultStore(args.store, create=False).info()
+
+    def when(t):
+        return t.strftime("%Y-%m-%d %H:%M:%S UTC") if t is not None else "-"
+
+    print(f"store               {info.root}")
+    print(f"entries             {info.entries} ({format_size(info.entry_bytes)})")
+    print(f"size on disk        {format_size(info.total_bytes)} ({info.total_bytes} bytes, all files)")
+    print(f"least recently used {when(info.least_recent_use)}")
+    print(f"most recently used  {when(info.most_recent_use)}")
+    print(f"damaged, set aside  {info.damaged}")
+    print(f"unfinished writes   {info.partial}")
+    return 0
+
+
 def _check_output(path: str) -> None:
     from .errors import InputError
 
@@ -214,7 +282,11 @@ def main(argv: list[str] | None = None) -> int:
     if getattr(args, "workers", None) is not None and args.workers < 1:
         print(f"interkit: error: --workers: {args.workers} is not a positive integer", file=sys.stderr)
         return EXIT_USAGE
-    handlers = {"scan": _cmd_scan, "demo": _cmd_demo, "show": _cmd_show, "systems": _cmd_systems}
+    handlers = {"scan": _cmd_scan, "demo": _cmd_demo, "show": _cmd_show, "systems": _cmd_systems,
+                "store": _cmd_store}
+    from .cli_saved import HANDLERS
+
+    handlers.update(HANDLERS)
     from .cli_compare import run_compare
 
     handlers["compare"] = run_compare

@@ -10,7 +10,7 @@ from collections.abc import Callable
 
 import xarray as xr
 
-from .errors import InputError, NotAvailableError
+from .errors import InputError
 from .executors import run_processes, run_serial
 from .plan import ScanPlan, plan_scan
 from .results import assemble
@@ -58,9 +58,11 @@ def run_scan(
     ----------
     spec : ScanSpec
         What to compute.
-    executor : {'processes', 'serial'}
+    executor : {'processes', 'serial'} or distributed.Client
         ``'processes'`` runs contiguous chunks of points in local worker processes with
-        one BLAS/OpenMP thread each; ``'serial'`` runs in this process.
+        one BLAS/OpenMP thread each; ``'serial'`` runs in this process; a Dask client
+        (or :class:`~interkit.executors_dask.DaskExecutor`) runs one calculation per
+        task on its cluster (see :mod:`interkit.executors_dask`).
     cache : path-like, optional
         Directory of a :class:`~interkit.store.ResultStore`. Finished calculations are
         written there at once; a rerun (or a resumed, killed run) computes only what
@@ -68,10 +70,11 @@ def run_scan(
     progress : bool or callable
         True shows a tqdm bar; a callable receives ``(done, total, key, record)``.
     workers : int, optional
-        Worker processes (default: all cores).
+        Worker processes (default: all cores); ignored with a Dask client.
     cancel : threading.Event, optional
-        When set, workers stop after their running calculation; finished results are
-        kept and missing points come back as failed ("cancelled").
+        When set, workers stop after their running calculation (Dask: tasks not yet
+        finished are cancelled); finished results are kept and missing points come
+        back as failed ("cancelled").
 
     Returns
     -------
@@ -80,13 +83,18 @@ def run_scan(
     """
     if not isinstance(spec, ScanSpec):
         raise InputError(f"spec: expected an interkit.ScanSpec, got {type(spec).__name__}")
+    dask_executor = None
     if not isinstance(executor, str):
-        raise NotAvailableError("executor: a Dask client is not available yet; use 'processes' or 'serial'")
-    if executor not in ("processes", "serial"):
-        raise InputError(f"executor: {executor!r} is not one of 'processes', 'serial'")
+        from .executors_dask import as_dask_executor
+
+        dask_executor, executor = as_dask_executor(executor), "dask"
+    elif executor not in ("processes", "serial"):
+        raise InputError(f"executor: {executor!r} is not one of 'processes', 'serial' or a Dask client")
     n_workers = workers if workers is not None else (os.cpu_count() or 1)
     if isinstance(n_workers, bool) or not isinstance(n_workers, int) or n_workers < 1:
         raise InputError(f"workers: {workers!r} is not a positive integer")
+    if dask_executor is not None:  # the cluster decides; chunks follow its threads
+        n_workers = max(1, sum(dask_executor.worker_threads().values()))
     plan = plan_scan(spec)
     store = ResultStore(cache) if cache is not None else None
     records: dict[str, dict] = {}
@@ -95,14 +103,16 @@ def run_scan(
             rec = store.get(key)
             if rec is not None:
                 records[key] = rec
-    chunks = _pending_chunks(plan, records, n_workers if executor == "processes" else 1)
+    chunks = _pending_chunks(plan, records, n_workers if executor in ("processes", "dask") else 1)
     n_todo = sum(len(c) for c in chunks)
     report, close = _make_progress(progress if n_todo else False, n_todo)
     t0 = time.perf_counter()
     try:
         if n_todo:
             store_root = os.fspath(store.root) if store is not None else None
-            if executor == "serial" or n_workers == 1 or len(chunks) == 1 and n_workers == 1:
+            if dask_executor is not None:
+                new = dask_executor.run(chunks, plan.jobs, store_root, report, cancel)
+            elif executor == "serial" or n_workers == 1 or len(chunks) == 1 and n_workers == 1:
                 new = run_serial(chunks, plan.jobs, store_root, report, cancel)
             else:
                 new = run_processes(chunks, plan.jobs, store_root, report,
@@ -117,7 +127,7 @@ def run_scan(
     ds = assemble(plan, records, missing_reason="cancelled" if cancelled else "not computed",
                   dispersion_terms=terms)
     ds.attrs["executor"] = executor
-    ds.attrs["workers"] = n_workers if executor == "processes" else 1
+    ds.attrs["workers"] = n_workers if executor in ("processes", "dask") else 1
     ds.attrs["calculations_computed"] = n_todo
     ds.attrs["calculations_from_store"] = len(plan.jobs) - n_todo
     ds.attrs["run_wall_time_s"] = time.perf_counter() - t0

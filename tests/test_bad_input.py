@@ -128,7 +128,7 @@ def test_api_errors_are_typed(small_dimer):
         ik.ScanSpec(dimer=small_dimer, coordinate=ik.AtomPair(1, 2), factors=[1.0], levels=["hf/sto-3g"],
                     decomposition="sapt0", sapt_memory_limit_mb=0.001)
     spec = ik.ScanSpec(dimer=small_dimer, coordinate=ik.AtomPair(1, 2), factors=[1.0], levels=["hf/sto-3g"])
-    with pytest.raises(ik.NotAvailableError, match="Dask"):
+    with pytest.raises(ik.InputError, match="executor: object is not 'processes', 'serial' or a dask"):
         ik.run_scan(spec, executor=object(), progress=False)
     with pytest.raises(ik.InputError, match="executor: 'threads'"):
         ik.run_scan(spec, executor="threads", progress=False)
@@ -147,3 +147,89 @@ def test_cli_usage_error_has_no_traceback(tmp_path):
     out = subprocess.run([sys.executable, "-m", "interkit.cli", "frobnicate"], capture_output=True, text=True)
     assert out.returncode == 2 and "Traceback" not in out.stderr
     assert textwrap.dedent(out.stderr).count("\n") == 1
+
+
+# ---------------------------------------------------------------------- saved-file commands
+@pytest.fixture(scope="module")
+def saved_scan(tmp_path_factory):
+    """A one-point HF/STO-3G scan file, and one whose spec cannot be rebuilt."""
+    folder = tmp_path_factory.mktemp("saved")
+    dimer = ik.Dimer.from_xyz_string(WATER_HF, name="hf-dimer")
+    spec = ik.ScanSpec(dimer=dimer, coordinate=ik.AtomPair(1, 2), factors=[1.0], levels=["hf/sto-3g"])
+    ds = ik.run_scan(spec, executor="serial", progress=False)
+    ik.save_scan(ds, folder / "scan.nc")
+    ds.attrs["spec_json"] = '{"name": "no dimer here"}'
+    ik.save_scan(ds, folder / "nospec.nc")
+    (folder / "notes.nc").write_text("not a netCDF file")
+    return folder
+
+
+# (case id, arguments ({d}: folder of the saved scans, {t}: empty temporary folder), message)
+SAVED_CASES = [
+    ("verify sample 0", "verify {d}/scan.nc --sample 0", "sample: 0 is not a positive number of points"),
+    ("verify sample not a number", "verify {d}/scan.nc --sample many", "invalid int value: 'many'"),
+    ("verify missing file", "verify {t}/none.nc", "does not exist"),
+    ("verify not netCDF", "verify {d}/notes.nc", "not a readable netCDF scan"),
+    ("rerun spec not rebuildable", "rerun {d}/nospec.nc --serial --quiet", "cannot be rebuilt"),
+    ("rerun output not .nc", "rerun {d}/scan.nc -o {t}/again.txt --serial", "should end in .nc"),
+    ("report output not html", "report {d}/scan.nc -o {t}/report.pdf", "should end in .html"),
+    ("report folder missing", "report {d}/scan.nc -o {t}/nowhere/report.html", "does not exist"),
+    ("report unknown reference", "report {d}/scan.nc -o {t}/report.html --reference mp2/x",
+     "--reference: 'mp2/x' is not a level of the scan"),
+    ("export unknown suffix", "export {d}/scan.nc -o {t}/scan.txt", "should end in .csv or .json"),
+    ("export unknown format", "export {d}/scan.nc -o {t}/scan.csv --format xml", "invalid choice: 'xml'"),
+    ("export unknown unit", "export {d}/scan.nc -o {t}/scan.csv --unit furlongs", "unit: 'furlongs'"),
+]
+
+
+@pytest.mark.parametrize("case,args,expected", SAVED_CASES, ids=[c[0] for c in SAVED_CASES])
+def test_saved_file_commands_refuse_bad_input(saved_scan, tmp_path, capsys, case, args, expected):
+    argv = args.format(d=saved_scan, t=tmp_path).split()
+    try:
+        code = main(argv)
+    except SystemExit as exc:      # argparse usage errors
+        code = exc.code
+    err = capsys.readouterr().err.strip()
+    assert code == 2, err
+    assert err.startswith("interkit: error: ") and "\n" not in err, err
+    assert expected in err, err
+    assert list(tmp_path.iterdir()) == [], "something was written"
+
+
+# (case id, arguments ({s}: a spec file, {t}: empty temporary folder), message)
+RUN_AND_STORE_CASES = [
+    ("scheduler address malformed", "scan {s} -o {t}/o.nc --scheduler nonsense",
+     "--scheduler: 'nonsense' is not a scheduler address"),
+    ("scheduler unknown scheme", "scan {s} -o {t}/o.nc --scheduler foo://host:1", "unknown address scheme 'foo'"),
+    ("scheduler not answering", "scan {s} -o {t}/o.nc --scheduler tcp://127.0.0.1:9",
+     "--scheduler: cannot connect to 'tcp://127.0.0.1:9'"),
+    ("scheduler with serial", "scan {s} -o {t}/o.nc --scheduler tcp://127.0.0.1:9 --serial",
+     "leave out --serial and --workers"),
+    ("store info of a plain folder", "store info {t}", "is not a result store"),
+    ("store prune bad size", "store prune {t} --max-size 10XB", "--max-size: '10XB' is not a size"),
+    ("store prune negative size", "store prune {t} --max-size=-1GB", "--max-size: '-1GB' is not a size"),
+    ("store prune without limit", "store prune {t}", "the following arguments are required: --max-size"),
+]
+
+
+@pytest.mark.parametrize("case,args,expected", RUN_AND_STORE_CASES, ids=[c[0] for c in RUN_AND_STORE_CASES])
+def test_scheduler_and_store_commands_refuse_bad_input(tmp_path, capsys, monkeypatch, case, args, expected):
+    import interkit.executors_dask
+
+    monkeypatch.setattr(interkit.executors_dask, "CONNECT_TIMEOUT_S", 1.0)  # nothing listens on port 9
+    spec_dir = tmp_path / "spec"
+    spec_dir.mkdir()
+    (spec_dir / "g.xyz").write_text(WATER_HF)
+    (spec_dir / "spec.toml").write_text(_spec_text())
+    work = tmp_path / "work"
+    work.mkdir()
+    argv = args.format(s=spec_dir / "spec.toml", t=work).split()
+    try:
+        code = main(argv)
+    except SystemExit as exc:      # argparse usage errors
+        code = exc.code
+    err = capsys.readouterr().err.strip()
+    assert code == 2, err
+    assert err.startswith("interkit: error: ") and "\n" not in err, err
+    assert expected in err, err
+    assert list(work.iterdir()) == [], "something was written"
