@@ -8,6 +8,9 @@ Public API::
                        factors=[0.9, 1.0, 1.2, 1.5, 2.0], levels=["hf/def2-svp"])
     ds = ik.run_scan(spec, cache=".interkit-cache")
     ik.save_scan(ds, "scan.nc")
+    ik.verify_scan("scan.nc", sample=3)        # recompute 3 points from scratch, compare
+    ik.write_report(ds, "report.html")         # self-contained HTML, opens offline
+    ik.export_scan(ds, "scan.csv")             # tidy CSV; .json: QCSchema molecules
 
 Computed interaction energies are model results with method and basis-set errors;
 validate them before using them in design decisions.
@@ -29,8 +32,11 @@ from .errors import (
     ResourceError,
     StoreError,
 )
+from .export import export_scan
 from .geometry import Dimer
 from .levels import LevelOfTheory, parse_level
+from .provenance import rerun_scan, verify_scan
+from .report import write_report
 from .results import open_scan, save_scan, validate
 from .run import run_scan
 from .spec import ScanSpec, load_spec_toml
@@ -40,8 +46,8 @@ __all__ = [
     "AtomPair", "CentreOfMass", "analysis", "ConvergenceError", "Dimer", "Frames", "InputError",
     "InterkitError", "InterkitWarning", "LevelOfTheory", "NotAvailableError", "ResourceError",
     "ScanCoordinate", "ScanSpec", "StoreError", "Vector", "__version__", "convert_energy",
-    "list_demos", "load_demo", "load_spec_toml", "open_scan", "parse_level", "run_scan",
-    "save_scan", "validate",
+    "export_scan", "list_demos", "load_demo", "load_spec_toml", "open_scan", "parse_level",
+    "rerun_scan", "run_scan", "save_scan", "validate", "verify_scan", "write_report",
 ]
 
 

@@ -11,6 +11,7 @@
 from __future__ import annotations
 
 import os
+from contextlib import contextmanager
 
 from .errors import InputError
 
@@ -51,56 +52,40 @@ def add_commands(sub, add_run_options) -> None:
     p.add_argument("--unit", default="kcal/mol", help="energy unit of the CSV (default: %(default)s)")
 
 
-def _spec_of(ds, path: str):
-    from .results import spec_of
+@contextmanager
+def _executor(args):
+    """The executor named by the run options: a Dask client for ``--scheduler`` (closed
+    afterwards), else ``'serial'`` or ``'processes'``."""
+    if not getattr(args, "scheduler", None):
+        yield "serial" if args.serial else "processes"
+        return
+    from .executors_dask import connect
 
+    if args.serial or args.workers is not None:
+        raise InputError("--scheduler: the cluster's workers run the scan; leave out --serial and --workers")
+    client = connect(args.scheduler)
     try:
-        return spec_of(ds)
-    except InputError as exc:
-        raise InputError(f"scan file {path!r}: its spec cannot be rebuilt ({exc})") from None
-    except (KeyError, TypeError, ValueError) as exc:
-        raise InputError(f"scan file {path!r}: attrs.spec_json cannot be rebuilt into a spec "
-                         f"({type(exc).__name__}: {exc})") from None
+        yield client
+    finally:
+        client.close()
 
 
-def _key_line(saved, spec, indices=None) -> str:
-    from .plan import plan_scan
-    from .provenance import key_agreement
-
-    match, total = key_agreement(saved, plan_scan(spec), indices)
-    line = f"store keys: {match} of {total} recorded keys are the keys of today's calculations"
-    if match < total:
-        line += (" (keys change with the pyscf version or interkit's numerics version: "
-                 f"file written with pyscf {saved.attrs.get('pyscf_version', '?')})")
-    return line
-
-
-def _finish(rows, what: str) -> int:
-    from .provenance import all_passed, deviation_lines
-
-    print("\n".join(deviation_lines(rows)))
-    if all_passed(rows):
-        print(f"{what}: every variable within its tolerance")
-        return 0
-    failed = ", ".join(r.variable for r in rows if not r.passed)
-    print(f"{what}: FAILED for {failed}")
-    return 1
+def _finish(table) -> int:
+    print(table)
+    return 0 if table.passed else 1
 
 
 def cmd_rerun(args) -> int:
-    from .cli import _check_output, _run
-    from .provenance import compare_datasets
-    from .results import open_scan, save_scan
+    from .cli import _check_output
+    from .provenance import rerun_scan
+    from .results import save_scan
 
-    saved = open_scan(args.scan)
-    spec = _spec_of(saved, args.scan)
     if args.output is not None:
         _check_output(args.output)
-    fresh = _run(spec, args)
-    print(f"rerun of {args.scan}: {fresh.attrs.get('calculations_from_store', 0)} calculations from the store, "
-          f"{fresh.attrs.get('calculations_computed', 0)} computed")
-    print(_key_line(saved, spec))
-    code = _finish(compare_datasets(saved, fresh), "rerun")
+    with _executor(args) as executor:
+        fresh, table = rerun_scan(args.scan, cache=args.cache, executor=executor, workers=args.workers,
+                                  progress=not args.quiet, log=print)
+    code = _finish(table)
     if args.output is not None:
         save_scan(fresh, args.output)
         print(f"wrote {args.output}")
@@ -108,24 +93,12 @@ def cmd_rerun(args) -> int:
 
 
 def cmd_verify(args) -> int:
-    from .provenance import compare_datasets, sample_points, subset_spec
-    from .results import open_scan
-    from .run import run_scan
+    from .provenance import verify_scan
 
-    saved = open_scan(args.scan)
-    spec = _spec_of(saved, args.scan)
-    n = len(spec.points)
-    if saved.sizes["distance"] != n:
-        print(f"verify: FAILED: the file has {saved.sizes['distance']} points but its spec gives {n}")
-        return 1
-    indices = sample_points(n, args.sample, args.seed)
-    sub = subset_spec(spec, indices)
-    where = ", ".join(f"{p.distance:.4f}" for p in sub.points)
-    print(f"verifying {len(indices)} of {n} points (seed {args.seed}) at {where} Å, recomputed from scratch")
-    fresh = run_scan(sub, executor="serial" if args.serial else "processes", cache=None,
-                     progress=not args.quiet, workers=args.workers)
-    print(_key_line(saved, sub, indices))
-    return _finish(compare_datasets(saved, fresh, indices), "verify")
+    table = verify_scan(args.scan, sample=args.sample, seed=args.seed,
+                        executor="serial" if args.serial else "processes", workers=args.workers,
+                        progress=not args.quiet, log=print)
+    return _finish(table)
 
 
 def cmd_report(args) -> int:
@@ -147,7 +120,7 @@ def cmd_export(args) -> int:
     from .export import export_format, export_scan
     from .results import open_scan
 
-    export_format(args.output, args.format)       # check before reading the scan
+    export_format(args.output, args.format, ("--output", "--format"))   # check before reading the scan
     ds = open_scan(args.scan)
     export_scan(ds, args.output, args.format, args.unit)
     print(f"wrote {args.output}")

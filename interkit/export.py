@@ -306,23 +306,48 @@ def write_json(ds: xr.Dataset, path: str | os.PathLike) -> str:
     return path
 
 
-def export_format(path: str, fmt: str | None = None) -> str:
-    """The export format named by ``fmt`` or, if None, by the suffix of ``path``."""
+def export_format(path: str, fmt: str | None = None, fields: tuple[str, str] = ("path", "fmt")) -> str:
+    """The export format named by ``fmt`` or, if None, by the suffix of ``path``.
+
+    ``fields`` names the two arguments in error messages (the command line passes
+    ``("--output", "--format")``).
+    """
     if fmt is not None:
         if fmt not in FORMATS:
-            raise InputError(f"--format: {fmt!r} is not one of {', '.join(FORMATS)}")
+            raise InputError(f"{fields[1]}: {fmt!r} is not one of {', '.join(FORMATS)}")
         return fmt
     suffix = os.path.splitext(path)[1].lower().lstrip(".")
     if suffix not in FORMATS:
-        raise InputError(f"--output: {path!r} should end in .csv or .json (or give --format)")
+        raise InputError(f"{fields[0]}: {path!r} should end in .csv or .json (or give {fields[1]})")
     return suffix
 
 
-def export_scan(ds: xr.Dataset, path: str | os.PathLike, fmt: str | None = None,
-                unit: str = "kcal/mol") -> str:
-    """Write ``ds`` as tidy CSV or JSON, chosen by ``fmt`` or the suffix of ``path``."""
+def export_scan(ds, path: str | os.PathLike, fmt: str | None = None, unit: str = "kcal/mol") -> str:
+    """Write a scan as a tidy CSV table or as JSON with QCSchema molecules.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset or path-like
+        A scan Dataset, or the ``.nc`` file written by :func:`interkit.save_scan`.
+    path : path-like
+        File to write; its folder must exist.
+    fmt : {'csv', 'json'}, optional
+        Default: from the suffix of ``path``.
+    unit : str
+        Energy unit of the CSV (kcal/mol, kJ/mol, eV, cm-1 or hartree; forces stay in
+        kcal/mol/angstrom). The JSON keeps kcal/mol and states every variable's units.
+
+    Returns
+    -------
+    str
+        The path written.
+    """
     path = os.fspath(path)
     kind = export_format(path, fmt)
+    if not isinstance(ds, xr.Dataset):
+        from .provenance import load_saved
+
+        ds = load_saved(ds)[0]
     if kind == "csv":
         return write_tidy_csv(ds, path, unit)
     if unit != "kcal/mol":

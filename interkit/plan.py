@@ -18,7 +18,7 @@ from .levels import LevelOfTheory
 from .spec import ScanSpec
 
 #: bump when a change in interkit alters the numbers a job produces
-NUMERICS_VERSION = 1
+NUMERICS_VERSION = 2
 #: coordinates in job descriptions are rounded to this many decimals of an angstrom
 COORDINATE_DECIMALS = 10
 
@@ -53,7 +53,8 @@ def force_method(level: LevelOfTheory) -> str:
     if level.method in ("hf", "dft"):
         return "analytic"
     if level.method == "mp2":
-        return "analytic (conventional MP2)"
+        # open-shell fragments fall back to the conventional MP2 gradient (engine.energy)
+        return "analytic (DF-MP2)" if level.density_fitting else "analytic (conventional MP2)"
     return "numerical"
 
 

@@ -1,10 +1,18 @@
-"""Provenance of a scan Dataset and checks that its numbers can be reproduced (pure helpers).
+"""Provenance of a scan Dataset and checks that its numbers can be reproduced.
 
 A saved scan carries its full spec (``spec_json``), the versions of every library whose
 numbers enter it and the store key of each calculation (``job_key``). This module says
 what to compare between a saved scan and a recomputation, within which tolerance, on
-which points, and compares two Datasets; the ``interkit rerun``/``verify`` commands
-drive it.
+which points, and compares two Datasets (pure helpers). Two functions run the
+recomputation itself, from Python or a notebook as well as from ``interkit
+rerun``/``verify``:
+
+* :func:`verify_scan` recomputes a few sampled points from scratch (no store) and
+  compares every variable with the saved scan;
+* :func:`rerun_scan` runs the saved spec again (reusing a store, if given) and compares.
+
+Both return a :class:`DeviationTable`: a list of :class:`Deviation` rows that prints as
+a text table and says whether every variable passed.
 
 Tolerances are absolute, per variable, in the variable's own units (see
 :func:`tolerances`). They follow from the convergence thresholds of the calculations,
@@ -17,6 +25,8 @@ from __future__ import annotations
 
 import json
 import math
+import os
+from collections.abc import Callable
 from dataclasses import asdict, dataclass
 
 import numpy as np
@@ -507,3 +517,214 @@ def provenance_summary(ds: xr.Dataset) -> dict:
             value = ds.attrs[key]
             out[key] = value.item() if hasattr(value, "item") else value
     return out
+
+
+# ---------------------------------------------------------------------- replay
+class DeviationTable(list):
+    """The rows of :func:`compare_datasets` (a list of :class:`Deviation`), with what
+    was compared.
+
+    ``print(table)`` shows one line per variable and the verdict; ``table.passed`` is
+    True when every variable lies within its tolerance.
+
+    Attributes
+    ----------
+    what : str
+        ``"verify"`` or ``"rerun"``.
+    indices : numpy.ndarray of int
+        Positions of the compared points in the saved scan.
+    distances : numpy.ndarray of float
+        Their values of the scan coordinate (angstrom).
+    keys_matching, keys_total : int
+        Store keys recorded for the compared points that are the keys of today's
+        calculations, and all recorded keys of those points (see :func:`key_agreement`).
+    file_pyscf_version : str
+        The pyscf version the saved scan was computed with.
+    fresh : xarray.Dataset or None
+        The recomputation.
+    """
+
+    def __init__(self, rows=(), what: str = "", indices=None, distances=None, keys: tuple[int, int] = (0, 0),
+                 file_pyscf_version: str = "", fresh: xr.Dataset | None = None):
+        super().__init__(rows)
+        self.what = what
+        self.indices = np.asarray(indices if indices is not None else [], dtype=int)
+        self.distances = np.asarray(distances if distances is not None else [], dtype=float)
+        self.keys_matching, self.keys_total = int(keys[0]), int(keys[1])
+        self.file_pyscf_version = file_pyscf_version
+        self.fresh = fresh
+
+    @property
+    def passed(self) -> bool:
+        """True when every row passed (see :func:`all_passed`)."""
+        return all_passed(self)
+
+    @property
+    def failed(self) -> list[str]:
+        """Names of the variables (rows) outside their tolerance."""
+        return [r.variable for r in self if not r.passed]
+
+    def lines(self) -> list[str]:
+        """The text table (see :func:`deviation_lines`)."""
+        return deviation_lines(self)
+
+    def verdict(self) -> str:
+        """One line: every variable within its tolerance, or which failed."""
+        if self.passed:
+            return f"{self.what}: every variable within its tolerance"
+        return f"{self.what}: FAILED for {', '.join(self.failed)}"
+
+    def key_line(self) -> str:
+        """One line on the store keys of the compared points."""
+        line = (f"store keys: {self.keys_matching} of {self.keys_total} recorded keys are the keys of "
+                "today's calculations")
+        if self.keys_matching < self.keys_total:
+            line += (" (keys change with the pyscf version or interkit's numerics version: "
+                     f"file written with pyscf {self.file_pyscf_version or '?'})")
+        return line
+
+    def __str__(self) -> str:
+        return "\n".join(self.lines() + [self.verdict()])
+
+
+def _say(log: Callable[[str], None] | None, text: str) -> None:
+    if log is not None:
+        log(text)
+
+
+def load_saved(ds_or_path) -> tuple[xr.Dataset, str | None]:
+    """The scan Dataset of ``ds_or_path`` and its path (None for a Dataset in memory).
+
+    Parameters
+    ----------
+    ds_or_path : xarray.Dataset or path-like
+        A scan Dataset, or the ``.nc`` file written by :func:`interkit.save_scan`.
+    """
+    from .results import open_scan, validate
+
+    if isinstance(ds_or_path, xr.Dataset):
+        validate(ds_or_path)
+        return ds_or_path, None
+    if isinstance(ds_or_path, (str, os.PathLike)):
+        return open_scan(ds_or_path), os.fspath(ds_or_path)
+    raise InputError(f"scan: expected an xarray.Dataset or the path of a .nc file, got {type(ds_or_path).__name__}")
+
+
+def rebuild_spec(ds: xr.Dataset, path: str | None = None):
+    """The :class:`~interkit.spec.ScanSpec` recorded in ``ds`` (``attrs["spec_json"]``).
+
+    Raises :class:`~interkit.errors.InputError` naming the file (``path``) when the
+    spec is missing or cannot be rebuilt.
+    """
+    from .results import spec_of
+
+    where = f"scan file {path!r}" if path is not None else "scan"
+    try:
+        return spec_of(ds)
+    except InputError as exc:
+        raise InputError(f"{where}: its spec cannot be rebuilt ({exc})") from None
+    except (KeyError, TypeError, ValueError) as exc:
+        raise InputError(f"{where}: attrs.spec_json cannot be rebuilt into a spec "
+                         f"({type(exc).__name__}: {exc})") from None
+
+
+def verify_scan(ds_or_path, sample: int = 3, seed: int = 0, executor="processes", workers: int | None = None,
+                progress=True, log: Callable[[str], None] | None = None) -> DeviationTable:
+    """Recompute sampled points of a saved scan from scratch and compare every variable.
+
+    The sampled points form a spec of their own (:func:`subset_spec`), so they are the
+    same calculations, with the same store keys, as in the full scan; they run without
+    a store, each SCF from pyscf's default initial guess.
+
+    Parameters
+    ----------
+    ds_or_path : xarray.Dataset or path-like
+        The saved scan (its ``spec_json`` attribute says what to recompute).
+    sample : int
+        Number of points to recompute; more than the scan has recomputes all.
+    seed : int
+        Seed of the point sampling (:func:`sample_points`); the same seed picks the
+        same points.
+    executor : {'processes', 'serial'} or distributed.Client
+        Where to compute (see :func:`interkit.run_scan`).
+    workers : int, optional
+        Worker processes for ``'processes'`` (default: all cores).
+    progress : bool or callable
+        Progress of the recomputation, as in :func:`interkit.run_scan`.
+    log : callable, optional
+        Receives one-line messages (the points chosen, the store keys), e.g. ``print``.
+
+    Returns
+    -------
+    DeviationTable
+        One :class:`Deviation` per variable: largest absolute deviation and its
+        tolerance, both in the variable's units (kcal/mol for energies, hartree for
+        totals, kcal/mol/angstrom for forces, angstrom for distances). A saved scan
+        whose number of points differs from its spec gives a single failed
+        ``distance`` row.
+    """
+    from .plan import plan_scan
+    from .run import run_scan
+
+    saved, path = load_saved(ds_or_path)
+    spec = rebuild_spec(saved, path)
+    n = len(spec.points)
+    m = int(saved.sizes["distance"])
+    file_pyscf = str(saved.attrs.get("pyscf_version", ""))
+    if m != n:
+        row = Deviation("distance", "angstrom", 0, math.inf, f"the file has {m} points but its spec gives {n}",
+                        abs(m - n), GEOMETRY_TOLERANCE, "same scan points", False)
+        return DeviationTable([row], "verify", file_pyscf_version=file_pyscf)
+    indices = sample_points(n, sample, seed)
+    sub = subset_spec(spec, indices)
+    distances = np.array([p.distance for p in sub.points])
+    _say(log, f"verifying {len(indices)} of {n} points (seed {seed}) at "
+              f"{', '.join(f'{r:.4f}' for r in distances)} Å, recomputed from scratch")
+    fresh = run_scan(sub, executor=executor, cache=None, progress=progress, workers=workers)
+    table = DeviationTable(compare_datasets(saved, fresh, indices), "verify", indices, distances,
+                           key_agreement(saved, plan_scan(sub), indices), file_pyscf, fresh)
+    _say(log, table.key_line())
+    return table
+
+
+def rerun_scan(ds_or_path, cache: str | os.PathLike | None = None, executor="processes",
+               workers: int | None = None, progress=True,
+               log: Callable[[str], None] | None = None) -> tuple[xr.Dataset, DeviationTable]:
+    """Run a saved scan's spec again and compare the result with the saved numbers.
+
+    Parameters
+    ----------
+    ds_or_path : xarray.Dataset or path-like
+        The saved scan (its ``spec_json`` attribute is the spec to run).
+    cache : path-like, optional
+        Result store; calculations found there are reused, not recomputed (with the
+        store the scan was computed into, a rerun checks the store and the file agree).
+    executor : {'processes', 'serial'} or distributed.Client
+        Where to compute (see :func:`interkit.run_scan`).
+    workers : int, optional
+        Worker processes for ``'processes'`` (default: all cores).
+    progress : bool or callable
+        Progress of the run, as in :func:`interkit.run_scan`.
+    log : callable, optional
+        Receives one-line messages (calculations computed and reused, store keys).
+
+    Returns
+    -------
+    (xarray.Dataset, DeviationTable)
+        The new scan (energies in kcal/mol, as every scan) and one :class:`Deviation`
+        per variable against the saved one, in the variable's units.
+    """
+    from .plan import plan_scan
+    from .run import run_scan
+
+    saved, path = load_saved(ds_or_path)
+    spec = rebuild_spec(saved, path)
+    fresh = run_scan(spec, executor=executor, cache=cache, progress=progress, workers=workers)
+    _say(log, f"rerun of {path or 'the scan'}: {fresh.attrs.get('calculations_from_store', 0)} calculations from "
+              f"the store, {fresh.attrs.get('calculations_computed', 0)} computed")
+    n = int(saved.sizes["distance"])
+    distances = np.asarray(saved["distance"].values, dtype=float)
+    table = DeviationTable(compare_datasets(saved, fresh), "rerun", np.arange(n), distances,
+                           key_agreement(saved, plan_scan(spec)), str(saved.attrs.get("pyscf_version", "")), fresh)
+    _say(log, table.key_line())
+    return fresh, table

@@ -318,7 +318,8 @@ def _provenance_section(ds: xr.Dataset) -> str:
             + _table(["item", "value"], rows, text=(0, 1))
             + "<p>Library versions:</p>" + _table(["library", "version"], versions, text=(0, 1))
             + '<p class="note">Reproduce the scan with <code>interkit rerun</code> on the netCDF file, or '
-            "recompute sampled points with <code>interkit verify</code>.</p>"
+            "recompute sampled points with <code>interkit verify</code> (in Python: "
+            "<code>interkit.rerun_scan</code>, <code>interkit.verify_scan</code>).</p>"
             + f"<details><summary>Full spec (JSON)</summary><pre>{_e(spec_text)}</pre></details>")
 
 
@@ -377,13 +378,37 @@ def render_report(ds: xr.Dataset, reference: str | None = None) -> str:
             "no number in it was recomputed.</footer></body></html>\n")
 
 
-def write_report(ds: xr.Dataset, path: str | os.PathLike, reference: str | None = None) -> str:
-    """Write :func:`render_report` to ``path`` (atomically: temporary file, then rename);
-    return the path."""
+def write_report(ds, path: str | os.PathLike, reference: str | None = None) -> str:
+    """Write the HTML report of a scan (see :func:`render_report`) to one file.
+
+    The file is self-contained: figures are inline PNG images, the style sheet is
+    inline, and there are no scripts and no links to other resources, so it opens in a
+    browser without a network and can be sent by mail or archived beside the data.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset or path-like
+        A scan Dataset, or the ``.nc`` file written by :func:`interkit.save_scan`.
+    path : path-like
+        HTML file to write (atomically: a temporary file in the same folder, then a
+        rename); its folder must exist.
+    reference : str, optional
+        Level used as reference in the comparison of levels (default: the highest
+        level of the scan by :func:`level_rank`).
+
+    Returns
+    -------
+    str
+        The path written.
+    """
     path = os.fspath(path)
     folder = os.path.dirname(os.path.abspath(path))
     if not os.path.isdir(folder):
-        raise InputError(f"--output: folder {folder!r} does not exist")
+        raise InputError(f"path: folder {folder!r} does not exist")
+    if not isinstance(ds, xr.Dataset):
+        from .provenance import load_saved
+
+        ds = load_saved(ds)[0]
     text = render_report(ds, reference)
     tmp = os.path.join(folder, f".tmp-{os.getpid()}-{os.path.basename(path)}")
     try:

@@ -45,9 +45,8 @@ CASES = [
     ("Water_dimer", "hf/def2-svp", [(0, 0), (1, 1), (3, 0), (4, 2)], False),
     ("Ammonia_dimer", "hf/def2-svp", [(0, 0), (5, 1)], False),
     ("Water_dimer", "b3lyp-d3bj/def2-svp", [(0, 0), (5, 2)], False),
-    # MP2 forces use conventional MP2 (DF-MP2 has no analytic gradient): compare with
-    # the energies of the same conventional calculations
-    ("Water_dimer", "mp2/def2-svp", [(0, 0), (4, 1)], True),
+    # DF-MP2 gradients: the derivative of the DF-MP2 energies of energy-only scans
+    ("Water_dimer", "mp2/def2-svp", [(0, 0), (4, 1)], False),
 ]
 
 
@@ -206,3 +205,144 @@ def test_pulay_part_of_the_interaction_force_shrinks_with_the_basis():
         full.append(float(ds["force_along"].values[0, 0]))
     assert pulay[0] > pulay[1] > pulay[2]
     assert max(full) - min(full) < 0.1 * pulay[0]
+
+
+# --- the fitted gradient code against pyscf, its caches, DF-MP2 ------------------------
+
+WATER_AND_GHOSTS = ("O 0 0 0; H 0 0.76 0.59; H 0 -0.76 0.59; "
+                    "{g}O 0.1 0.2 3; {g}H 0.7 0 3.5; {g}H -0.5 0.3 3.6")
+
+
+def _fitted_scf(level_text, ghost, grids=None):
+    from pyscf import dft, gto, scf
+
+    level = ik.parse_level(level_text)
+    mol = gto.M(atom=WATER_AND_GHOSTS.format(g="ghost-" if ghost else ""), basis=level.basis, verbose=0)
+    if level.method == "dft":
+        mf = dft.RKS(mol).density_fit()
+        mf.xc = level.functional
+        mf.small_rho_cutoff = 0.0
+        if grids is not None:  # the same grid object, as the calculations of a scan point share it
+            mf.grids = grids.copy()
+            mf.grids.mol = mol
+    else:
+        mf = scf.RHF(mol).density_fit()
+    mf.conv_tol = 1e-11
+    mf.kernel()
+    return level, mf
+
+
+@pytest.mark.parametrize("level_text", ["hf/def2-svp", "b3lyp/def2-svp", "pbe/def2-svp", "svwn/sto-3g"])
+def test_fitted_scf_gradient_equals_pyscf_and_caches_change_nothing(level_text, monkeypatch):
+    """The gradient assembled from shared integrals (and DFT atom-grid data) equals pyscf's
+    density-fitting gradient with grid response, for the real and the ghosted molecule;
+    the second calculation of a point reuses the kept data and gets the same numbers as
+    a calculation with the caches switched off."""
+    from interkit.engine import fitted_integrals, numint_cache
+    from interkit.engine.gradient import _ghost_aware_grids, electrostatic_forces, fitted_scf_gradient
+
+    fitted_integrals.clear_cache()
+    numint_cache.release_response_cache()
+    level, mf_real = _fitted_scf(level_text, ghost=False)
+    grids = getattr(mf_real, "grids", None)
+    results = {}
+    for name, ghost in (("real", False), ("ghost", True)):
+        level, mf = (level, mf_real) if not ghost else _fitted_scf(level_text, True, grids)
+        g = mf.nuc_grad_method()
+        if level.method == "dft":
+            g.grid_response = True
+            g.grids = _ghost_aware_grids(mf)
+        reference = g.kernel()
+        grad, es = fitted_scf_gradient(mf, level)
+        np.testing.assert_allclose(grad, reference, atol=1e-9)
+        np.testing.assert_allclose(es, electrostatic_forces(mf.mol, mf.make_rdm1()), atol=1e-12)
+        results[name] = (mf, grad)
+    assert fitted_integrals.cached_bytes() > 0
+    # caches off: integrals and atom-grid values recomputed, numbers unchanged
+    monkeypatch.setattr(fitted_integrals, "FITTED_CACHE_MB", 0)
+    monkeypatch.setattr(numint_cache, "GRID_RESPONSE_CACHE_MB", 0)
+    fitted_integrals.clear_cache()
+    numint_cache.release_response_cache()
+    mf, grad = results["ghost"]
+    uncached, _ = fitted_scf_gradient(mf, level)
+    np.testing.assert_allclose(uncached, grad, atol=1e-12)
+    assert fitted_integrals.cached_bytes() == 0
+    assert numint_cache.response_cache_bytes() == 0
+
+
+def test_kept_integrals_stay_within_their_budget(monkeypatch):
+    from interkit.engine import fitted_integrals, numint_cache
+    from interkit.engine.gradient import fitted_scf_gradient
+
+    fitted_integrals.clear_cache()
+    numint_cache.release_response_cache()
+    budget_mb = 5.0
+    monkeypatch.setattr(fitted_integrals, "FITTED_CACHE_MB", budget_mb)
+    monkeypatch.setattr(numint_cache, "GRID_RESPONSE_CACHE_MB", budget_mb)
+    level, mf = _fitted_scf("b3lyp/def2-svp", ghost=True)
+    fitted_scf_gradient(mf, level)
+    assert 0 < fitted_integrals.cached_bytes() <= budget_mb * 1e6
+    assert numint_cache.response_cache_bytes() <= budget_mb * 1e6
+    # a new geometry replaces the kept data instead of adding to it
+    for shift in (0.1, 0.2):
+        mol = mf.mol.set_geom_(mf.mol.atom_coords() + shift * np.eye(3)[0], unit="Bohr", inplace=False)
+        mf2 = mf.copy()
+        mf2.reset(mol)
+        mf2.grids.build(with_non0tab=True)
+        mf2.kernel()
+        fitted_scf_gradient(mf2, level)
+        assert fitted_integrals.cached_bytes() <= budget_mb * 1e6
+        assert numint_cache.response_cache_bytes() <= budget_mb * 1e6
+    fitted_integrals.clear_cache()
+    numint_cache.release_response_cache()
+
+
+def test_fitted_zvector_response_equals_the_reference_fock_response():
+    from functools import reduce
+
+    from interkit.engine.fitted_integrals import fitted_integrals
+    from interkit.engine.mp2_gradient import _fitted_response
+
+    _, mf = _fitted_scf("hf/def2-svp", ghost=True)
+    ints = fitted_integrals(mf.mol, mf.with_df.auxmol)
+    nocc = int((mf.mo_occ > 0).sum())
+    occ, vir = mf.mo_coeff[:, :nocc], mf.mo_coeff[:, nocc:]
+    x = np.random.default_rng(7).normal(size=(vir.shape[1], nocc))
+    d = vir @ x @ occ.T
+    expected = 2 * reduce(np.dot, (vir.T, mf.get_veff(mf.mol, d + d.T), occ))
+    response = _fitted_response(ints, ints.whitened_tensor(mf.with_df), occ, vir)
+    np.testing.assert_allclose(response(x).reshape(expected.shape), expected, atol=1e-11)
+
+
+def test_dfmp2_gradient_is_the_derivative_of_the_dfmp2_energy():
+    """Frozen core, ghost atoms, the reference's fitting basis: the analytic gradient
+    against central differences (step 1e-4 bohr) of pyscf's DF-MP2 energy."""
+    from pyscf import mp, scf
+
+    from interkit.engine.mp2_gradient import fitted_mp2_gradient
+
+    _, mf = _fitted_scf("hf/def2-svp", ghost=True)
+    mol = mf.mol
+    reference = mp.MP2(mf).density_fit()
+    reference.frozen = 1
+    reference.kernel()
+    e_corr, grad = fitted_mp2_gradient(mf, 1)
+    assert e_corr == pytest.approx(reference.e_corr, abs=1e-10)
+    assert np.abs(grad.sum(axis=0)).max() < 1e-9
+
+    def energy(coords):
+        m = mol.set_geom_(coords, unit="Bohr", inplace=False)
+        f = scf.RHF(m).density_fit().run(conv_tol=1e-12)
+        p = mp.MP2(f).density_fit()
+        p.frozen = 1
+        p.kernel()
+        return p.e_tot
+
+    h = 1e-4
+    for atom, axis in [(0, 2), (2, 1), (3, 0), (5, 2)]:
+        shifted = []
+        for sign in (1, -1):
+            c = mol.atom_coords().copy()
+            c[atom, axis] += sign * h
+            shifted.append(energy(c))
+        assert grad[atom, axis] == pytest.approx((shifted[0] - shifted[1]) / (2 * h), abs=1e-7), (atom, axis)

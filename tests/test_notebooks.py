@@ -12,7 +12,7 @@ import pytest
 
 NOTEBOOKS = Path(__file__).resolve().parent.parent / "notebooks"
 NAMES = ["01-quickstart.ipynb", "02-levels.ipynb", "03-reopen.ipynb", "04-forces.ipynb", "05-decomposition.ipynb",
-         "06-dispersion.ipynb"]
+         "06-dispersion.ipynb", "07-share-and-scale.ipynb"]
 WIDGET_VIEW = "application/vnd.jupyter.widget-view+json"
 
 
@@ -99,6 +99,29 @@ def test_notebook_executes(name, tmp_path, monkeypatch, saved_scan):
         line = next(x for x in text.splitlines() if x.startswith("methane_ethene: well depth B3LYP"))
         bare, corrected = [float(w) for w in line.replace(",", " ").split() if w.replace(".", "").isdigit()][:2]
         assert bare < 0.2 < corrected
+    elif name == "07-share-and-scale.ipynb":
+        import re
+
+        lines = text.splitlines()
+        # the Dask cluster and local processes agree within the stated tolerance
+        line = next(x for x in lines if x.startswith("max |E_int(Dask) - E_int(processes)|"))
+        worst, tol = (float(w) for w in re.findall(r"\d\.\d+e[-+]\d+", line))
+        assert worst < tol and "all within tolerance: True" in text
+        # 4 points x 2 levels x 3 counterpoise calculations + 2 x 2 own-basis monomers
+        assert "Dask: 28 calculations on 2 workers" in text
+        assert "store keys in the file: 28; calculations computed: 28" in text
+        assert "verifying 2 of 4 points (seed 0)" in text and "verify: every variable within its tolerance" in text
+        assert "cluster closed" in text
+        report = next(x for x in lines if x.startswith("report "))
+        assert int(re.search(r"(\d+) inline figures", report).group(1)) >= 1
+        assert "0 scripts, 0 web addresses" in report
+        assert "level,distance_angstrom,factor,variable,value,unit,status" in text
+        assert "molecule: qcschema_molecule, 9 atoms" in text
+        assert "28 calculations from the store, 0 computed" in text and "rerun: every variable within" in text
+        pruned = next(x for x in lines if x.startswith("pruned to "))
+        limit, removed, left, remaining = (int(n) for n in re.findall(r"(\d+) (?:bytes \(|entries|left|bytes$)",
+                                                                      pruned))
+        assert removed > 0 and left > 0 and remaining <= limit
     else:
         assert "found saved scan" in text and "nothing to compute" in text
         assert "computed and saved" not in text and _widget_views(nb) == 1

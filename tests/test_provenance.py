@@ -216,3 +216,89 @@ def test_rerun_reports_a_tampered_file(saved, tmp_path, capsys):
     code = main(["rerun", str(bad), "--cache", str(store), "--serial", "--quiet"])
     out = capsys.readouterr().out
     assert code == 1 and "rerun: FAILED for bsse" in out, out
+
+
+# ---------------------------------------------------------------------- the Python API
+def test_verify_scan_from_python_on_a_dataset_and_a_path(saved):
+    path, _store = saved
+    said = []
+    table = ik.verify_scan(ik.open_scan(path), sample=2, seed=1, executor="serial", progress=False,
+                           log=said.append)
+    assert isinstance(table, list) and all(isinstance(r, provenance.Deviation) for r in table)
+    assert table.passed and table.failed == [] and table.what == "verify"
+    assert list(table.indices) == list(provenance.sample_points(3, 2, seed=1))
+    saved_ds = ik.open_scan(path)
+    assert np.allclose(table.distances, saved_ds["distance"].values[table.indices])
+    assert table.fresh.sizes["distance"] == 2
+    assert (table.keys_matching, table.keys_total) == (10, 10)       # 2 points x 5 roles
+    assert said[0].startswith("verifying 2 of 3 points (seed 1)") and said[1].startswith("store keys: 10 of 10")
+    rows = {r.variable: r for r in table}
+    assert rows["e_int"].n_compared == 2 and rows["e_int"].max_abs_deviation <= rows["e_int"].tolerance
+    text = str(table)
+    assert text.splitlines()[0].startswith("variable") and text.endswith("verify: every variable within its tolerance")
+    # the same points from the file path
+    again = ik.verify_scan(path, sample=2, seed=1, executor="serial", progress=False)
+    assert list(again.indices) == list(table.indices) and again.passed
+
+
+def test_verify_scan_reports_a_tampered_value_without_raising(saved, tmp_path):
+    bad = _tampered(saved[0], tmp_path, "e_int", (0, 2), -0.01)
+    table = ik.verify_scan(bad, sample=3, executor="serial", progress=False)
+    assert not table.passed and "e_int" in table.failed
+    assert str(table).endswith("verify: FAILED for e_int")
+
+
+def test_verify_scan_refuses_a_file_whose_points_do_not_match_its_spec(saved, tmp_path):
+    ds = ik.open_scan(saved[0]).isel(distance=[0, 1])
+    table = ik.verify_scan(ds, executor="serial", progress=False)
+    assert not table.passed and len(table) == 1
+    assert table[0].variable == "distance" and "the file has 2 points but its spec gives 3" in table[0].where
+
+
+def test_rerun_scan_from_python_reuses_the_store(saved):
+    path, store = saved
+    said = []
+    fresh, table = ik.rerun_scan(path, cache=store, executor="serial", progress=False, log=said.append)
+    n_jobs = len(plan_scan(ik.results.spec_of(fresh)).jobs)       # 3 x 3 counterpoise + 2 own-basis monomers
+    assert n_jobs == 11
+    assert fresh.attrs["calculations_computed"] == 0 and fresh.attrs["calculations_from_store"] == n_jobs
+    assert table.passed and table.what == "rerun" and list(table.indices) == [0, 1, 2]
+    assert (table.keys_matching, table.keys_total) == (15, 15)
+    assert said[0] == f"rerun of {path}: 11 calculations from the store, 0 computed"
+    assert np.array_equal(fresh["e_int"].values, ik.open_scan(path)["e_int"].values)
+
+
+def test_api_refuses_what_is_not_a_scan(saved, tmp_path):
+    with pytest.raises(ik.InputError, match="scan: expected an xarray.Dataset or the path of a .nc file, got int"):
+        ik.verify_scan(3)
+    with pytest.raises(ik.InputError, match="does not exist"):
+        ik.rerun_scan(tmp_path / "absent.nc")
+    ds = ik.open_scan(saved[0])
+    del ds.attrs["spec_json"]
+    with pytest.raises(ik.InputError, match="attrs.spec_json: missing"):
+        ik.verify_scan(ds, executor="serial")
+    ds = ik.open_scan(saved[0])
+    ds.attrs["spec_json"] = json.dumps({"levels": []})
+    with pytest.raises(ik.InputError, match="^scan: attrs.spec_json cannot be rebuilt into a spec"):
+        ik.rerun_scan(ds, executor="serial")
+    with pytest.raises(ik.InputError, match="sample: 0 is not a positive number of points"):
+        ik.verify_scan(saved[0], sample=0)
+
+
+def test_report_and_exports_accept_a_scan_file(saved, tmp_path):
+    import csv
+
+    path = saved[0]
+    html_path = ik.write_report(path, tmp_path / "r.html")
+    assert "<h2>Provenance</h2>" in open(html_path, encoding="utf-8").read()
+    with open(ik.export_scan(path, tmp_path / "s.csv", unit="kJ/mol"), newline="", encoding="utf-8") as fh:
+        rows = list(csv.DictReader(fh))
+    ds = ik.open_scan(path)
+    e_int = [r for r in rows if r["variable"] == "e_int"]
+    assert float(e_int[0]["value"]) == pytest.approx(float(ds["e_int"].values[0, 0]) * 4.184, rel=1e-9)
+    doc = json.loads(open(ik.export_scan(path, tmp_path / "s.json"), encoding="utf-8").read())
+    assert len(doc["points"]) == 3
+    with pytest.raises(ik.InputError, match="path: .*should end in .csv or .json \\(or give fmt\\)"):
+        ik.export_scan(path, tmp_path / "s.txt")
+    with pytest.raises(ik.InputError, match="path: folder .* does not exist"):
+        ik.write_report(path, tmp_path / "nowhere" / "r.html")

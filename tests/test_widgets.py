@@ -127,10 +127,47 @@ def test_exports_are_written_and_readable(explorer, scan, tmp_path):
     for kind, button in explorer.export_buttons.items():
         button.click()
         assert "wrote" in explorer.export_status.value, kind
-    assert {p.name for p in tmp_path.iterdir()} >= {"clicked.nc", "clicked.csv", "clicked.png", "clicked.svg"}
+    assert {p.name for p in tmp_path.iterdir()} >= {"clicked.nc", "clicked.csv", "clicked.png", "clicked.svg",
+                                                    "clicked.html", "clicked.json", "clicked-tidy.csv"}
     explorer.export_dir.value = str(tmp_path / "no-such-folder")
-    explorer.export_buttons["CSV"].click()
+    for kind in ("CSV", "report", "JSON", "tidy CSV"):
+        explorer.export_status.value = ""
+        explorer.export_buttons[kind].click()
+        assert "interkit-error" in explorer.export_status.value and "does not exist" in explorer.export_status.value
+
+
+def test_share_buttons_write_report_json_and_tidy_csv(explorer, scan, tmp_path):
+    import json
+
+    explorer.unit = "kJ/mol"
+    explorer.export_stem.value = "shared"
+    for kind in ("report", "JSON", "tidy CSV"):
+        explorer.export_buttons[kind].click()
+        assert "wrote" in explorer.export_status.value, kind
+    text = (tmp_path / "shared.html").read_text(encoding="utf-8")
+    assert "<script" not in text.lower() and scan.attrs["caution"] in text
+    for v in scan["e_int"].sel(level="hf/3-21g").values:     # the report shows the Dataset's numbers
+        assert f"<td>{v:.3f}</td>" in text
+    doc = json.loads((tmp_path / "shared.json").read_text(encoding="utf-8"))
+    assert doc["schema_name"] == "interkit_scan_export" and len(doc["points"]) == scan.sizes["distance"]
+    assert doc["variables"]["e_int"]["values"][1][2] == pytest.approx(float(scan["e_int"].values[1, 2]))
+    with open(tmp_path / "shared-tidy.csv", newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    e_int = [r for r in rows if r["variable"] == "e_int"]
+    assert len(e_int) == scan.sizes["level"] * scan.sizes["distance"]
+    assert {r["unit"] for r in e_int} == {"kJ/mol"}              # the display unit
+    first = next(r for r in e_int if r["level"] == "hf/sto-3g")
+    assert float(first["value"]) == pytest.approx(float(scan["e_int"].sel(level="hf/sto-3g")[0]) * 4.184, rel=1e-6)
+
+
+def test_export_errors_stay_in_the_widget(explorer, monkeypatch):
+    def broken(*args, **kwargs):
+        raise ValueError("figure could not be drawn")
+
+    monkeypatch.setattr("interkit.widgets.explorer.write_report_file", broken)
+    explorer.export_buttons["report"].click()                     # must not raise
     assert "interkit-error" in explorer.export_status.value
+    assert "report not written: ValueError: figure could not be drawn" in explorer.export_status.value
 
 
 def test_explorer_reopens_a_file_without_computing(scan, tmp_path, monkeypatch):

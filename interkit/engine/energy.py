@@ -179,8 +179,9 @@ def run_energy_job(job: Job, guess=None) -> tuple[dict, object]:
         mol = build_molecule(job)
         record["nao"] = int(mol.nao)
         level = job.level
-        if want_gradient and level.method == "mp2":
-            # DF-MP2 has no analytic gradient in pyscf: conventional reference and MP2
+        if want_gradient and level.method == "mp2" and mol.spin != 0:
+            # open shells: pyscf's conventional UMP2 gradient (conventional reference);
+            # closed shells use the DF-MP2 gradient of .mp2_gradient
             level = dataclasses.replace(level, density_fitting=False)
         # forces are first order in the density error, energies second order: gradient
         # jobs converge at least to GRADIENT_CONV_TOL_HARTREE
@@ -231,11 +232,18 @@ def _gradient_outputs(job: Job, mf, level: LevelOfTheory, density, record: dict)
     mol = mf.mol
     if level.method in ("hf", "dft"):
         e_corr = 0.0
-        grad = scf_gradient(mf, level)
+        grad, es = scf_gradient(mf, level)
         e_disp, g_disp = dispersion_gradient(job, mol.natm)
         grad = grad + g_disp
-        es = electrostatic_forces(mol, density)
+        if es is None:
+            es = electrostatic_forces(mol, density)
         record["electrostatic_force_hartree_per_bohr"] = es.tolist()
+    elif level.method == "mp2" and level.density_fitting:
+        from .mp2_gradient import fitted_mp2_gradient
+
+        e_corr, grad = fitted_mp2_gradient(mf, _frozen_core(mol))
+        e_disp = 0.0
+        record["electrostatic_force_hartree_per_bohr"] = None  # not reported for MP2
     elif level.method == "mp2":
         e_corr, grad = mp2_gradient(mf, _frozen_core(mol))
         e_disp = 0.0

@@ -13,16 +13,24 @@ electrostatic force of the other nuclei and of the electron density,
 with E_el the electric field of the electrons at the nucleus. With atom-centred basis
 sets the analytic force differs from it by the Pulay term (the basis functions move
 with the nuclei); the difference vanishes as the basis approaches completeness.
+
+Cost: the three counterpoise calculations of a point share atoms, positions, basis,
+fitting basis and DFT grid; only their densities differ. Closed-shell density-fitted
+gradients are therefore assembled here from data computed once per point and kept for
+the next calculation (fitting-integral derivatives, atom-grid orbital values and weight
+derivatives), with the numbers of pyscf's own gradient code.
 """
 
 from __future__ import annotations
 
 import numpy as np
-from pyscf import gto, mp, scf
+from pyscf import gto, mp
 from pyscf.grad import rhf as rhf_grad
 
 from ..levels import LevelOfTheory
 from .dispersion import dispersion_energy_and_gradient
+from .fitted_integrals import fitted_integrals, left_apply, right_apply, unpacked
+from .numint_cache import grid_response_blocks
 
 
 def electrostatic_forces(mol: gto.Mole, dm) -> np.ndarray:
@@ -73,9 +81,16 @@ def _ghost_aware_grids(mf):
     return grids
 
 
-def scf_gradient(mf, level: LevelOfTheory) -> np.ndarray:
+def scf_gradient(mf, level: LevelOfTheory) -> tuple[np.ndarray, np.ndarray | None]:
     """Analytic gradient (hartree/bohr) of a converged HF or DFT calculation, with exact
-    grid response for DFT."""
+    grid response for DFT, and the electrostatic force when it came for free (else None).
+
+    Closed-shell density-fitted HF and LDA/GGA (hybrid) DFT use :func:`fitted_scf_gradient`,
+    whose integrals are shared by the counterpoise calculations of a point; other cases
+    use pyscf's gradient code.
+    """
+    if _fitted_path_applies(mf, level):
+        return fitted_scf_gradient(mf, level)
     if hasattr(getattr(mf, "_numint", None), "max_cache_mb"):
         mf._numint.max_cache_mb = 0  # the gradient uses other grids: no caching there
     g = mf.nuc_grad_method()
@@ -83,7 +98,198 @@ def scf_gradient(mf, level: LevelOfTheory) -> np.ndarray:
     if level.method == "dft":
         g.grid_response = True
         g.grids = _ghost_aware_grids(mf)
-    return np.asarray(g.kernel(), dtype=float)
+    return np.asarray(g.kernel(), dtype=float), None
+
+
+def _fitted_path_applies(mf, level: LevelOfTheory) -> bool:
+    if getattr(mf, "with_df", None) is None or np.ndim(mf.mo_coeff) != 2 or mf.mol.spin != 0:
+        return False
+    if getattr(mf.mol, "_pseudo", None) or getattr(mf, "with_x2c", None):
+        return False
+    if level.method == "dft":
+        ni = mf._numint
+        omega, _, _ = ni.rsh_and_hybrid_coeff(mf.xc, spin=mf.mol.spin)
+        return ni._xc_type(mf.xc) in ("LDA", "GGA") and omega == 0 and not mf.do_nlc()
+    return level.method == "hf"
+
+
+def fitted_scf_gradient(mf, level: LevelOfTheory) -> tuple[np.ndarray, np.ndarray]:
+    """Gradient of a closed-shell density-fitted HF or LDA/GGA DFT calculation, and the
+    electrostatic force of its density (sharing the nuclear-attraction integrals).
+
+    The same energy derivative as pyscf's density-fitting gradient (fitting-function
+    response included; tests compare to 1e-9 hartree/bohr), assembled from integrals
+    kept for the next counterpoise calculation of the point (:mod:`.fitted_integrals`)
+    and, for DFT, from atom-grid orbital values and weight derivatives kept likewise.
+    """
+    mol = mf.mol
+    g = mf.nuc_grad_method()
+    dm = mf.make_rdm1()
+    occupied = mf.mo_coeff[:, mf.mo_occ > 0]
+    nuclear = np.asarray(g.grad_nuc(), dtype=float)
+    basis_part, operator_part = core_hamiltonian_gradient(g, mol, dm)
+    dme = g.make_rdm1e(mf.mo_energy, mf.mo_coeff, mf.mo_occ)
+    de = nuclear + basis_part + operator_part + overlap_gradient(g, mol, dme)
+    hyb = 1.0
+    if level.method == "dft":
+        hyb = mf._numint.rsh_and_hybrid_coeff(mf.xc, spin=mol.spin)[2]
+        de += xc_gradient(mf._numint, mol, _ghost_aware_grids(mf), mf.xc, dm)
+    ints = fitted_integrals(mol, mf.with_df.auxmol)
+    de += fitted_jk_gradient(ints, ints.whitened_tensor(mf.with_df), occupied, dm, hyb)
+    # Hellmann-Feynman force: nuclear repulsion and the field of the electrons only
+    return de, -nuclear - operator_part
+
+
+def core_hamiltonian_gradient(g, mol, dm) -> tuple[np.ndarray, np.ndarray]:
+    """Core-Hamiltonian gradient of a density (pyscf's ``hcore_generator`` contracted),
+    split into the part from moving basis functions and the part from the nuclear
+    attraction operator of each nucleus (zero for ghost atoms, which are skipped)."""
+    h1 = g.get_hcore(mol)  # -<nabla mu| h |nu>
+    charges = mol.atom_charges()
+    ecp_atoms = set(mol._ecpbas[:, gto.ATOM_OF]) if mol.has_ecp() else set()
+    basis_part = np.zeros((mol.natm, 3))
+    operator_part = np.zeros((mol.natm, 3))
+    for ia, (_, _, p0, p1) in enumerate(mol.aoslice_by_atom()):
+        basis_part[ia] = 2.0 * np.einsum("xij,ij->x", h1[:, p0:p1], dm[p0:p1])
+        if charges[ia] == 0 and ia not in ecp_atoms:
+            continue
+        with mol.with_rinv_at_nucleus(ia):
+            vrinv = mol.intor("int1e_iprinv", comp=3) * -charges[ia]
+            if ia in ecp_atoms:
+                vrinv += mol.intor("ECPscalar_iprinv", comp=3)
+        operator_part[ia] = 2.0 * np.einsum("xij,ij->x", vrinv, dm)
+    return basis_part, operator_part
+
+
+def overlap_gradient(g, mol, dme) -> np.ndarray:
+    """Overlap-derivative term of a gradient with a symmetric energy-weighted density."""
+    s1 = g.get_ovlp(mol)
+    de = np.zeros((mol.natm, 3))
+    for ia, (_, _, p0, p1) in enumerate(mol.aoslice_by_atom()):
+        de[ia] -= 2.0 * np.einsum("xij,ij->x", s1[:, p0:p1], dme[p0:p1])
+    return de
+
+
+def fitted_jk_gradient(ints, cderi: np.ndarray, occupied: np.ndarray, dm: np.ndarray, hyb: float) -> np.ndarray:
+    """Derivative of the fitted Coulomb energy minus ``hyb`` times the fitted exchange
+    energy of a closed-shell density ``dm = 2 C C^T`` (C: ``occupied`` orbitals);
+    ``cderi`` is the whitened tensor ``L^-1 (P|mu nu)`` of ``ints``."""
+    c = ints.to_fitting(cderi @ packed_density(dm))
+    y = 0.5 * np.outer(c, c)
+    g_oo = None
+    if hyb != 0:
+        g_oo = ints.to_fitting(occupied_block(ints, cderi, occupied, occupied))
+        flat = g_oo.reshape(ints.naux, -1)
+        y -= hyb * (flat @ flat.T)
+
+    def z_block(p0: int, p1: int) -> np.ndarray:
+        z = c[p0:p1, None, None] * dm
+        if g_oo is not None:
+            z -= 2.0 * hyb * left_apply(occupied, right_apply(g_oo[p0:p1], occupied.T))
+        return z
+
+    return ints.derivative(z_block, y)
+
+
+def fitted_pair_gradient(ints, cderi: np.ndarray, occupied: np.ndarray, dm: np.ndarray, other: np.ndarray,
+                         hyb: float, extra=None) -> np.ndarray:
+    """Derivative (fixed densities) of ``1/2 G(D, D')``, with ``G`` the fitted Coulomb
+    minus ``hyb``/2 exchange energy of two densities: ``D = 2 C C^T`` (C: ``occupied``)
+    and ``D'`` = ``other`` (symmetric). ``D' = D`` gives :func:`fitted_jk_gradient`.
+
+    ``extra = (z_block, y)`` adds another term of the form of
+    :meth:`FittedIntegrals.derivative` in the same pass over the derivative integrals."""
+    c = ints.to_fitting(cderi @ packed_density(dm))
+    c2 = ints.to_fitting(cderi @ packed_density(other))
+    y = 0.25 * (np.outer(c, c2) + np.outer(c2, c))
+    k = -0.25 * hyb
+    g_o = h = None
+    if hyb != 0:
+        g_o = np.empty((ints.naux, occupied.shape[1], ints.nao))
+        for _, _, p0, p1 in ints.blocks:
+            g_o[p0:p1] = right_apply(unpacked(cderi, p0, p1), occupied).transpose(0, 2, 1)
+        g_o = ints.to_fitting(g_o)
+        h = right_apply(g_o, other)
+        cross = h.reshape(ints.naux, -1) @ g_o.reshape(ints.naux, -1).T
+        y += k * (cross + cross.T)
+
+    def z_block(p0: int, p1: int) -> np.ndarray:
+        z = 0.5 * (c2[p0:p1, None, None] * dm + c[p0:p1, None, None] * other)
+        if h is not None:
+            half = left_apply(occupied, h[p0:p1])
+            z += 2.0 * k * (half + half.transpose(0, 2, 1))
+        if extra is not None:
+            z += extra[0](p0, p1)
+        return z
+
+    if extra is not None:
+        y = y + extra[1]
+    return ints.derivative(z_block, y)
+
+
+def packed_density(dm: np.ndarray) -> np.ndarray:
+    """Lower triangle of a symmetric matrix with off-diagonal elements doubled, so its dot
+    with packed (mu nu|P) is the full contraction."""
+    from pyscf import lib
+
+    nao = dm.shape[0]
+    packed = lib.pack_tril(dm + dm.T)
+    diag = np.arange(nao)
+    packed[diag * (diag + 1) // 2 + diag] *= 0.5
+    return packed
+
+
+def occupied_block(ints, cderi: np.ndarray, left: np.ndarray, right: np.ndarray) -> np.ndarray:
+    """Whitened ``L^-1 (P|i j)``, ``i j`` orbitals in ``left`` and ``right``, as
+    (naux, n_left, n_right)."""
+    out = np.empty((ints.naux, left.shape[1], right.shape[1]))
+    for _, _, p0, p1 in ints.blocks:
+        out[p0:p1] = left_apply(left.T, right_apply(unpacked(cderi, p0, p1), right))
+    return out
+
+
+def xc_gradient(ni, mol, grids, xc: str, dm: np.ndarray) -> np.ndarray:
+    """Exchange-correlation part of a closed-shell LDA/GGA gradient with full grid
+    response (pyscf's ``get_vxc_full_response`` contracted with the density).
+
+    Only the contraction of the XC matrix derivative with the density is formed, per
+    basis function, rather than the matrix itself.
+    """
+    xctype = ni._xc_type(xc)
+    deriv = 1 if xctype == "LDA" else 2
+    natm, nao = mol.natm, mol.nao
+    de = np.zeros((natm, 3))
+    t_ao = np.zeros((3, nao))
+    second = ((4, 5, 6), (5, 7, 8), (6, 8, 9))  # d2/dx_i dx_j components of ao
+    for atm_id, (_, weight, weight1, ao) in enumerate(grid_response_blocks(ni, mol, grids, deriv)):
+        c0 = ao[0] @ dm
+        rho0 = np.einsum("gm,gm->g", c0, ao[0])
+        if xctype == "LDA":
+            rho = rho0
+            exc, vxc = ni.eval_xc_eff(xc, rho, 1, xctype=xctype)[:2]
+            wv = weight * vxc[0]
+            t = np.einsum("xgm,gm->xm", ao[1:4], (ao[0] * wv[:, None]) @ dm)
+        else:
+            rho = np.empty((4, rho0.size))
+            rho[0] = rho0
+            rho[1:4] = 2.0 * np.einsum("xgm,gm->xg", ao[1:4], c0)
+            exc, vxc = ni.eval_xc_eff(xc, rho, 1, xctype=xctype)[:2]
+            wv = weight * vxc
+            wv[0] *= 0.5
+            aow = np.einsum("kgm,kg->gm", ao[:4], wv)
+            t = np.einsum("xgm,gm->xm", ao[1:4], aow @ dm)
+            t += np.einsum("xgm,gm->xm", ao[1:4], c0 * wv[0][:, None])
+            for y in range(3):
+                cw = c0 * wv[1 + y][:, None]
+                for x in range(3):
+                    t[x] += np.einsum("gm,gm->m", ao[second[x][y]], cw)
+        # response of the weights and of the grid points moving with their atom
+        de += np.einsum("r,r,nxr->nx", exc, rho0, weight1)
+        de[atm_id] += 2.0 * t.sum(axis=1)
+        t_ao += t
+    ao_atom = np.repeat(np.arange(natm), [p1 - p0 for _, _, p0, p1 in mol.aoslice_by_atom()])
+    np.add.at(de, ao_atom, -2.0 * t_ao.T)
+    return de
 
 
 def mp2_gradient(mf, frozen: int | None) -> tuple[float, np.ndarray]:
@@ -108,11 +314,3 @@ def dispersion_gradient(job, natm: int) -> tuple[float, np.ndarray]:
                                           job.level.functional, job.level.dispersion)
     grad[real] = g
     return e, grad
-
-
-def conventional_reference(mol, level: LevelOfTheory, conv_tol: float):
-    """A non-density-fitted RHF/UHF for conventional MP2 gradients."""
-    mf = scf.UHF(mol) if mol.spin != 0 else scf.RHF(mol)
-    mf.conv_tol = conv_tol
-    mf.verbose = 0
-    return mf

@@ -113,3 +113,64 @@ class CachingNumInt(numint.NumInt):
             yield ao, mask, weight, pts
         if blocks is not None and grids.coords is coords and coords is not None:
             _POOL["cache"] = (coords, signature, _basis_fingerprint(mol), blocks)
+
+
+#: memory budget (MB) for orbital values on the atom grids of a DFT gradient, kept for
+#: the next calculation at the same point (values beyond it are recomputed)
+GRID_RESPONSE_CACHE_MB = 1000
+
+# the one set of atom-grid data currently kept: grid coordinates array (identity),
+# grid-atom positions and charges, basis fingerprint, derivative order, per-atom entries
+_RESPONSE: dict = {"key": None, "atoms": [], "bytes": 0}
+
+
+def release_response_cache() -> None:
+    """Free the kept atom-grid data of DFT gradients."""
+    _RESPONSE.update(key=None, atoms=[], bytes=0)
+
+
+def response_cache_bytes() -> int:
+    """Memory held by the kept atom-grid data, bytes."""
+    return sum(sum(a.nbytes for a in entry if isinstance(a, np.ndarray)) for entry in _RESPONSE["atoms"])
+
+
+def grid_response_blocks(ni, mol, grids, deriv: int):
+    """Per grid atom: (coords, weights, weight derivatives (natm, 3, n), orbital values).
+
+    The weights and their derivatives depend only on the grid; the orbital values only
+    on the basis functions, so the dimer and both ghosted monomers of a point (one grid
+    object, one set of basis functions) share them. The values are those of pyscf's
+    ``grids_response_cc`` and ``eval_ao``.
+    """
+    from pyscf.dft import gen_grid
+    from pyscf.grad.rks import grids_response_cc
+
+    gmol = grids.mol
+    key = (np.asarray(gmol.atom_coords()).tobytes(), np.asarray(gmol.atom_charges()).tobytes(),
+           _basis_fingerprint(mol), deriv)
+    same = _RESPONSE["key"] is not None and _RESPONSE["key"][0] is grids.coords and _RESPONSE["key"][1:] == key
+    if same and grids.coords is not None:
+        atoms = _RESPONSE["atoms"]
+        for coords, weight, weight1, ao in atoms:
+            if ao is None:
+                mask = gen_grid.make_mask(mol, coords)
+                ao = ni.eval_ao(mol, coords, deriv=deriv, non0tab=mask, cutoff=grids.cutoff)
+            yield coords, weight, weight1, ao
+        return
+    release_response_cache()
+    limit = GRID_RESPONSE_CACHE_MB * 1e6
+    npts = 0 if grids.weights is None else grids.weights.size
+    used = gmol.natm * 3 * npts * 8  # weight derivatives, about
+    store = grids.coords is not None and used <= limit / 2
+    atoms: list = []
+    for coords, weight, weight1 in grids_response_cc(grids):
+        mask = gen_grid.make_mask(mol, coords)
+        ao = ni.eval_ao(mol, coords, deriv=deriv, non0tab=mask, cutoff=grids.cutoff)
+        keep = store and used + ao.nbytes <= limit
+        if keep:
+            used += ao.nbytes
+        if store:
+            atoms.append((coords, weight, weight1, ao if keep else None))
+        yield coords, weight, weight1, ao
+    if store:
+        _RESPONSE.update(key=(grids.coords,) + key, atoms=atoms, bytes=used)

@@ -19,7 +19,7 @@ from ..errors import InterkitError
 from ..results import open_scan, validate
 from ..units import convert_energy
 from .curves import CurvePanel, component_figure, level_colour
-from .exports import write_csv, write_netcdf
+from .exports import EXPORT_SUFFIXES, write_csv, write_netcdf, write_report_file, write_shared
 from .forces_panel import ForcePanel, force_arrows, scale_legend
 from .style import DISPLAY_UNITS, FRAGMENT_COLOURS, SCAN_LINE_COLOUR, error_html, note_html
 from .viewer3d import Molecule3D, scene_from_arrays
@@ -73,6 +73,8 @@ class ScanExplorer(widgets.VBox):
         if isinstance(ds, (str, os.PathLike)):
             ds = open_scan(ds)
         validate(ds)
+        #: the Dataset as given: the netCDF, report and JSON/tidy CSV exports write it whole
+        self.source = ds
         # the explorer draws one curve per level: schemes of a dispersion comparison
         # become levels of their own (see CorrectionComparison for the comparison view)
         ds = flatten_dispersion(ds)
@@ -131,8 +133,12 @@ class ScanExplorer(widgets.VBox):
         self.export_buttons = {}
         for kind, tip in (("netCDF", "the whole Dataset (.nc), reopen with interkit.open_scan"),
                           ("CSV", "energies in the selected unit (.csv)"),
-                          ("PNG", "the curve plot (.png)"), ("SVG", "the curve plot (.svg)")):
-            b = widgets.Button(description=f"save {kind}", tooltip=tip, layout=widgets.Layout(width="110px"))
+                          ("PNG", "the curve plot (.png)"), ("SVG", "the curve plot (.svg)"),
+                          ("report", "self-contained HTML report (.html): figures inline, opens offline"),
+                          ("JSON", "every variable and one QCSchema molecule per point (.json)"),
+                          ("tidy CSV", "one row per value, energies in the selected unit (-tidy.csv)")):
+            b = widgets.Button(description=f"save {kind}", tooltip=tip, layout=widgets.Layout(width="120px"))
+            b.add_class("interkit-export-" + kind.lower().replace(" ", "-"))
             b.on_click(lambda _b, kind=kind: self._export_clicked(kind))
             self.export_buttons[kind] = b
         self.export_status = widgets.HTML()
@@ -157,7 +163,7 @@ class ScanExplorer(widgets.VBox):
         ])
         export_row = widgets.VBox([
             widgets.HBox([self.export_dir, self.export_stem]),
-            widgets.HBox(list(self.export_buttons.values())),
+            widgets.HBox(list(self.export_buttons.values()), layout=widgets.Layout(flex_flow="row wrap")),
             self.export_status,
         ])
         caution = widgets.HTML(
@@ -316,7 +322,7 @@ class ScanExplorer(widgets.VBox):
     # ------------------------------------------------------------------ exports
     def export_netcdf(self, path: str | os.PathLike) -> str:
         """Write the Dataset to ``path`` (netCDF); return the path."""
-        return write_netcdf(self.ds, path)
+        return write_netcdf(self.source, path)
 
     def export_csv(self, path: str | os.PathLike) -> str:
         """Write the curves in the display unit to ``path`` (CSV); return the path."""
@@ -330,14 +336,31 @@ class ScanExplorer(widgets.VBox):
         self.curves.save(path)
         return path
 
+    def export_report(self, path: str | os.PathLike) -> str:
+        """Write the self-contained HTML report (:func:`interkit.write_report`); return the path."""
+        return write_report_file(self.source, path)
+
+    def export_json(self, path: str | os.PathLike) -> str:
+        """Write the JSON export with QCSchema molecules (energies in kcal/mol); return the path."""
+        return write_shared(self.source, path, "json")
+
+    def export_tidy_csv(self, path: str | os.PathLike) -> str:
+        """Write the tidy CSV (one row per value, energies in the display unit); return the path."""
+        return write_shared(self.source, path, "csv", unit=self.unit)
+
     def _export_clicked(self, kind: str) -> None:
-        ext = {"netCDF": ".nc", "CSV": ".csv", "PNG": ".png", "SVG": ".svg"}[kind]
-        path = os.path.join(self.export_dir.value.strip() or ".", (self.export_stem.value.strip() or "scan") + ext)
+        stem = os.path.join(self.export_dir.value.strip() or ".", self.export_stem.value.strip() or "scan")
+        path = stem + EXPORT_SUFFIXES[kind]
+        writer = {"netCDF": self.export_netcdf, "CSV": self.export_csv, "report": self.export_report,
+                  "JSON": self.export_json, "tidy CSV": self.export_tidy_csv}.get(kind, self.export_figure)
+        self.export_status.value = note_html(f"writing {kind}...")
         try:
-            writer = {"netCDF": self.export_netcdf, "CSV": self.export_csv}.get(kind, self.export_figure)
             written = writer(path)
         except (InterkitError, OSError) as exc:
             self.export_status.value = error_html(f"{kind} not written: {exc}")
+            return
+        except Exception as exc:  # a button must not raise into the notebook: show it
+            self.export_status.value = error_html(f"{kind} not written: {type(exc).__name__}: {exc}")
             return
         size = os.path.getsize(written)
         self.export_status.value = note_html(f"wrote {os.path.abspath(written)} ({size / 1024:.1f} KiB)")

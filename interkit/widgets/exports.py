@@ -1,4 +1,5 @@
-"""Files the explorer writes: the Dataset as netCDF, the curves as CSV."""
+"""Files the explorer writes: the Dataset as netCDF, the curves as CSV, and the
+shareable forms of the scan (HTML report, JSON with QCSchema molecules, tidy CSV)."""
 
 from __future__ import annotations
 
@@ -14,6 +15,9 @@ from ..results import save_scan
 from ..units import convert_energy
 
 CSV_ENERGIES = ("e_int", "e_int_nocp", "bsse")
+#: file name suffix of each export button (after the name stem)
+EXPORT_SUFFIXES = {"netCDF": ".nc", "CSV": ".csv", "PNG": ".png", "SVG": ".svg", "report": ".html",
+                   "JSON": ".json", "tidy CSV": "-tidy.csv"}
 
 
 def write_netcdf(ds: xr.Dataset, path: str | os.PathLike) -> str:
@@ -59,3 +63,20 @@ def write_csv(ds: xr.Dataset, path: str | os.PathLike, unit: str = "kcal/mol") -
                 row.append(str(status[i]))
                 out.writerow(row)
     return path
+
+
+def write_report_file(ds: xr.Dataset, path: str | os.PathLike) -> str:
+    """Write the self-contained HTML report (:func:`interkit.report.write_report`);
+    return the path written."""
+    from ..report import write_report
+
+    return write_report(ds, path)
+
+
+def write_shared(ds: xr.Dataset, path: str | os.PathLike, fmt: str, unit: str = "kcal/mol") -> str:
+    """Write the tidy CSV (``fmt='csv'``, energies in ``unit``) or the JSON with QCSchema
+    molecules (``fmt='json'``, kcal/mol) of :func:`interkit.export.export_scan`;
+    return the path written."""
+    from ..export import export_scan
+
+    return export_scan(ds, path, fmt, unit=unit if fmt == "csv" else "kcal/mol")
