@@ -238,10 +238,11 @@ def test_fitted_scf_gradient_equals_pyscf_and_caches_change_nothing(level_text, 
     density-fitting gradient with grid response, for the real and the ghosted molecule;
     the second calculation of a point reuses the kept data and gets the same numbers as
     a calculation with the caches switched off."""
-    from interkit.engine import fitted_integrals, numint_cache
+    from interkit.engine import fitted_integrals, gradient, numint_cache
     from interkit.engine.gradient import _ghost_aware_grids, electrostatic_forces, fitted_scf_gradient
 
     fitted_integrals.clear_cache()
+    gradient._ONE_ELECTRON.clear()
     numint_cache.release_response_cache()
     level, mf_real = _fitted_scf(level_text, ghost=False)
     grids = getattr(mf_real, "grids", None)
@@ -258,7 +259,10 @@ def test_fitted_scf_gradient_equals_pyscf_and_caches_change_nothing(level_text, 
         np.testing.assert_allclose(es, electrostatic_forces(mf.mol, mf.make_rdm1()), atol=1e-12)
         results[name] = (mf, grad)
     assert fitted_integrals.cached_bytes() > 0
+    assert len(gradient._ONE_ELECTRON) == 1  # real and ghosted molecule: one set of integrals
     # caches off: integrals and atom-grid values recomputed, numbers unchanged
+    monkeypatch.setattr(gradient, "ONE_ELECTRON_CACHE_MB", 0)
+    gradient._ONE_ELECTRON.clear()
     monkeypatch.setattr(fitted_integrals, "FITTED_CACHE_MB", 0)
     monkeypatch.setattr(numint_cache, "GRID_RESPONSE_CACHE_MB", 0)
     fitted_integrals.clear_cache()
@@ -268,6 +272,7 @@ def test_fitted_scf_gradient_equals_pyscf_and_caches_change_nothing(level_text, 
     np.testing.assert_allclose(uncached, grad, atol=1e-12)
     assert fitted_integrals.cached_bytes() == 0
     assert numint_cache.response_cache_bytes() == 0
+    assert len(gradient._ONE_ELECTRON) == 0
 
 
 def test_kept_integrals_stay_within_their_budget(monkeypatch):
@@ -298,20 +303,44 @@ def test_kept_integrals_stay_within_their_budget(monkeypatch):
 
 
 def test_fitted_zvector_response_equals_the_reference_fock_response():
+    """The MO-basis response and Fock-like blocks of the DF-MP2 gradient against the
+    fitted reference's own AO ``get_veff``."""
     from functools import reduce
 
     from interkit.engine.fitted_integrals import fitted_integrals
-    from interkit.engine.mp2_gradient import _fitted_response
+    from interkit.engine.mp2_gradient import _fitted_response, _mo_tensor, _mo_veff_block
 
     _, mf = _fitted_scf("hf/def2-svp", ghost=True)
     ints = fitted_integrals(mf.mol, mf.with_df.auxmol)
     nocc = int((mf.mo_occ > 0).sum())
-    occ, vir = mf.mo_coeff[:, :nocc], mf.mo_coeff[:, nocc:]
-    x = np.random.default_rng(7).normal(size=(vir.shape[1], nocc))
+    coeff = mf.mo_coeff
+    occ, vir = coeff[:, :nocc], coeff[:, nocc:]
+    mo3c = _mo_tensor(ints.whitened_tensor(mf.with_df), coeff, ints.naux, nocc)
+    rng = np.random.default_rng(7)
+    x = rng.normal(size=(vir.shape[1], nocc))
     d = vir @ x @ occ.T
     expected = 2 * reduce(np.dot, (vir.T, mf.get_veff(mf.mol, d + d.T), occ))
-    response = _fitted_response(ints, ints.whitened_tensor(mf.with_df), occ, vir)
+    response = _fitted_response(mo3c, nocc)
     np.testing.assert_allclose(response(x).reshape(expected.shape), expected, atol=1e-11)
+    # a general symmetric MO-basis density: every block of J - K/2
+    dm_mo = rng.normal(size=(coeff.shape[1],) * 2)
+    dm_mo += dm_mo.T
+    v_ao = mf.get_veff(mf.mol, reduce(np.dot, (coeff, dm_mo, coeff.T)))
+    for rows, cols in [(slice(nocc, None), slice(0, nocc)), (slice(0, nocc), slice(0, nocc))]:
+        expected = reduce(np.dot, (coeff[:, rows].T, v_ao, coeff[:, cols]))
+        np.testing.assert_allclose(_mo_veff_block(mo3c, dm_mo, rows, cols), expected, atol=1e-10)
+
+
+def test_dfmp2_gradient_without_the_orbital_pair_integrals_is_the_same(monkeypatch):
+    """Above the memory bound the gradient falls back to AO-basis Fock builds: same numbers."""
+    from interkit.engine import mp2_gradient
+
+    _, mf = _fitted_scf("hf/def2-svp", ghost=True)
+    e_kept, grad_kept = mp2_gradient.fitted_mp2_gradient(mf, 1)
+    monkeypatch.setattr(mp2_gradient, "RESPONSE_MEMORY_MB", 0)
+    e_ao, grad_ao = mp2_gradient.fitted_mp2_gradient(mf, 1)
+    assert e_ao == pytest.approx(e_kept, abs=1e-12)
+    np.testing.assert_allclose(grad_ao, grad_kept, atol=1e-10)
 
 
 def test_dfmp2_gradient_is_the_derivative_of_the_dfmp2_energy():

@@ -23,13 +23,15 @@ derivatives), with the numbers of pyscf's own gradient code.
 
 from __future__ import annotations
 
+from collections import OrderedDict
+
 import numpy as np
 from pyscf import gto, mp
 from pyscf.grad import rhf as rhf_grad
 
 from ..levels import LevelOfTheory
 from .dispersion import dispersion_energy_and_gradient
-from .fitted_integrals import fitted_integrals, left_apply, right_apply, unpacked
+from .fitted_integrals import basis_fingerprint, fitted_integrals, left_apply, right_apply, unpacked
 from .numint_cache import grid_response_blocks
 
 
@@ -140,12 +142,63 @@ def fitted_scf_gradient(mf, level: LevelOfTheory) -> tuple[np.ndarray, np.ndarra
     return de, -nuclear - operator_part
 
 
+#: one-electron derivative integrals of the last geometries (process-local): the
+#: counterpoise calculations of a point share basis functions and positions, and the
+#: attraction integrals of each nucleus do not depend on its charge
+_ONE_ELECTRON: OrderedDict = OrderedDict()
+#: memory bound (MB) of one geometry's kept one-electron derivative integrals
+ONE_ELECTRON_CACHE_MB = 200
+
+
+def _one_electron_derivatives(g, mol):
+    """Kept ``int1e_ipkin``, ``int1e_ipovlp`` and per-atom ``int1e_iprinv`` integrals of
+    this basis and geometry (a dict, filled on demand), or None where pyscf's own
+    core Hamiltonian differs (ECPs, pseudopotentials, finite nuclei, X2C)."""
+    if mol.has_ecp() or getattr(mol, "_pseudo", None) or mol.nucmod:
+        return None
+    if getattr(g.base, "with_x2c", None):
+        return None
+    if (mol.natm + 2) * 3 * mol.nao**2 * 8 > ONE_ELECTRON_CACHE_MB * 1e6:
+        return None
+    key = basis_fingerprint(mol)
+    entry = _ONE_ELECTRON.get(key)
+    if entry is None:
+        entry = {"ipkin": mol.intor("int1e_ipkin", comp=3), "ipovlp": mol.intor("int1e_ipovlp", comp=3)}
+        _ONE_ELECTRON[key] = entry
+        while len(_ONE_ELECTRON) > 2:
+            _ONE_ELECTRON.popitem(last=False)
+    else:
+        _ONE_ELECTRON.move_to_end(key)
+    return entry
+
+
+def _rinv_derivative(mol, entry, ia: int) -> np.ndarray:
+    """``int1e_iprinv`` with the operator at nucleus ``ia`` (kept in ``entry`` if given)."""
+    if entry is not None and ia in entry:
+        return entry[ia]
+    with mol.with_rinv_at_nucleus(ia):
+        out = mol.intor("int1e_iprinv", comp=3)
+    if entry is not None:
+        entry[ia] = out
+    return out
+
+
 def core_hamiltonian_gradient(g, mol, dm) -> tuple[np.ndarray, np.ndarray]:
     """Core-Hamiltonian gradient of a density (pyscf's ``hcore_generator`` contracted),
     split into the part from moving basis functions and the part from the nuclear
-    attraction operator of each nucleus (zero for ghost atoms, which are skipped)."""
-    h1 = g.get_hcore(mol)  # -<nabla mu| h |nu>
+    attraction operator of each nucleus (zero for ghost atoms, which are skipped).
+
+    Integrals that the counterpoise calculations of a point share are kept (see
+    :func:`_one_electron_derivatives`); the nuclear-attraction derivative is then
+    assembled from them, ``int1e_ipnuc = -sum_A Z_A int1e_iprinv(A)``."""
     charges = mol.atom_charges()
+    shared = _one_electron_derivatives(g, mol)
+    if shared is None:
+        h1 = g.get_hcore(mol)  # -<nabla mu| h |nu>
+    else:
+        h1 = -shared["ipkin"]
+        for ia in np.flatnonzero(charges):
+            h1 = h1 + charges[ia] * _rinv_derivative(mol, shared, ia)
     ecp_atoms = set(mol._ecpbas[:, gto.ATOM_OF]) if mol.has_ecp() else set()
     basis_part = np.zeros((mol.natm, 3))
     operator_part = np.zeros((mol.natm, 3))
@@ -153,17 +206,18 @@ def core_hamiltonian_gradient(g, mol, dm) -> tuple[np.ndarray, np.ndarray]:
         basis_part[ia] = 2.0 * np.einsum("xij,ij->x", h1[:, p0:p1], dm[p0:p1])
         if charges[ia] == 0 and ia not in ecp_atoms:
             continue
-        with mol.with_rinv_at_nucleus(ia):
-            vrinv = mol.intor("int1e_iprinv", comp=3) * -charges[ia]
-            if ia in ecp_atoms:
-                vrinv += mol.intor("ECPscalar_iprinv", comp=3)
+        vrinv = _rinv_derivative(mol, shared, ia) * -charges[ia]
+        if ia in ecp_atoms:
+            with mol.with_rinv_at_nucleus(ia):
+                vrinv = vrinv + mol.intor("ECPscalar_iprinv", comp=3)
         operator_part[ia] = 2.0 * np.einsum("xij,ij->x", vrinv, dm)
     return basis_part, operator_part
 
 
 def overlap_gradient(g, mol, dme) -> np.ndarray:
     """Overlap-derivative term of a gradient with a symmetric energy-weighted density."""
-    s1 = g.get_ovlp(mol)
+    shared = _one_electron_derivatives(g, mol)
+    s1 = g.get_ovlp(mol) if shared is None else -shared["ipovlp"]
     de = np.zeros((mol.natm, 3))
     for ia, (_, _, p0, p1) in enumerate(mol.aoslice_by_atom()):
         de[ia] -= 2.0 * np.einsum("xij,ij->x", s1[:, p0:p1], dme[p0:p1])
@@ -197,33 +251,44 @@ def fitted_pair_gradient(ints, cderi: np.ndarray, occupied: np.ndarray, dm: np.n
     minus ``hyb``/2 exchange energy of two densities: ``D = 2 C C^T`` (C: ``occupied``)
     and ``D'`` = ``other`` (symmetric). ``D' = D`` gives :func:`fitted_jk_gradient`.
 
-    ``extra = (z_block, y)`` adds another term of the form of
-    :meth:`FittedIntegrals.derivative` in the same pass over the derivative integrals."""
+    ``extra = (left, right_block, y)`` adds, in the same pass over the derivative
+    integrals, a term of the form of :meth:`FittedIntegrals.derivative` with
+    ``Z^P = A R^P + (A R^P)^T``: ``A = left`` (nao, k) and ``R^P`` from
+    ``right_block(p0, p1)`` as (p1-p0, k, nao); ``y`` symmetric (naux, naux)."""
+    nao = ints.nao
     c = ints.to_fitting(cderi @ packed_density(dm))
     c2 = ints.to_fitting(cderi @ packed_density(other))
     y = 0.25 * (np.outer(c, c2) + np.outer(c2, c))
     k = -0.25 * hyb
-    g_o = h = None
+    h = None
     if hyb != 0:
-        g_o = np.empty((ints.naux, occupied.shape[1], ints.nao))
+        g_o = np.empty((ints.naux, occupied.shape[1], nao))
         for _, _, p0, p1 in ints.blocks:
             g_o[p0:p1] = right_apply(unpacked(cderi, p0, p1), occupied).transpose(0, 2, 1)
         g_o = ints.to_fitting(g_o)
         h = right_apply(g_o, other)
         cross = h.reshape(ints.naux, -1) @ g_o.reshape(ints.naux, -1).T
         y += k * (cross + cross.T)
+        del g_o
+    # Coulomb part of Z^P, 1/2 (c'_P D + c_P D'), as one matrix product
+    coulomb = 0.5 * np.stack([c2, c], axis=1)
+    densities = np.stack([dm.ravel(), other.ravel()])
+    # exchange and extra parts: A R^P + (A R^P)^T with the left factors side by side
+    lefts = ([occupied] if h is not None else []) + ([extra[0]] if extra is not None else [])
+    left = np.hstack(lefts) if lefts else None
 
     def z_block(p0: int, p1: int) -> np.ndarray:
-        z = 0.5 * (c2[p0:p1, None, None] * dm + c[p0:p1, None, None] * other)
-        if h is not None:
-            half = left_apply(occupied, h[p0:p1])
-            z += 2.0 * k * (half + half.transpose(0, 2, 1))
-        if extra is not None:
-            z += extra[0](p0, p1)
+        z = (coulomb[p0:p1] @ densities).reshape(p1 - p0, nao, nao)
+        if left is None:
+            return z
+        rights = ([2.0 * k * h[p0:p1]] if h is not None else []) + ([extra[1](p0, p1)] if extra is not None else [])
+        half = left_apply(left, np.concatenate(rights, axis=1))
+        z += half
+        z += half.transpose(0, 2, 1)
         return z
 
     if extra is not None:
-        y = y + extra[1]
+        y = y + extra[2]
     return ints.derivative(z_block, y)
 
 

@@ -18,6 +18,12 @@ the four-centre integrals replaced by fitted ones):
 * reference-like terms: fitted two-electron derivative of ``1/2 G(D, D + 2 P)``,
   core Hamiltonian with the relaxed density, overlap with the energy-weighted density.
 
+Cost: the SCF's own whitened fitted tensor is transformed once to all orbital pairs;
+the amplitudes, the orbital Lagrangian, the two Fock-like builds of the MP2 density and
+the Z-vector response are contractions of that one tensor (no AO Fock build of a general
+density, which costs as much as the whole transformation). The fitted-integral
+derivatives are shared by the counterpoise calculations of a point (.fitted_integrals).
+
 Tests compare against central finite differences of the DF-MP2 energy.
 """
 
@@ -26,6 +32,8 @@ from __future__ import annotations
 from functools import reduce
 
 import numpy as np
+from pyscf import lib
+from pyscf.ao2mo import _ao2mo
 from pyscf.scf import cphf
 
 from .fitted_integrals import fitted_integrals, left_apply, right_apply, unpacked
@@ -52,9 +60,16 @@ def fitted_mp2_gradient(mf, frozen: int | None) -> tuple[float, np.ndarray]:
     ints = fitted_integrals(mol, mf.with_df.auxmol)
     cderi = ints.whitened_tensor(mf.with_df)
     naux = ints.naux
+    # whitened fitted integrals L^-1 (P|pq) of all orbital pairs ((P|Q) = L L^T), kept
+    # when they fit in memory: the amplitudes, the orbital Lagrangian, the Fock-like
+    # builds and the Z-vector response are then contractions of this one tensor
+    mo3c = _mo_tensor(cderi, mo_coeff, naux, nocc)
 
-    # whitened B = L^-1 (P|ia) ((P|Q) = L L^T) and c = (P|Q)^-1 (Q|ia) = L^-T B
-    b = occupied_block(ints, cderi, occ_act, vir)  # (P, i, a)
+    # whitened B = L^-1 (P|ia) and c = (P|Q)^-1 (Q|ia) = L^-T B
+    if mo3c is not None:
+        b = np.ascontiguousarray(mo3c[:, nf:nocc, nocc:])  # (P, i, a)
+    else:
+        b = occupied_block(ints, cderi, occ_act, vir)
     bt = np.ascontiguousarray(b.transpose(1, 2, 0))  # (i, a, Q)
     flat = bt.reshape(no * nv, naux)
 
@@ -76,25 +91,30 @@ def fitted_mp2_gradient(mf, frozen: int | None) -> tuple[float, np.ndarray]:
         p_vv += 2.0 * np.tensordot(t_j, tt_j, axes=([0, 2], [0, 2]))
         p_oo -= 2.0 * (t_j.reshape(no, -1) @ tt_j.reshape(no, -1).T)
     gbar = np.ascontiguousarray(gbar.transpose(2, 0, 1))  # whitened (Q, i, a)
-    # orbital Lagrangian dE_2/dU (all MOs m; active occupied and virtual columns):
-    # sum_P (m a|P) G_ia^P with whitened factors on both sides
-    lag_o = np.zeros((mol.nao, no))
-    lag_v = np.zeros((mol.nao, nv))
-    for _, _, p0, p1 in ints.blocks:
-        blk = unpacked(cderi, p0, p1)  # (Q, mu, nu)
-        x_o = right_apply(gbar[p0:p1], vir.T).transpose(0, 2, 1)  # (Q, nu, i)
-        x_v = left_apply(occ_act, gbar[p0:p1])  # (Q, nu, a)
-        lag_o += np.tensordot(blk, x_o, axes=([0, 2], [0, 1]))
-        lag_v += np.tensordot(blk, x_v, axes=([0, 2], [0, 1]))
+    # orbital Lagrangian, pyscf's convention Imat = -1/2 dE_2/dU (all orbitals p; active
+    # occupied and virtual columns): -2 sum_P (p a|P) G_ia^P and -2 sum_P (p i|P) G_ia^P,
+    # whitened factors on both sides
+    imat = np.zeros((nmo, nmo))
+    if mo3c is not None:
+        imat[:, nf:nocc] = -2.0 * _pair_contract(mo3c[:, :, nocc:], gbar)
+        imat[:, nocc:] = -2.0 * _pair_contract(mo3c[:, :, nf:nocc], gbar.transpose(0, 2, 1))
+    else:
+        lag_o = np.zeros((mol.nao, no))
+        lag_v = np.zeros((mol.nao, nv))
+        for _, _, p0, p1 in ints.blocks:
+            blk = unpacked(cderi, p0, p1)  # (Q, mu, nu)
+            x_o = right_apply(gbar[p0:p1], vir.T).transpose(0, 2, 1)  # (Q, nu, i)
+            x_v = left_apply(occ_act, gbar[p0:p1])  # (Q, nu, a)
+            lag_o += np.tensordot(blk, x_o, axes=([0, 2], [0, 1]))
+            lag_v += np.tensordot(blk, x_v, axes=([0, 2], [0, 1]))
+        imat[:, nf:nocc] = -2.0 * (mo_coeff.T @ lag_o)
+        imat[:, nocc:] = -2.0 * (mo_coeff.T @ lag_v)
     # back to the fitting functions themselves: G = L^-T Gbar, c = L^-T B
     gam = ints.to_fitting(gbar)
     cvec = ints.to_fitting(b)
     y_ns = 2.0 * (cvec.reshape(naux, -1) @ gam.reshape(naux, -1).T)
     y_ns = 0.5 * (y_ns + y_ns.T)
     del gbar, b, bt, cvec
-    imat = np.zeros((nmo, nmo))  # pyscf's convention: Imat = -1/2 dE_2/dU
-    imat[:, nf:nocc] = -2.0 * (mo_coeff.T @ lag_o)
-    imat[:, nocc:] = -2.0 * (mo_coeff.T @ lag_v)
 
     dm1mo = np.zeros((nmo, nmo))
     dm1mo[nf:nocc, nf:nocc] = p_oo
@@ -103,12 +123,19 @@ def fitted_mp2_gradient(mf, frozen: int | None) -> tuple[float, np.ndarray]:
         dco = imat[:nf, nf:nocc] / (mo_energy[:nf, None] - mo_energy[None, nf:nocc])
         dm1mo[:nf, nf:nocc] = dco
         dm1mo[nf:nocc, :nf] = dco.T
-    dm1 = reduce(np.dot, (mo_coeff, dm1mo, mo_coeff.T))
-    vhf = mf.get_veff(mol, dm1) * 2
-    xvo = reduce(np.dot, (vir.T, vhf, occ_all)) + imat[:nocc, nocc:].T - imat[nocc:, :nocc]
 
-    fvind = _fitted_response(ints, cderi, occ_all, vir)
-    if fvind is None:  # too large to keep the virtual-virtual fitted integrals
+    def veff_block(dm_mo: np.ndarray, rows: slice, cols: slice) -> np.ndarray:
+        """Block of the reference's J - K/2 of an MO-basis density, in the MO basis."""
+        if mo3c is not None:
+            return _mo_veff_block(mo3c, dm_mo, rows, cols)
+        v = mf.get_veff(mol, reduce(np.dot, (mo_coeff, dm_mo, mo_coeff.T)))
+        return reduce(np.dot, (mo_coeff[:, rows].T, v, mo_coeff[:, cols]))
+
+    occ_s, vir_s = slice(0, nocc), slice(nocc, nmo)
+    xvo = 2.0 * veff_block(dm1mo, vir_s, occ_s) + imat[:nocc, nocc:].T - imat[nocc:, :nocc]
+
+    fvind = _fitted_response(mo3c, nocc) if mo3c is not None else None
+    if fvind is None:  # too large to keep the fitted integrals of all orbital pairs
 
         def fvind(x):
             d = reduce(np.dot, (vir, x.reshape(nv, nocc), occ_all.T))
@@ -118,6 +145,9 @@ def fitted_mp2_gradient(mf, frozen: int | None) -> tuple[float, np.ndarray]:
     dvo = cphf.solve(fvind, mo_energy, mo_occ, xvo, max_cycle=ZVECTOR_MAX_CYCLE, tol=ZVECTOR_TOL)[0]
     dm1mo[nocc:, :nocc] = dvo
     dm1mo[:nocc, nocc:] = dvo.T
+    # occupied block of J - K/2 of the relaxed density (d + d^T, d symmetric here)
+    v_oo = veff_block(2.0 * dm1mo, occ_s, occ_s)
+    mo3c = fvind = None  # release the orbital-pair integrals
 
     imat[nocc:, :nocc] = imat[:nocc, nocc:].T
     im1 = reduce(np.dot, (mo_coeff, imat, mo_coeff.T))
@@ -126,64 +156,83 @@ def fitted_mp2_gradient(mf, frozen: int | None) -> tuple[float, np.ndarray]:
     zeta[:nocc, nocc:] = mo_energy[:nocc].reshape(-1, 1)
     zeta = reduce(np.dot, (mo_coeff, zeta * dm1mo, mo_coeff.T))
     dm1 = reduce(np.dot, (mo_coeff, dm1mo, mo_coeff.T))
-    p1 = occ_all @ occ_all.T
-    vhf_s1occ = reduce(np.dot, (p1, mf.get_veff(mol, dm1 + dm1.T), p1))
+    vhf_s1occ = reduce(np.dot, (occ_all, v_oo, occ_all.T))
 
     g = mf.nuc_grad_method()
     dm_hf = mf.make_rdm1()
     zeta += g.make_rdm1e(mo_energy, mo_coeff, mo_occ)
-    s1 = g.get_ovlp(mol)
     de = np.asarray(g.grad_nuc(), dtype=float)
     # core Hamiltonian with the relaxed density; overlap with the energy-weighted density
+    # and the Lagrangian's overlap terms in one contraction: zeta + C_o V_oo C_o^T - (I + I^T)/2
     basis_part, operator_part = core_hamiltonian_gradient(g, mol, dm_hf + dm1)
-    de += basis_part + operator_part + overlap_gradient(g, mol, zeta)
-    for ia, (_, _, p0, p1_) in enumerate(mol.aoslice_by_atom()):
-        de[ia] += np.einsum("xij,ij->x", s1[:, p0:p1_], im1[p0:p1_])
-        de[ia] += np.einsum("xji,ij->x", s1[:, p0:p1_], im1[:, p0:p1_])
-        de[ia] -= 2.0 * np.einsum("xij,ij->x", s1[:, p0:p1_], vhf_s1occ[p0:p1_])
+    de += basis_part + operator_part + overlap_gradient(g, mol, zeta + vhf_s1occ - 0.5 * (im1 + im1.T))
     # reference-like two-electron terms, 1/2 G(D, D + 2 P) with fitted integrals, and
     # the non-separable part, 4 sum (ia|P)^x G_ia^P - 2 sum (P|Q)^x Y_PQ, in one pass
     # over the derivative integrals
-    def z_block(p0: int, p1: int) -> np.ndarray:
-        half = left_apply(occ_act, right_apply(gam[p0:p1], vir.T))  # C_o G^P C_v^T
-        return 2.0 * (half + half.transpose(0, 2, 1))
+    def g_block(p0: int, p1: int) -> np.ndarray:  # Z^P = 2 C_o G^P C_v^T + transpose
+        return right_apply(gam[p0:p1], 2.0 * vir.T)
 
-    de += fitted_pair_gradient(ints, cderi, occ_all, dm_hf, dm_hf + 2.0 * dm1, hyb=1.0, extra=(z_block, y_ns))
+    de += fitted_pair_gradient(ints, cderi, occ_all, dm_hf, dm_hf + 2.0 * dm1, hyb=1.0,
+                               extra=(occ_act, g_block, y_ns))
     return e_corr, de
 
 
-#: largest virtual-virtual block of fitted integrals kept for the Z-vector equations, MB
-RESPONSE_MEMORY_MB = 500
+#: memory bound (MB) of the fitted integrals of all orbital pairs and the transposed copy
+#: of their virtual-virtual block the Z-vector response keeps; beyond it the gradient
+#: builds Fock-like matrices in the AO basis instead (same numbers, slower)
+RESPONSE_MEMORY_MB = 1000
 
 
-def _fitted_response(ints, cderi: np.ndarray, occ: np.ndarray, vir: np.ndarray):
-    """The closed-shell Hartree–Fock response ``x -> 2 C_v^T (J - K/2)[d + d^T] C_o`` with
-    ``d = C_v x C_o^T``, from fitted integrals in the molecular-orbital basis (the same
-    operator as the fitted reference's ``get_veff``, at a fraction of the cost); None
-    when the virtual-virtual block exceeds ``RESPONSE_MEMORY_MB``."""
-    naux, nocc, nv = ints.naux, occ.shape[1], vir.shape[1]
-    if naux * nv * nv * 8 > RESPONSE_MEMORY_MB * 1e6:
+def _mo_tensor(cderi: np.ndarray, mo_coeff: np.ndarray, naux: int, nocc: int) -> np.ndarray | None:
+    """Whitened fitted integrals of every orbital pair, (naux, nmo, nmo) (symmetric in
+    the pair), from the whitened AO tensor; None when it and the response's copy of its
+    virtual block exceed ``RESPONSE_MEMORY_MB``."""
+    nmo = mo_coeff.shape[1]
+    if naux * (nmo * nmo + (nmo - nocc) ** 2) * 8 > RESPONSE_MEMORY_MB * 1e6:
         return None
-    b_oo = np.empty((naux, nocc, nocc))
-    b_vo = np.empty((naux, nv, nocc))
-    b_vv = np.empty((naux, nv, nv))
-    for _, _, p0, p1 in ints.blocks:
-        blk = unpacked(cderi, p0, p1)
-        half_o = right_apply(blk, occ)
-        b_oo[p0:p1] = left_apply(occ.T, half_o)
-        b_vo[p0:p1] = left_apply(vir.T, half_o)
-        b_vv[p0:p1] = left_apply(vir.T, right_apply(blk, vir))
+    packed = _ao2mo.nr_e2(np.asarray(cderi, order="C"), np.asarray(mo_coeff, order="F"),
+                          (0, nmo, 0, nmo), "s2", "s2")
+    return lib.unpack_tril(packed)
 
+
+def _pair_contract(a: np.ndarray, g: np.ndarray) -> np.ndarray:
+    """``sum_{P k} a[P, m, k] g[P, n, k]`` as (m, n), one matrix product."""
+    return np.tensordot(a, g, axes=([0, 2], [0, 2]))
+
+
+def _mo_veff_block(mo3c: np.ndarray, dm: np.ndarray, rows: slice, cols: slice) -> np.ndarray:
+    """Rows ``rows``, columns ``cols`` of the fitted closed-shell ``J - K/2`` of a
+    symmetric MO-basis density ``dm``, in the MO basis (the reference's ``get_veff``
+    transformed, without leaving the MO basis)."""
+    naux = mo3c.shape[0]
+    rho = mo3c.reshape(naux, -1) @ dm.ravel()
+    vj = np.tensordot(rho, mo3c[:, rows, cols], axes=1)
+    half = np.matmul(dm, mo3c[:, :, cols])  # (P, nmo, ncols)
+    vk = _pair_contract(mo3c[:, rows, :], half.transpose(0, 2, 1))
+    return vj - 0.5 * vk
+
+
+def _fitted_response(mo3c: np.ndarray, nocc: int):
+    """The closed-shell Hartree–Fock response ``x -> 2 C_v^T (J - K/2)[d + d^T] C_o`` with
+    ``d = C_v x C_o^T``, from the whitened fitted integrals of all orbital pairs (the same
+    operator as the fitted reference's ``get_veff``, at a fraction of the cost)."""
+    naux, nmo = mo3c.shape[0], mo3c.shape[1]
+    nv = nmo - nocc
+    b_oo = np.ascontiguousarray(mo3c[:, :nocc, :nocc])
+    b_vo = np.ascontiguousarray(mo3c[:, nocc:, :nocc])
     flat_vo = b_vo.reshape(naux, -1)
+    # left factors with the orbital index first, so each exchange term is one product
+    vv_left = np.ascontiguousarray(mo3c[:, nocc:, nocc:].transpose(1, 0, 2)).reshape(nv, -1)  # (a, Q b)
+    vo_left = np.ascontiguousarray(b_vo.transpose(1, 0, 2)).reshape(nv, -1)  # (a, Q j)
 
     def fvind(x):
         x = x.reshape(nv, nocc)
         # Coulomb of d + d^T: 2 sum_ai (Q|ai) x_ai
         rho = 2.0 * (flat_vo @ x.ravel())
-        vj = np.einsum("q,qai->ai", rho, b_vo)
-        # exchange of d + d^T, (vir, occ) block
-        vk = np.einsum("qab,bj,qji->ai", b_vv, x, b_oo, optimize=True)
-        vk += np.einsum("qaj,bj,qbi->ai", b_vo, x, b_vo, optimize=True)
+        vj = (rho @ flat_vo).reshape(nv, nocc)
+        # exchange of d + d^T, (vir, occ) block: sum_Q (ab|Q) x_bj (Q|ji) + (aj|Q) x_bj (Q|bi)
+        vk = vv_left @ np.matmul(x, b_oo).reshape(-1, nocc)
+        vk += vo_left @ np.matmul(x.T, b_vo).reshape(-1, nocc)
         return (2.0 * (vj - 0.5 * vk)).ravel()
 
     return fvind
