@@ -23,17 +23,24 @@ def water_dimer() -> ik.Dimer:
     return s22_dimer("Water_dimer")
 
 
-@pytest.fixture
-def small_dimer() -> ik.Dimer:
-    """A hydrogen-fluoride dimer built here (not a reference geometry): cheap to compute."""
-    text = """4
+HF_DIMER_XYZ = """4
 HF dimer, test geometry
 F   0.000000  0.000000  0.000000
 H   0.000000  0.000000  0.920000
 F   0.000000  0.000000  2.750000
 H   0.850000  0.000000  3.050000
 """
-    return ik.Dimer.from_xyz_string(text, name="hf-dimer")
+
+
+def hf_dimer() -> ik.Dimer:
+    """A hydrogen-fluoride dimer built here (not a reference geometry): cheap to compute."""
+    return ik.Dimer.from_xyz_string(HF_DIMER_XYZ, name="hf-dimer")
+
+
+@pytest.fixture
+def small_dimer() -> ik.Dimer:
+    """The hydrogen-fluoride test dimer of :func:`hf_dimer`."""
+    return hf_dimer()
 
 
 @pytest.fixture

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from conftest import s22_dimer
+from conftest import hf_dimer, s22_dimer
 
 import interkit as ik
 from interkit.corrections import flatten_dispersion
@@ -16,14 +16,7 @@ SCHEMES = ["none", "d3zero", "d3bj", "d4", "d3bj-atm"]
 @pytest.fixture(scope="module")
 def comparison(tmp_path_factory):
     """HF dimer, three levels (HF, B3LYP, M06-2X), five schemes, with forces."""
-    text = """4
-HF dimer, test geometry
-F   0.000000  0.000000  0.000000
-H   0.000000  0.000000  0.920000
-F   0.000000  0.000000  2.750000
-H   0.850000  0.000000  3.050000
-"""
-    dimer = ik.Dimer.from_xyz_string(text, name="hf-dimer")
+    dimer = hf_dimer()
     spec = ik.ScanSpec(dimer=dimer, coordinate=ik.AtomPair(1, 2), factors=[0.95, 1.1],
                        levels=["hf/sto-3g", "b3lyp/sto-3g", "m062x/sto-3g"], dispersion=SCHEMES,
                        forces=True, conv_tol=1e-10)

@@ -6,6 +6,7 @@ from __future__ import annotations
 import json
 from importlib import metadata
 
+import conftest
 import numpy as np
 import pytest
 
@@ -17,15 +18,7 @@ from interkit.plan import plan_scan
 
 @pytest.fixture(scope="module")
 def hf_dimer() -> ik.Dimer:
-    """A hydrogen-fluoride dimer built here (not a reference geometry): cheap to compute."""
-    text = """4
-HF dimer, test geometry
-F   0.000000  0.000000  0.000000
-H   0.000000  0.000000  0.920000
-F   0.000000  0.000000  2.750000
-H   0.850000  0.000000  3.050000
-"""
-    return ik.Dimer.from_xyz_string(text, name="hf-dimer")
+    return conftest.hf_dimer()
 
 
 @pytest.fixture(scope="module")

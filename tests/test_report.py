@@ -13,6 +13,7 @@ import re
 
 import numpy as np
 import pytest
+from conftest import hf_dimer
 
 import interkit as ik
 from interkit import export, report
@@ -25,14 +26,7 @@ HOSTILE = 'HF dimer <script>alert(1)</script> & "friends"'
 @pytest.fixture(scope="module")
 def scan(tmp_path_factory):
     """Two levels, forces and SAPT0 on a hydrogen-fluoride dimer built here (cheap bases)."""
-    text = """4
-HF dimer, test geometry
-F   0.000000  0.000000  0.000000
-H   0.000000  0.000000  0.920000
-F   0.000000  0.000000  2.750000
-H   0.850000  0.000000  3.050000
-"""
-    dimer = ik.Dimer.from_xyz_string(text, name="hf-dimer")
+    dimer = hf_dimer()
     spec = ik.ScanSpec(dimer=dimer, coordinate=ik.AtomPair(1, 2), factors=[0.95, 1.0, 1.1, 1.3],
                        levels=["hf/sto-3g", "hf/def2-svp"], forces=True, decomposition="sapt0",
                        decomposition_basis="def2-svp", name=HOSTILE)

@@ -9,6 +9,7 @@ import os
 from pathlib import Path
 
 import pytest
+from conftest import hf_dimer
 
 pytestmark = pytest.mark.browser
 
@@ -31,14 +32,7 @@ def report_file(tmp_path_factory):
     import interkit as ik
     from interkit.report import write_report
 
-    text = """4
-HF dimer, test geometry
-F   0.000000  0.000000  0.000000
-H   0.000000  0.000000  0.920000
-F   0.000000  0.000000  2.750000
-H   0.850000  0.000000  3.050000
-"""
-    dimer = ik.Dimer.from_xyz_string(text, name="hf-dimer")
+    dimer = hf_dimer()
     spec = ik.ScanSpec(dimer=dimer, coordinate=ik.AtomPair(1, 2), factors=[0.95, 1.0, 1.1, 1.3],
                        levels=["hf/sto-3g", "hf/def2-svp"], forces=True, name=HOSTILE)
     ds = ik.run_scan(spec, executor="serial", progress=False)
