@@ -129,9 +129,10 @@ class ScanSpec:
         Boys–Bernardi counterpoise correction (dimer-basis monomers at every point).
     forces : bool
         Counterpoise-corrected forces at every point: analytic gradients for HF, DFT
-        (with the dispersion correction's gradient) and MP2 (conventional), central
-        differences along the coordinate for SCS-MP2 and CCSD(T); plus the
-        Hellmann–Feynman (electrostatic) split for HF and DFT.
+        (with the dispersion correction's gradient) and MP2 (DF-MP2; conventional for
+        open shells), central differences along the coordinate for SCS-MP2 and CCSD(T);
+        plus the Hellmann–Feynman (electrostatic) split for HF, DFT and closed-shell
+        DF-MP2 (the electrostatic force of the relaxed MP2 density).
     decomposition : {None, 'sapt0'}
         ``'sapt0'`` adds a closed-shell density-fitted SAPT0 decomposition at every
         point (one calculation per point, in the dimer-centred ``decomposition_basis``,

@@ -241,9 +241,10 @@ def _gradient_outputs(job: Job, mf, level: LevelOfTheory, density, record: dict)
     elif level.method == "mp2" and level.density_fitting:
         from .mp2_gradient import fitted_mp2_gradient
 
-        e_corr, grad = fitted_mp2_gradient(mf, _frozen_core(mol))
+        e_corr, grad, relaxed = fitted_mp2_gradient(mf, _frozen_core(mol), relaxed_density=True)
         e_disp = 0.0
-        record["electrostatic_force_hartree_per_bohr"] = None  # not reported for MP2
+        # Hellmann–Feynman part: the electrostatic force of the relaxed MP2 density
+        record["electrostatic_force_hartree_per_bohr"] = electrostatic_forces(mol, relaxed).tolist()
     elif level.method == "mp2":
         e_corr, grad = mp2_gradient(mf, _frozen_core(mol))
         e_disp = 0.0

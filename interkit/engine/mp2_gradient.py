@@ -44,9 +44,13 @@ ZVECTOR_TOL = 1e-9
 ZVECTOR_MAX_CYCLE = 60
 
 
-def fitted_mp2_gradient(mf, frozen: int | None) -> tuple[float, np.ndarray]:
+def fitted_mp2_gradient(mf, frozen: int | None, relaxed_density: bool = False):
     """DF-MP2 correlation energy (hartree) and total gradient (hartree/bohr) of a
-    converged closed-shell density-fitted RHF ``mf``; ``frozen`` core orbitals."""
+    converged closed-shell density-fitted RHF ``mf``; ``frozen`` core orbitals.
+
+    With ``relaxed_density=True`` the relaxed MP2 density (AO basis, symmetric) is
+    returned as a third item: the density whose electrostatic force on the nuclei is the
+    Hellmann–Feynman part of the MP2 force."""
     mol = mf.mol
     mo_coeff, mo_energy, mo_occ = mf.mo_coeff, mf.mo_energy, mf.mo_occ
     nmo = mo_coeff.shape[1]
@@ -174,6 +178,8 @@ def fitted_mp2_gradient(mf, frozen: int | None) -> tuple[float, np.ndarray]:
 
     de += fitted_pair_gradient(ints, cderi, occ_all, dm_hf, dm_hf + 2.0 * dm1, hyb=1.0,
                                extra=(occ_act, g_block, y_ns))
+    if relaxed_density:
+        return e_corr, de, dm_hf + dm1
     return e_corr, de
 
 
