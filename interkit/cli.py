@@ -10,7 +10,7 @@
     interkit verify scan.nc [--sample N] [--seed S]    # recompute N points fresh; exit 1 off tolerance
     interkit report scan.nc -o report.html [--reference LEVEL]   # self-contained HTML, works offline
     interkit export scan.nc -o out.csv|out.json       # tidy CSV, or JSON with QCSchema molecules
-    interkit compare scan.nc [--reference LABEL | --reference-csv FILE] [--table out.csv]
+    interkit compare scan.nc [--reference LABEL | --reference-file FILE.csv|.nc] [--table out.csv]
 
 The saved-file commands (rerun, verify, report, export) live in :mod:`interkit.cli_saved`.
 

@@ -1,11 +1,13 @@
 """``interkit compare``: rank the curves of a saved scan against a reference.
 
-    interkit compare scan.nc [--reference LABEL | --reference-csv FILE] [--table out.csv]
+    interkit compare scan.nc [--reference LABEL | --reference-file FILE [--reference-curve LABEL]]
+                             [--table out.csv]
 
 The reference is a curve of the same scan, named by its folded label (e.g.
-``mp2/def2-svp`` or ``b3lyp-d3bj/def2-svp``), or an external CSV curve with columns
-``distance_angstrom`` and ``e_int_kcal_per_mol``; by default the most accurate
-wavefunction level of the scan.
+``mp2/def2-svp`` or ``b3lyp-d3bj/def2-svp``), or an external curve: a CSV file with
+columns ``distance_angstrom`` and ``e_int_kcal_per_mol``, or another saved scan (``.nc``;
+``--reference-curve`` picks its curve); by default the most accurate wavefunction level
+of the scan.
 """
 
 from __future__ import annotations
@@ -28,8 +30,11 @@ def add_commands(sub) -> None:
     group = p.add_mutually_exclusive_group()
     group.add_argument("--reference", metavar="LABEL", help="reference curve of the scan, e.g. mp2/def2-svp "
                                                             "(default: its most accurate wavefunction level)")
-    group.add_argument("--reference-csv", metavar="FILE",
-                       help="external reference: CSV with distance_angstrom and e_int_kcal_per_mol")
+    group.add_argument("--reference-file", metavar="FILE",
+                       help="external reference: CSV with distance_angstrom and e_int_kcal_per_mol, "
+                            "or another saved scan (.nc)")
+    p.add_argument("--reference-curve", metavar="LABEL",
+                   help="curve of the --reference-file scan (default: its most accurate wavefunction level)")
     p.add_argument("--table", metavar="CSV", help="also write the ranking to this CSV file")
     p.set_defaults(handler=run_compare)
 
@@ -39,13 +44,15 @@ def _ranking(ds, args) -> tuple[list[dict], str]:
         curve_pairs,
         default_reference,
         ranking_table,
-        reference_from_csv,
+        reference_from_file,
         resolve_reference,
     )
     from .errors import InputError
 
-    if args.reference_csv:
-        curve = reference_from_csv(args.reference_csv)
+    if args.reference_curve and not args.reference_file:
+        raise InputError("--reference-curve: give --reference-file as well")
+    if args.reference_file:
+        curve = reference_from_file(args.reference_file, args.reference_curve)
         _, label = resolve_reference(ds, reference=curve)
         return ranking_table(ds, reference=curve), label
     pairs = curve_pairs(ds)

@@ -403,3 +403,50 @@ def default_reference(labels: list[str]) -> str:
             if label.split("/")[0] == method:
                 return label
     return labels[0]
+
+
+def reference_from_scan(path, curve: str | None = None) -> ReferenceCurve:
+    """A reference curve taken from another saved scan (netCDF written by ``save_scan``).
+
+    Parameters
+    ----------
+    path : str or pathlib.Path
+        The scan file, e.g. a CCSD(T) scan of the same dimer along the same coordinate.
+    curve : str, optional
+        Folded label of the curve (e.g. ``'ccsd(t)/aug-cc-pvtz'`` or
+        ``'b3lyp-d3bj/def2-tzvp'``); by default the most accurate wavefunction level.
+
+    Returns
+    -------
+    ReferenceCurve
+        Its finite points, interpolated onto another scan's distances by
+        :meth:`ReferenceCurve.on`.
+    """
+    from .results import open_scan
+
+    ds = open_scan(path)
+    pairs = curve_pairs(ds)
+    if not pairs:
+        raise InputError(f"reference scan {str(path)!r}: no curve has values")
+    label = curve if curve is not None else default_reference(list(pairs))
+    if label not in pairs:
+        raise InputError(f"reference curve: {label!r} is not a curve of {str(path)!r} ({', '.join(pairs)})")
+    level, scheme = pairs[label]
+    da = ds["e_int"].sel(level=level)
+    if scheme is not None:
+        da = da.sel(dispersion=scheme)
+    r, e = ds["distance"].values, da.transpose("distance").values
+    keep = np.isfinite(e)
+    if keep.sum() < 2:
+        raise InputError(f"reference curve {label!r} of {str(path)!r}: fewer than 2 finite points")
+    return ReferenceCurve(r[keep], e[keep], f"{Path(path).name} [{label}]")
+
+
+def reference_from_file(path, curve: str | None = None) -> ReferenceCurve:
+    """A reference curve from a CSV file (:func:`reference_from_csv`) or a saved scan
+    (``.nc``, :func:`reference_from_scan`, with ``curve`` choosing its curve)."""
+    if str(path).lower().endswith(".nc"):
+        return reference_from_scan(path, curve)
+    if curve is not None:
+        raise InputError("reference curve: a CSV file holds one curve; leave out the curve label")
+    return reference_from_csv(path)

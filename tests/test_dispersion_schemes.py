@@ -205,3 +205,31 @@ def test_cli_scan_with_schemes_and_compare(tmp_path, capsys):
     assert (tmp_path / "rank.csv").read_text().count("\n") == 2 + 3
     assert main(["compare", str(out), "--reference", "ccsd(t)/cbs"]) == 2
     assert "--reference: 'ccsd(t)/cbs' is not a curve" in capsys.readouterr().err
+
+
+def test_reference_from_another_saved_scan(comparison, tmp_path, capsys):
+    """A curve of another saved scan serves as an external reference, through the API,
+    the command line and the widget."""
+    from interkit.cli import main
+    from interkit.comparison import ranking_table, reference_from_file
+
+    _, ds = comparison
+    other = tmp_path / "reference-scan.nc"
+    ik.save_scan(ds, other)
+    curve = reference_from_file(other, "hf/sto-3g")
+    assert curve.source == "reference-scan.nc [hf/sto-3g]"
+    np.testing.assert_allclose(curve.on(ds.distance.values),
+                               ds.e_int.sel(level="hf/sto-3g", dispersion="none").values, atol=1e-12)
+    external = {(r["level"], r["dispersion"]): r["rmse_kcal_per_mol"] for r in ranking_table(ds, reference=curve)}
+    internal = {(r["level"], r["dispersion"]): r["rmse_kcal_per_mol"]
+                for r in ranking_table(ds, reference_level="hf/sto-3g")}
+    for pair, rmse in internal.items():
+        assert external[pair] == pytest.approx(rmse, abs=1e-9)
+    scan = tmp_path / "scan.nc"
+    ik.save_scan(ds, scan)
+    assert main(["compare", str(scan), "--reference-file", str(other), "--reference-curve", "hf/sto-3g"]) == 0
+    assert "reference: external curve (reference-scan.nc [hf/sto-3g])" in capsys.readouterr().out
+    assert main(["compare", str(scan), "--reference-curve", "hf/sto-3g"]) == 2
+    assert "--reference-curve: give --reference-file as well" in capsys.readouterr().err
+    assert main(["compare", str(scan), "--reference-file", str(other), "--reference-curve", "nope"]) == 2
+    assert "'nope' is not a curve of" in capsys.readouterr().err

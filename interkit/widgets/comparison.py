@@ -18,7 +18,7 @@ import xarray as xr
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
-from ..comparison import ReferenceCurve, curve_pairs, default_reference, ranking_table, reference_from_csv
+from ..comparison import ReferenceCurve, curve_pairs, default_reference, ranking_table, reference_from_file
 from ..corrections import flatten_dispersion, scheme_label
 from ..errors import InputError, InterkitError
 from ..levels import parse_level
@@ -51,7 +51,8 @@ class CorrectionComparison(widgets.VBox):
         most accurate wavefunction level in the scan.
     external : ReferenceCurve or path, optional
         An external reference curve (CSV with ``distance_angstrom`` and
-        ``e_int_kcal_per_mol``), offered as a reference.
+        ``e_int_kcal_per_mol``, or a saved scan ``.nc`` whose most accurate
+        wavefunction level is taken), offered as a reference.
     export_dir : path, optional
         Folder for the exported ranking table (default: the working folder).
     """
@@ -68,7 +69,7 @@ class CorrectionComparison(widgets.VBox):
             raise InputError("dataset: no curve has values to compare")
         self.externals: dict[str, ReferenceCurve] = {}
         if external is not None:
-            self._add_external(external if isinstance(external, ReferenceCurve) else reference_from_csv(external))
+            self._add_external(external if isinstance(external, ReferenceCurve) else reference_from_file(external))
         labels = list(self.pairs)
         options = labels + list(self.externals)
         if reference is not None and reference not in options:
@@ -85,7 +86,7 @@ class CorrectionComparison(widgets.VBox):
                                                    description="curves", layout=widgets.Layout(width="360px"))
         self.unit_select = widgets.ToggleButtons(options=list(DISPLAY_UNITS), value="kcal/mol", description="unit",
                                                  style={"button_width": "72px"})
-        self.csv_path = widgets.Text(placeholder="reference curve CSV (distance_angstrom, e_int_kcal_per_mol)",
+        self.csv_path = widgets.Text(placeholder="reference curve: CSV (distance_angstrom, e_int_kcal_per_mol) or saved scan .nc",
                                      layout=widgets.Layout(width="420px"))
         self.load_button = widgets.Button(description="add reference curve", icon="plus")
         self.export_button = widgets.Button(description="save ranking CSV", icon="download")
@@ -128,7 +129,7 @@ class CorrectionComparison(widgets.VBox):
 
     def _load_csv(self) -> None:
         try:
-            curve = reference_from_csv(self.csv_path.value.strip())
+            curve = reference_from_file(self.csv_path.value.strip())
         except InterkitError as exc:
             self.message.value = error_html(str(exc))
             return
