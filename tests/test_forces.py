@@ -389,7 +389,7 @@ def test_relaxed_mp2_density_gives_the_field_derivative_and_the_electrostatic_fo
 
     _, mf = _fitted_scf("hf/def2-svp", ghost=True)
     mol = mf.mol
-    _, grad, relaxed = fitted_mp2_gradient(mf, 1, relaxed_density=True)
+    _, grad, relaxed, es_stored = fitted_mp2_gradient(mf, 1, relaxed_density=True)
     np.testing.assert_allclose(relaxed, relaxed.T, atol=1e-12)
     s = mol.intor("int1e_ovlp")
     assert np.einsum("ij,ji->", relaxed, s) == pytest.approx(mol.nelectron, abs=1e-8)
@@ -410,6 +410,7 @@ def test_relaxed_mp2_density_gives_the_field_derivative_and_the_electrostatic_fo
     derivative = (energy(lam) - energy(-lam)) / (2 * lam)
     assert np.einsum("ij,ji->", relaxed, z_ao) == pytest.approx(derivative, abs=1e-6)
     es = electrostatic_forces(mol, relaxed)
+    np.testing.assert_allclose(es_stored, es, atol=1e-10)  # from the gradient's own integrals
     assert np.all(es[mol.atom_charges() == 0] == 0.0)  # ghosts carry no nucleus
     # analytic = electrostatic + Pulay: the correlation changes the Pulay part of the
     # Hartree–Fock split only a little (it comes from the same basis functions)

@@ -241,10 +241,10 @@ def _gradient_outputs(job: Job, mf, level: LevelOfTheory, density, record: dict)
     elif level.method == "mp2" and level.density_fitting:
         from .mp2_gradient import fitted_mp2_gradient
 
-        e_corr, grad, relaxed = fitted_mp2_gradient(mf, _frozen_core(mol), relaxed_density=True)
+        e_corr, grad, _, es = fitted_mp2_gradient(mf, _frozen_core(mol), relaxed_density=True)
         e_disp = 0.0
         # Hellmann–Feynman part: the electrostatic force of the relaxed MP2 density
-        record["electrostatic_force_hartree_per_bohr"] = electrostatic_forces(mol, relaxed).tolist()
+        record["electrostatic_force_hartree_per_bohr"] = es.tolist()
     elif level.method == "mp2":
         e_corr, grad = mp2_gradient(mf, _frozen_core(mol))
         e_disp = 0.0

@@ -48,9 +48,9 @@ def fitted_mp2_gradient(mf, frozen: int | None, relaxed_density: bool = False):
     """DF-MP2 correlation energy (hartree) and total gradient (hartree/bohr) of a
     converged closed-shell density-fitted RHF ``mf``; ``frozen`` core orbitals.
 
-    With ``relaxed_density=True`` the relaxed MP2 density (AO basis, symmetric) is
-    returned as a third item: the density whose electrostatic force on the nuclei is the
-    Hellmann–Feynman part of the MP2 force."""
+    With ``relaxed_density=True`` two more items are returned: the relaxed MP2 density
+    (AO basis, symmetric) and its electrostatic force on the nuclei (hartree/bohr), the
+    Hellmann–Feynman part of the MP2 force, from the integrals the gradient already has."""
     mol = mf.mol
     mo_coeff, mo_energy, mo_occ = mf.mo_coeff, mf.mo_energy, mf.mo_occ
     nmo = mo_coeff.shape[1]
@@ -165,7 +165,8 @@ def fitted_mp2_gradient(mf, frozen: int | None, relaxed_density: bool = False):
     g = mf.nuc_grad_method()
     dm_hf = mf.make_rdm1()
     zeta += g.make_rdm1e(mo_energy, mo_coeff, mo_occ)
-    de = np.asarray(g.grad_nuc(), dtype=float)
+    nuclear = np.asarray(g.grad_nuc(), dtype=float)
+    de = nuclear.copy()
     # core Hamiltonian with the relaxed density; overlap with the energy-weighted density
     # and the Lagrangian's overlap terms in one contraction: zeta + C_o V_oo C_o^T - (I + I^T)/2
     basis_part, operator_part = core_hamiltonian_gradient(g, mol, dm_hf + dm1)
@@ -179,7 +180,7 @@ def fitted_mp2_gradient(mf, frozen: int | None, relaxed_density: bool = False):
     de += fitted_pair_gradient(ints, cderi, occ_all, dm_hf, dm_hf + 2.0 * dm1, hyb=1.0,
                                extra=(occ_act, g_block, y_ns))
     if relaxed_density:
-        return e_corr, de, dm_hf + dm1
+        return e_corr, de, dm_hf + dm1, -nuclear - operator_part
     return e_corr, de
 
 
