@@ -11,6 +11,7 @@ import threading
 
 import numpy as np
 import pytest
+from conftest import HF_DIMER_XYZ
 from distributed import Client
 
 import interkit as ik
@@ -20,13 +21,7 @@ from interkit.plan import plan_scan
 from interkit.store import ResultStore
 from interkit.units import HARTREE_TO_KCAL_PER_MOL
 
-HF_DIMER = """4
-HF dimer, test geometry
-F   0.000000  0.000000  0.000000
-H   0.000000  0.000000  0.920000
-F   0.000000  0.000000  2.750000
-H   0.850000  0.000000  3.050000
-"""
+HF_DIMER = HF_DIMER_XYZ
 #: the executors must agree to this (hartree); needs SCFs converged well below it
 TOL_HARTREE = 1e-10
 

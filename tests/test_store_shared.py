@@ -14,6 +14,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from conftest import HF_DIMER_XYZ
 
 import interkit as ik
 from interkit import store as store_module
@@ -21,13 +22,7 @@ from interkit.cli import main
 from interkit.plan import plan_scan
 from interkit.store import ResultStore, parse_size
 
-HF_DIMER = """4
-HF dimer, test geometry
-F   0.000000  0.000000  0.000000
-H   0.000000  0.000000  0.920000
-F   0.000000  0.000000  2.750000
-H   0.850000  0.000000  3.050000
-"""
+HF_DIMER = HF_DIMER_XYZ
 
 
 def _spec_toml(factors) -> str:
