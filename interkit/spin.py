@@ -74,3 +74,28 @@ def spin_contaminated(s2: float, spin: int, fragment_spins: tuple[int, ...] = ()
     if fragment_spins:
         return s2 > high + tol
     return abs(s2 - low) > tol
+
+
+def is_unrestricted_job(job) -> bool:
+    """True for jobs computed with UHF/UKS: open shells and broken-symmetry dimers."""
+    return job.spin != 0 or job.guess == BROKEN_SYMMETRY_GUESS
+
+
+def spin_note(job, record: dict) -> str | None:
+    """Why a converged unrestricted calculation is flagged, or None when it is not.
+
+    A record without ``spin_square`` (stored before <S^2> was recorded) is flagged
+    too: its spin state cannot be vouched for.
+    """
+    if not is_unrestricted_job(job):
+        return None
+    s2 = record.get("spin_square")
+    if s2 is None:
+        return "<S^2> not recorded (stored by an older interkit); recompute to check the spin state"
+    bs = job.fragment_spins if job.guess == BROKEN_SYMMETRY_GUESS else ()
+    if not spin_contaminated(float(s2), job.spin, bs):
+        return None
+    low, high = expected_spin_square(job.spin, bs)
+    expected = f"{low:.2f}" if not bs else f"at most {high:.2f} (broken symmetry)"
+    return (f"heavy spin contamination: <S^2> = {float(s2):.3f}, expected {expected} "
+            f"within {SPIN_CONTAMINATION_TOLERANCE}")
