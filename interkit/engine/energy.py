@@ -197,7 +197,8 @@ def run_energy_job(job: Job, guess=None) -> tuple[dict, object]:
         # forces are first order in the density error, energies second order: gradient
         # jobs converge at least to GRADIENT_CONV_TOL_HARTREE
         conv_tol = min(job.conv_tol, GRADIENT_CONV_TOL_HARTREE) if want_gradient else job.conv_tol
-        mf = _make_scf(mol, level, conv_tol, unrestricted)
+        # a broken-symmetry determinant is unrestricted even at 2S = 0
+        mf = _make_scf(mol, level, conv_tol, True) if broken_symmetry else _make_scf(mol, level, conv_tol)
         if level.method == "dft":
             # no density-based pruning of grid points: the dimer and both ghosted monomers
             # of a point then share one grid and its orbital values, and the gradient's
