@@ -169,7 +169,8 @@ def qcschema_molecule(symbols, coordinates_angstrom, fragment_a, charges, multip
     b = [i for i in range(n) if i not in set(a)]
     real_mask = [True] * n if real is None else [bool(x) for x in real]
     # charge and unpaired electrons of the real atoms only (a fully ghosted fragment
-    # contributes nothing); high-spin coupling of the fragments, as the calculations use
+    # contributes nothing); high-spin coupling of the fragments unless the dimer's
+    # multiplicity is given, as the calculations use
     frag_real = [any(real_mask[i] for i in f) for f in (a, b)]
     charge = sum(int(q) for q, on in zip(charges, frag_real) if on)
     unpaired = sum(int(m) - 1 for m, on in zip(multiplicities, frag_real) if on)

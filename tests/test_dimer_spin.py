@@ -89,6 +89,13 @@ def test_broken_symmetry_singlet_of_two_distant_doublets():
     assert triplet.attrs["dimer_multiplicity"] == 3 and "high spin" in triplet.attrs["dimer_spin"]
     # neither is flagged: both lie within the documented rule
     assert list(triplet["status"].values.ravel()) == ["ok"] == list(singlet["status"].values.ravel())
+    # the QCSchema export carries the dimer's multiplicity (monomers their own)
+    from interkit.export import scan_document
+
+    point = scan_document(singlet)["points"][0]
+    assert point["molecule"]["molecular_multiplicity"] == 1
+    assert point["counterpoise_molecules"]["a_dimer_basis"]["molecular_multiplicity"] == 2
+    assert scan_document(triplet)["points"][0]["molecule"]["molecular_multiplicity"] == 3
 
 
 def test_broken_symmetry_energy_equals_a_direct_pyscf_uhf():
