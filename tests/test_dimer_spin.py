@@ -239,3 +239,25 @@ def test_launcher_has_a_dimer_multiplicity_field():
     assert launcher.build_spec().dimer.dimer_multiplicity == 1
     launcher.dimer_mult.value = "2"
     assert "interkit-error" in launcher.message.value and "dimer_multiplicity: 2 is impossible" in launcher.message.value
+
+
+def test_broken_symmetry_flips_the_fragment_with_fewer_unpaired_electrons():
+    # H (doublet) + O (triplet): lowest spin S = 1/2 needs H's spin flipped (M_S >= 0)
+    def dimer(m):
+        return ik.Dimer(("H", "O"), [[0, 0, 0], [0, 0, 5.0]], (0,), multiplicities=(2, 3), dimer_multiplicity=m)
+
+    spec = ik.ScanSpec(dimer=dimer(2), distances=[5.0], levels=[LEVEL])
+    job = plan_scan(spec).jobs[plan_scan(spec).table[(0, 0)]["dimer"]]
+    assert job.spin == 1 and job.fragment_spins == (-1, 2)
+    low = ik.run_scan(spec, progress=False, executor="serial")
+    high = ik.run_scan(ik.ScanSpec(dimer=dimer(None), distances=[5.0], levels=[LEVEL]),
+                       progress=False, executor="serial")
+    s2 = float(low["spin_square"].sel(role="dimer").values.item())
+    s2_o = float(low["spin_square"].sel(role="b_own_basis").values.item())
+    # non-overlapping fragments: M(M+1) + 2 S_small = 0.75 + 1 (Noodleman 1981, recalled
+    # from memory), plus the O atom's own small contamination (its <S^2> - 2)
+    assert s2 == pytest.approx(1.75 + (s2_o - 2.0), abs=1e-3)
+    # the quartet at S(S+1) = 3.75 with the same O contamination, degenerate at 5 Å
+    assert float(high["spin_square"].sel(role="dimer").values.item()) == pytest.approx(3.75 + (s2_o - 2.0), abs=1e-3)
+    assert abs(_dimer_energy(low) - _dimer_energy(high)) < 1e-5
+    assert "spin of A flipped" in low.attrs["dimer_spin"]
