@@ -220,7 +220,7 @@ def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: s
             "status": (("level", "distance"), status.astype(str),
                        {"long_name": "point status", "flag_values": "ok retried spin-contaminated failed"}),
             "status_detail": (("level", "distance"), detail.astype(str),
-                              {"long_name": "why a point was retried or failed"}),
+                              {"long_name": "why a point was retried, flagged or failed"}),
             "wall_time_s": (("level", "distance"), wall,
                             {"units": "s", "long_name": "wall time of the point's calculations"}),
             "job_key": (("level", "distance", "role"), keys.astype(str),

@@ -208,8 +208,7 @@ def run_energy_job(job: Job, guess=None) -> tuple[dict, object]:
         if broken_symmetry:
             # always from the fragments (never the previous point), so the solution
             # depends on the job description only
-            guess = broken_symmetry_guess(job, mol, lambda m: _make_scf(
-                m, dataclasses.replace(level, density_fitting=False), FRAGMENT_GUESS_CONV_TOL_HARTREE))
+            guess = broken_symmetry_guess(job, mol, lambda m: _make_scf(m, level, FRAGMENT_GUESS_CONV_TOL_HARTREE))
             record["guess"] = BROKEN_SYMMETRY_GUESS
         status, detail = converge_scf(mf, guess)
         record["scf_cycles"] = int(getattr(mf, "cycles", 0) or 0)
