@@ -136,7 +136,7 @@ def write_tidy_csv(ds: xr.Dataset, path: str | os.PathLike, unit: str = "kcal/mo
 
 # ---------------------------------------------------------------------- QCSchema molecules
 def qcschema_molecule(symbols, coordinates_angstrom, fragment_a, charges, multiplicities,
-                      real=None, name: str = "") -> dict:
+                      real=None, name: str = "", dimer_multiplicity: int | None = None) -> dict:
     """One molecule in the QCSchema molecule layout.
 
     Field names as recalled from memory of the MolSSI QCSchema molecule specification
@@ -158,6 +158,8 @@ def qcschema_molecule(symbols, coordinates_angstrom, fragment_a, charges, multip
         Of fragments A and B.
     real : sequence of bool, optional
         Per atom; default all real.
+    dimer_multiplicity : int, optional
+        2S+1 of the whole dimer when both fragments are real; default high spin.
     """
     from . import __version__
 
@@ -167,7 +169,8 @@ def qcschema_molecule(symbols, coordinates_angstrom, fragment_a, charges, multip
     b = [i for i in range(n) if i not in set(a)]
     real_mask = [True] * n if real is None else [bool(x) for x in real]
     # charge and unpaired electrons of the real atoms only (a fully ghosted fragment
-    # contributes nothing); high-spin coupling of the fragments, as the calculations use
+    # contributes nothing); high-spin coupling of the fragments unless the dimer's
+    # multiplicity is given, as the calculations use
     frag_real = [any(real_mask[i] for i in f) for f in (a, b)]
     charge = sum(int(q) for q, on in zip(charges, frag_real) if on)
     unpaired = sum(int(m) - 1 for m, on in zip(multiplicities, frag_real) if on)
@@ -177,7 +180,8 @@ def qcschema_molecule(symbols, coordinates_angstrom, fragment_a, charges, multip
         "symbols": [str(s) for s in symbols],
         "geometry": [float(x) for x in xyz.ravel()],
         "molecular_charge": float(charge),
-        "molecular_multiplicity": int(unpaired + 1),
+        "molecular_multiplicity": int(dimer_multiplicity) if dimer_multiplicity and all(frag_real)
+        else int(unpaired + 1),
         "fragments": [a, b],
         # a ghosted fragment has no electrons: charge 0, singlet
         "fragment_charges": [float(q) if on else 0.0 for q, on in zip(charges, frag_real)],
@@ -247,7 +251,8 @@ def scan_document(ds: xr.Dataset) -> dict:
             "distance": float(r),
             "factor": _json_value(factor[i]),
             "molecule": qcschema_molecule(symbols, xyz, fragment_a, charges, mults,
-                                          name=f"dimer at {float(r):.4f} angstrom"),
+                                          name=f"dimer at {float(r):.4f} angstrom",
+                                          dimer_multiplicity=ds.attrs.get("dimer_multiplicity")),
         }
         cp = {}
         for role, keep in GHOSTED_ROLES.items():

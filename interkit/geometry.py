@@ -206,6 +206,14 @@ class Dimer:
         Spin multiplicities 2S+1 of fragments A and B.
     name : str
         A label used in reports.
+    dimer_multiplicity : int, optional
+        Spin multiplicity 2S+1 of the dimer. None (the default) means high spin,
+        S = S_A + S_B (the fragment spins parallel). The lowest spin,
+        S = |S_A - S_B|, is computed as a broken-symmetry unrestricted determinant
+        started from the fragment densities with the spin of one fragment flipped
+        (see :mod:`interkit.spin`); values between the two are refused
+        (NotAvailableError), values outside them or of the wrong parity are an
+        InputError.
     """
 
     symbols: tuple[str, ...]
@@ -214,6 +222,7 @@ class Dimer:
     charges: tuple[int, int] = (0, 0)
     multiplicities: tuple[int, int] = (1, 1)
     name: str = "dimer"
+    dimer_multiplicity: int | None = None
     _check: bool = field(default=True, repr=False, compare=False)
 
     def __post_init__(self):
@@ -234,10 +243,34 @@ class Dimer:
         object.__setattr__(self, "coordinates", coords)
         object.__setattr__(self, "charges", _as_pair(self.charges, "charges"))
         object.__setattr__(self, "multiplicities", _as_pair(self.multiplicities, "multiplicities"))
+        object.__setattr__(self, "dimer_multiplicity", self._checked_dimer_multiplicity())
         frag_a = self._checked_fragment(self.fragment_a, len(symbols))
         object.__setattr__(self, "fragment_a", frag_a)
         if self._check:
             self._validate()
+
+    def _checked_dimer_multiplicity(self) -> int | None:
+        value = self.dimer_multiplicity
+        if value is None:
+            return None
+        if isinstance(value, bool) or not isinstance(value, (int, np.integer)):
+            raise InputError(f"dimer_multiplicity: {value!r} is not a positive integer")
+        value = int(value)
+        ma, mb = self.multiplicities
+        sa, sb = ma - 1, mb - 1  # 2S of each fragment
+        low, high = abs(sa - sb) + 1, sa + sb + 1
+        if value < 1 or (value - high) % 2 != 0 or not low <= value <= high:
+            allowed = ", ".join(str(m) for m in range(low, high + 1, 2))
+            raise InputError(
+                f"dimer_multiplicity: {value} is impossible for fragments of multiplicities {ma} and "
+                f"{mb} (|S_A - S_B| <= S <= S_A + S_B and the electron count allow {allowed})")
+        if low < value < high:
+            from .errors import NotAvailableError
+
+            raise NotAvailableError(
+                f"dimer_multiplicity: {value} lies between the lowest ({low}) and the highest ({high}) "
+                "spin of these fragments; a single determinant gives only those two")
+        return value
 
     @staticmethod
     def _checked_fragment(fragment_a, natoms: int) -> tuple[int, ...]:
@@ -296,8 +329,11 @@ class Dimer:
         charges: Sequence[int] = (0, 0),
         multiplicities: Sequence[int] = (1, 1),
         name: str = "dimer",
+        dimer_multiplicity: int | None = None,
     ) -> Dimer:
-        """Build a dimer, splitting it by covalent connectivity if ``fragment_a`` is None."""
+        """Build a dimer, splitting it by covalent connectivity if ``fragment_a`` is None.
+
+        ``dimer_multiplicity`` None means high spin (see :class:`Dimer`)."""
         symbols = tuple(normalise_symbol(s, f"symbols[{i}]") for i, s in enumerate(symbols))
         if fragment_a is None:
             probe = cls(symbols, coordinates, (0,), (0, 0), (1, 1), name, _check=False)
@@ -308,7 +344,8 @@ class Dimer:
                     "fragments, not 2; give fragment_a explicitly"
                 )
             fragment_a = groups[0]
-        return cls(symbols, coordinates, tuple(fragment_a), tuple(charges), tuple(multiplicities), name)
+        return cls(symbols, coordinates, tuple(fragment_a), tuple(charges), tuple(multiplicities), name,
+                   dimer_multiplicity)
 
     @classmethod
     def from_xyz(
@@ -319,6 +356,7 @@ class Dimer:
         multiplicities: Sequence[int] = (1, 1),
         frame: int = 0,
         name: str | None = None,
+        dimer_multiplicity: int | None = None,
     ) -> Dimer:
         """Read a dimer from an XYZ file (angstrom).
 
@@ -335,28 +373,34 @@ class Dimer:
             Frame index for multi-frame files.
         name : str, optional
             Label; defaults to the file name without extension.
+        dimer_multiplicity : int, optional
+            Spin multiplicity of the dimer; None (default) means high spin,
+            S = S_A + S_B (see :class:`Dimer`).
         """
         frames = read_xyz(path)
         if not -len(frames) <= frame < len(frames):
             raise InputError(f"frame: {frame} is outside the {len(frames)} frames of {os.fspath(path)!r}")
         f = frames[frame]
         label = name or os.path.splitext(os.path.basename(os.fspath(path)))[0]
-        return cls.from_atoms(f.symbols, f.coordinates, fragment_a, charges, multiplicities, label)
+        return cls.from_atoms(f.symbols, f.coordinates, fragment_a, charges, multiplicities, label,
+                              dimer_multiplicity)
 
     @classmethod
     def from_xyz_string(cls, text: str, fragment_a=None, charges=(0, 0), multiplicities=(1, 1),
-                        name: str = "dimer") -> Dimer:
+                        name: str = "dimer", dimer_multiplicity: int | None = None) -> Dimer:
         """Read a dimer from XYZ text (first frame)."""
         f = parse_xyz(text)[0]
-        return cls.from_atoms(f.symbols, f.coordinates, fragment_a, charges, multiplicities, name)
+        return cls.from_atoms(f.symbols, f.coordinates, fragment_a, charges, multiplicities, name,
+                              dimer_multiplicity)
 
     @classmethod
     def frames_from_xyz(cls, path: str | os.PathLike, fragment_a=None, charges=(0, 0),
-                        multiplicities=(1, 1)) -> list[Dimer]:
+                        multiplicities=(1, 1), dimer_multiplicity: int | None = None) -> list[Dimer]:
         """Read every frame of a multi-frame XYZ file as dimers with the same split."""
         frames = read_xyz(path)
         first = cls.from_atoms(frames[0].symbols, frames[0].coordinates, fragment_a, charges,
-                               multiplicities, os.path.splitext(os.path.basename(os.fspath(path)))[0])
+                               multiplicities, os.path.splitext(os.path.basename(os.fspath(path)))[0],
+                               dimer_multiplicity)
         out = [first]
         for k, f in enumerate(frames[1:], start=1):
             if f.symbols != first.symbols:
@@ -366,10 +410,11 @@ class Dimer:
 
     @classmethod
     def from_ase(cls, atoms, fragment_a=None, charges=(0, 0), multiplicities=(1, 1),
-                 name: str | None = None) -> Dimer:
+                 name: str | None = None, dimer_multiplicity: int | None = None) -> Dimer:
         """Build a dimer from an :class:`ase.Atoms` object."""
         return cls.from_atoms(atoms.get_chemical_symbols(), atoms.get_positions(), fragment_a,
-                              charges, multiplicities, name or atoms.get_chemical_formula())
+                              charges, multiplicities, name or atoms.get_chemical_formula(),
+                              dimer_multiplicity)
 
     def to_ase(self):
         """Return an :class:`ase.Atoms` copy (requires the optional ``ase`` package)."""
@@ -402,6 +447,19 @@ class Dimer:
         """Number of unpaired electrons 2S of fragments A and B."""
         return (self.multiplicities[0] - 1, self.multiplicities[1] - 1)
 
+    @property
+    def spin(self) -> int:
+        """Number of unpaired electrons 2S of the dimer: ``dimer_multiplicity - 1``, or
+        the high-spin sum of the fragments' when ``dimer_multiplicity`` is None."""
+        if self.dimer_multiplicity is None:
+            return sum(self.spins)
+        return self.dimer_multiplicity - 1
+
+    @property
+    def broken_symmetry(self) -> bool:
+        """True when the dimer spin is below high spin (a broken-symmetry calculation)."""
+        return self.spin < sum(self.spins)
+
     def masses(self) -> np.ndarray:
         """Atomic masses in dalton."""
         return np.array([atomic_mass(s) for s in self.symbols])
@@ -420,14 +478,14 @@ class Dimer:
     def with_coordinates(self, coordinates) -> Dimer:
         """Same atoms, fragments and charges with new coordinates (validated)."""
         return Dimer(self.symbols, coordinates, self.fragment_a, self.charges,
-                     self.multiplicities, self.name)
+                     self.multiplicities, self.name, self.dimer_multiplicity)
 
     def translated_b(self, shift) -> Dimer:
         """Copy with fragment B translated rigidly by ``shift`` (angstrom)."""
         coords = np.array(self.coordinates)
         coords[list(self.fragment_b)] += np.asarray(shift, dtype=float)
         return Dimer(self.symbols, coords, self.fragment_a, self.charges, self.multiplicities,
-                     self.name, _check=False)
+                     self.name, self.dimer_multiplicity, _check=False)
 
     def to_xyz_string(self, comment: str | None = None) -> str:
         """XYZ text of the dimer (angstrom, 10 decimals)."""
@@ -438,7 +496,7 @@ class Dimer:
 
     def to_dict(self) -> dict:
         """Plain-data description (JSON-safe)."""
-        return {
+        out = {
             "name": self.name,
             "symbols": list(self.symbols),
             "coordinates_angstrom": np.asarray(self.coordinates).tolist(),
@@ -446,18 +504,23 @@ class Dimer:
             "charges": list(self.charges),
             "multiplicities": list(self.multiplicities),
         }
+        if self.dimer_multiplicity is not None:  # absent = high spin (older files unchanged)
+            out["dimer_multiplicity"] = self.dimer_multiplicity
+        return out
 
     @classmethod
     def from_dict(cls, data: dict) -> Dimer:
         """Inverse of :meth:`to_dict`."""
         return cls(tuple(data["symbols"]), data["coordinates_angstrom"], tuple(data["fragment_a"]),
-                   tuple(data["charges"]), tuple(data["multiplicities"]), data.get("name", "dimer"))
+                   tuple(data["charges"]), tuple(data["multiplicities"]), data.get("name", "dimer"),
+                   data.get("dimer_multiplicity"))
 
     def __eq__(self, other) -> bool:
         if not isinstance(other, Dimer):
             return NotImplemented
         return (self.symbols == other.symbols and self.fragment_a == other.fragment_a
                 and self.charges == other.charges and self.multiplicities == other.multiplicities
+                and self.dimer_multiplicity == other.dimer_multiplicity
                 and np.array_equal(self.coordinates, other.coordinates))
 
     __hash__ = None  # type: ignore[assignment]

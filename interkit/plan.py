@@ -89,6 +89,14 @@ class Job:
         (``'sapt0'``); empty otherwise.
     fragment_charges : tuple of int
         Net charges of fragments A and B for such jobs; empty otherwise.
+    fragment_spins : tuple of int
+        Signed 2M_S of fragments A and B in a broken-symmetry initial guess, e.g.
+        ``(1, -1)`` (spin of B flipped); empty otherwise.
+    guess : str
+        Initial-guess recipe when it selects the SCF solution (part of the key):
+        ``''`` (pyscf's default or the previous point's density, same solution) or
+        :data:`interkit.spin.BROKEN_SYMMETRY_GUESS` (the fragments' densities with
+        ``fragment_spins``; the job is unrestricted even at 2S = 0).
     memory_limit_mb : float
         Largest tensor the calculation may build (MB); a resource limit that does not
         change the numbers, so it is not part of :meth:`describe` or the key.
@@ -104,6 +112,8 @@ class Job:
     outputs: tuple[str, ...] = ("energy",)
     fragment_a: tuple[int, ...] = ()
     fragment_charges: tuple[int, ...] = ()
+    fragment_spins: tuple[int, ...] = ()
+    guess: str = ""
     memory_limit_mb: float = field(default=4000.0, compare=False)
     key: str = field(default="", compare=False)
 
@@ -127,6 +137,9 @@ class Job:
         if self.fragment_a:
             out["fragment_a"] = list(self.fragment_a)
             out["fragment_charges"] = list(self.fragment_charges)
+        if self.guess:  # broken-symmetry jobs only (other keys unchanged)
+            out["fragment_spins"] = list(self.fragment_spins)
+            out["guess"] = self.guess
         return out
 
     @property
@@ -230,7 +243,7 @@ class ScanPlan:
 
 
 def _job_for(dimer, atoms, ghost_atoms, charge, spin, level, conv_tol, centre=False,
-             outputs=("energy",)) -> Job:
+             outputs=("energy",), **extra) -> Job:
     idx = list(atoms) + list(ghost_atoms)
     idx.sort()
     coords = np.asarray(dimer.coordinates)[idx]
@@ -246,7 +259,19 @@ def _job_for(dimer, atoms, ghost_atoms, charge, spin, level, conv_tol, centre=Fa
         level=level,
         conv_tol=conv_tol,
         outputs=tuple(outputs),
+        **extra,
     )
+
+
+def _dimer_spin_fields(d0) -> dict:
+    """Job fields of the dimer calculation beyond high spin: a broken-symmetry guess."""
+    if not d0.broken_symmetry:
+        return {}
+    from .spin import BROKEN_SYMMETRY_GUESS, broken_symmetry_spins
+
+    return {"fragment_a": tuple(int(i) for i in d0.fragment_a),
+            "fragment_charges": tuple(int(q) for q in d0.charges),
+            "fragment_spins": broken_symmetry_spins(d0.spins), "guess": BROKEN_SYMMETRY_GUESS}
 
 
 def _cp_jobs(spec: ScanSpec, geometry, level: LevelOfTheory, outputs, suffix: str = "") -> dict[str, Job]:
@@ -254,8 +279,10 @@ def _cp_jobs(spec: ScanSpec, geometry, level: LevelOfTheory, outputs, suffix: st
     d0 = spec.dimer
     a, b = d0.fragment_a, d0.fragment_b
     (qa, qb), (sa, sb) = d0.charges, d0.spins
-    jobs = {"dimer" + suffix: _job_for(geometry, a + b, (), qa + qb, sa + sb, level, spec.conv_tol,
-                                       outputs=outputs)}
+    # the dimer's own spin (high spin unless dimer_multiplicity says otherwise);
+    # the ghosted monomers keep their fragment's spin
+    jobs = {"dimer" + suffix: _job_for(geometry, a + b, (), qa + qb, d0.spin, level, spec.conv_tol,
+                                       outputs=outputs, **_dimer_spin_fields(d0))}
     if spec.counterpoise:
         jobs["a_dimer_basis" + suffix] = _job_for(geometry, a, b, qa, sa, level, spec.conv_tol, outputs=outputs)
         jobs["b_dimer_basis" + suffix] = _job_for(geometry, b, a, qb, sb, level, spec.conv_tol, outputs=outputs)

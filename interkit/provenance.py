@@ -75,6 +75,9 @@ SAPT_TOLERANCE = 1e-4
 DISPERSION_CORRECTION_TOLERANCE = 1e-6
 #: geometry is rebuilt from the spec; job coordinates are rounded to 1e-10 angstrom
 GEOMETRY_TOLERANCE = 1e-8
+#: <S^2> of a recomputed unrestricted calculation (first order in the density error;
+#: an SCF converged to 1e-8 hartree has density errors of about 1e-4)
+SPIN_SQUARE_TOLERANCE = 1e-3
 
 
 @dataclass(frozen=True)
@@ -220,6 +223,8 @@ def tolerances(ds: xr.Dataset) -> dict[str, Tolerance]:
             t = Tolerance(SAPT_TOLERANCE, units, "SAPT0 SCFs converge to 1e-10 hartree; terms are first order in it")
         elif name.startswith("e_disp_corr"):
             t = Tolerance(DISPERSION_CORRECTION_TOLERANCE, units, "analytic function of the geometry")
+        elif name == "spin_square":
+            t = Tolerance(SPIN_SQUARE_TOLERANCE, units, "<S^2> is first order in the SCF density error")
         elif units == "angstrom" or units == "1":
             t = Tolerance(GEOMETRY_TOLERANCE, units, "rebuilt from the spec (coordinates rounded to 1e-10 angstrom)")
         elif ds[name].dtype.kind in "bUSO":

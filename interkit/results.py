@@ -12,7 +12,10 @@ e_int_nocp                  level, distance             kcal/mol
 bsse                        level, distance             kcal/mol
 e_total_hartree             level, distance, role       hartree
 converged                   level, distance             (bool)
-status                      level, distance             ok/retried/failed
+status                      level, distance             ok/retried/
+                                                        spin-contaminated/failed
+spin_square                 level, distance, role       1 (<S^2>; only when a
+                                                        calculation is unrestricted)
 status_detail               level, distance             text
 wall_time_s                 level, distance             s
 job_key                     level, distance, role       sha256
@@ -126,10 +129,15 @@ def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: s
     status = np.full((nl, npnt), "failed", dtype=object)
     detail = np.full((nl, npnt), "", dtype=object)
     wall = np.zeros((nl, npnt))
+    from .spin import is_unrestricted_job, spin_note
+
+    with_spin = any(is_unrestricted_job(plan.jobs[k]) for entry in plan.table.values()
+                    for k in entry.values())
+    s2 = np.full((nl, npnt, len(roles)), np.nan)
     for li in range(nl):
         for pi in range(npnt):
             entry = plan.table[(li, pi)]
-            states, notes = [], []
+            states, notes, contaminated = [], [], False
             per_point = plan.point_roles(li, pi)
             for ri, role in enumerate(roles):
                 key = entry.get(role)
@@ -148,10 +156,18 @@ def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: s
                     total[li, pi, ri] = rec["energy_hartree"]
                     if rec["status"] == "retried":
                         notes.append(f"{ROLE_LABELS[role]}: converged with {rec.get('detail', '')}")
+                    if rec.get("spin_square") is not None:
+                        s2[li, pi, ri] = rec["spin_square"]
+                    note = spin_note(plan.jobs[key], rec)
+                    if note:
+                        contaminated = True
+                        notes.append(f"{ROLE_LABELS[role]}: {note}")
                 if role in per_point:
                     wall[li, pi] += float(rec.get("wall_time_s", 0.0))
             if "failed" in states:
                 status[li, pi] = "failed"
+            elif contaminated:  # numbers kept, never silently (see interkit.spin)
+                status[li, pi] = "spin-contaminated"
             elif "retried" in states:
                 status[li, pi] = "retried"
             else:
@@ -183,6 +199,12 @@ def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: s
 
         decomposition_vars, decomposition_attrs = decomposition_variables(plan, records)
         extra_vars.update(decomposition_vars)
+    if with_spin:
+        from .spin import SPIN_CONTAMINATION_TOLERANCE
+
+        extra_vars["spin_square"] = (("level", "distance", "role"), s2, {
+            "units": "1", "long_name": "<S^2> of each unrestricted calculation (SCF determinant; NaN: "
+            "restricted or failed)", "spin_contamination_tolerance": SPIN_CONTAMINATION_TOLERANCE})
     coords = np.stack([p.dimer.coordinates for p in points])
     anchors = np.stack([np.stack(spec.coordinate.anchors(p.dimer)) for p in points])
     energy_attrs = {"units": "kcal/mol", "sign_convention": "negative = bound"}
@@ -196,9 +218,9 @@ def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: s
                                 {"units": "hartree", "long_name": "total energy of each calculation"}),
             "converged": (("level", "distance"), converged, {"long_name": "all calculations of the point converged"}),
             "status": (("level", "distance"), status.astype(str),
-                       {"long_name": "point status", "flag_values": "ok retried failed"}),
+                       {"long_name": "point status", "flag_values": "ok retried spin-contaminated failed"}),
             "status_detail": (("level", "distance"), detail.astype(str),
-                              {"long_name": "why a point was retried or failed"}),
+                              {"long_name": "why a point was retried, flagged or failed"}),
             "wall_time_s": (("level", "distance"), wall,
                             {"units": "s", "long_name": "wall time of the point's calculations"}),
             "job_key": (("level", "distance", "role"), keys.astype(str),
@@ -230,6 +252,10 @@ def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: s
             "scan_coordinate": spec.coordinate.describe(),
             "charges": json.dumps(list(d0.charges)),
             "multiplicities": json.dumps(list(d0.multiplicities)),
+            "dimer_multiplicity": int(d0.spin + 1),
+            "dimer_spin": ("broken symmetry (lowest spin; fragment densities, spin of "
+                           f"{'AB'[_flipped(d0)]} flipped)" if d0.broken_symmetry else
+                           "high spin (S = S_A + S_B)" if sum(d0.spins) else "closed shell"),
             "codata": CODATA_EDITION,
             "created_utc": datetime.now(timezone.utc).isoformat(timespec="seconds"),
             "caution": CAUTION,
@@ -238,6 +264,12 @@ def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: s
         },
     )
     return ds
+
+
+def _flipped(dimer) -> int:
+    from .spin import flipped_fragment
+
+    return flipped_fragment(dimer.spins)
 
 
 def validate(ds: xr.Dataset) -> None:
@@ -264,7 +296,7 @@ def validate(ds: xr.Dataset) -> None:
     dist = ds["distance"].values
     if dist.size > 1 and not np.all(np.diff(dist) > 0):
         raise InputError("dataset coordinate distance: values are not strictly increasing")
-    bad = set(np.unique(ds["status"].values)) - {"ok", "retried", "failed"}
+    bad = set(np.unique(ds["status"].values)) - {"ok", "retried", "spin-contaminated", "failed"}
     if bad:
         raise InputError(f"dataset variable status: unexpected values {sorted(bad)}")
     if "dispersion" in ds.dims and "dispersion_status" not in ds.variables:

@@ -375,7 +375,7 @@ class ScanSpec:
 # ---------------------------------------------------------------------- TOML files
 _TOML_KEYS = {
     "": {"name", "system", "scan", "calculation"},
-    "system": {"geometry", "demo", "fragment_a", "charges", "multiplicities"},
+    "system": {"geometry", "demo", "fragment_a", "charges", "multiplicities", "dimer_multiplicity"},
     "scan": {"coordinate", "atoms", "vector", "distances", "factors", "frames", "values"},
     "calculation": {"levels", "counterpoise", "forces", "decomposition", "decomposition_basis",
                     "sapt_memory_limit_mb", "dispersion", "conv_tol"},
@@ -430,7 +430,8 @@ def spec_from_mapping(data: dict, base_dir: str | os.PathLike = ".") -> ScanSpec
             raise InputError(f"spec: {section!r} must be a table")
         _check_keys(data[section], section)
     system, scan, calc = data["system"], data["scan"], data["calculation"]
-    kwargs = {k: system[k] for k in ("fragment_a", "charges", "multiplicities") if k in system}
+    kwargs = {k: system[k] for k in ("fragment_a", "charges", "multiplicities", "dimer_multiplicity")
+              if k in system}
     if ("geometry" in system) == ("demo" in system):
         raise InputError("system: give exactly one of system.geometry (an XYZ file) or system.demo")
     if "geometry" in system:
@@ -491,6 +492,10 @@ def load_spec_toml(path: str | os.PathLike) -> ScanSpec:
         [system]
         geometry = "water_methanol.xyz"     # or: demo = "water_methanol"
         charges = [0, 0]
+        multiplicities = [1, 1]             # 2S+1 of fragments A and B
+        dimer_multiplicity = 1              # optional; default high spin, S = S_A + S_B;
+                                            # the lowest spin |S_A - S_B| is computed as a
+                                            # broken-symmetry determinant (other values refused)
         [scan]
         coordinate = "atom-pair"            # centre-of-mass | atom-pair | vector | frames
         atoms = [1, 5]

@@ -42,7 +42,8 @@ def test_convert_energy_roundtrip():
 
 
 CORE_MODULES = ["geometry.py", "coordinates.py", "levels.py", "spec.py", "plan.py", "units.py",
-                "errors.py", "engine/molecule.py", "engine/energy.py", "engine/dispersion.py"]
+                "errors.py", "engine/molecule.py", "engine/energy.py", "engine/dispersion.py",
+                "spin.py", "engine/guess.py"]
 FORBIDDEN = {"ipywidgets", "py3Dmol", "matplotlib", "dask", "distributed", "tqdm", "xarray", "IPython"}
 
 

@@ -18,7 +18,9 @@ from pyscf.data import elements
 
 from ..levels import SCS_OPPOSITE_SPIN, SCS_SAME_SPIN, LevelOfTheory
 from ..plan import Job
+from ..spin import BROKEN_SYMMETRY_GUESS
 from .dispersion import dispersion_energy_and_gradient
+from .guess import FRAGMENT_GUESS_CONV_TOL_HARTREE, broken_symmetry_guess
 from .molecule import build_molecule
 from .numint_cache import CachingNumInt
 
@@ -50,8 +52,9 @@ def _share_grids(mf, job: Job) -> None:
         mf.grids = grids
 
 
-def _make_scf(mol, level: LevelOfTheory, conv_tol: float):
-    unrestricted = mol.spin != 0
+def _make_scf(mol, level: LevelOfTheory, conv_tol: float, unrestricted: bool | None = None):
+    if unrestricted is None:
+        unrestricted = mol.spin != 0
     if level.method == "dft":
         mf = dft.UKS(mol) if unrestricted else dft.RKS(mol)
         mf.xc = level.functional
@@ -67,11 +70,16 @@ def _make_scf(mol, level: LevelOfTheory, conv_tol: float):
     return mf
 
 
+def is_unrestricted(mf) -> bool:
+    """True for UHF/UKS objects (also a broken-symmetry determinant with 2S = 0)."""
+    return isinstance(mf, scf.uhf.UHF)
+
+
 def _usable_guess(guess, mf) -> bool:
     if guess is None:
         return False
     nao = mf.mol.nao
-    shape = (2, nao, nao) if mf.mol.spin != 0 else (nao, nao)
+    shape = (2, nao, nao) if is_unrestricted(mf) else (nao, nao)
     return np.shape(guess) == shape
 
 
@@ -122,7 +130,7 @@ def correlation_energy(mf, level: LevelOfTheory) -> float:
     mol = mf.mol
     ncore = _frozen_core(mol)
     if level.method in ("mp2", "scs-mp2"):
-        solver = (mp.UMP2(mf) if mol.spin != 0 else mp.MP2(mf)).density_fit()
+        solver = (mp.UMP2(mf) if is_unrestricted(mf) else mp.MP2(mf)).density_fit()
         solver.frozen = ncore or None
         solver.verbose = 0
         solver.kernel()
@@ -130,7 +138,7 @@ def correlation_energy(mf, level: LevelOfTheory) -> float:
             return float(solver.e_corr)
         return float(SCS_OPPOSITE_SPIN * solver.e_corr_os + SCS_SAME_SPIN * solver.e_corr_ss)
     if level.method == "ccsd(t)":
-        solver = cc.UCCSD(mf) if mol.spin != 0 else cc.CCSD(mf)
+        solver = cc.UCCSD(mf) if is_unrestricted(mf) else cc.CCSD(mf)
         solver.frozen = ncore or None
         solver.verbose = 0
         solver.conv_tol = 1e-9
@@ -156,7 +164,8 @@ def run_energy_job(job: Job, guess=None) -> tuple[dict, object]:
         ``energy_hartree`` (total, NaN on failure), ``scf_energy_hartree``,
         ``correlation_energy_hartree``, ``dispersion_energy_hartree``, ``converged``,
         ``status`` (ok / retried / failed), ``detail``, ``scf_cycles``, ``nao``,
-        ``wall_time_s``.
+        ``wall_time_s``; ``spin_square`` (<S^2> of the SCF determinant) for
+        unrestricted calculations.
     density : array or None
         The converged density matrix, for seeding the next calculation.
     """
@@ -175,29 +184,39 @@ def run_energy_job(job: Job, guess=None) -> tuple[dict, object]:
     }
     density = None
     want_gradient = "gradient" in job.outputs
+    broken_symmetry = job.guess == BROKEN_SYMMETRY_GUESS
+    unrestricted = job.spin != 0 or broken_symmetry
     try:
         mol = build_molecule(job)
         record["nao"] = int(mol.nao)
         level = job.level
-        if want_gradient and level.method == "mp2" and mol.spin != 0:
+        if want_gradient and level.method == "mp2" and unrestricted:
             # open shells: pyscf's conventional UMP2 gradient (conventional reference);
             # closed shells use the DF-MP2 gradient of .mp2_gradient
             level = dataclasses.replace(level, density_fitting=False)
         # forces are first order in the density error, energies second order: gradient
         # jobs converge at least to GRADIENT_CONV_TOL_HARTREE
         conv_tol = min(job.conv_tol, GRADIENT_CONV_TOL_HARTREE) if want_gradient else job.conv_tol
-        mf = _make_scf(mol, level, conv_tol)
+        # a broken-symmetry determinant is unrestricted even at 2S = 0
+        mf = _make_scf(mol, level, conv_tol, True) if broken_symmetry else _make_scf(mol, level, conv_tol)
         if level.method == "dft":
             # no density-based pruning of grid points: the dimer and both ghosted monomers
             # of a point then share one grid and its orbital values, and the gradient's
             # grid response differentiates exactly the grid the energy used
             mf.small_rho_cutoff = 0.0
             _share_grids(mf, job)
+        if broken_symmetry:
+            # always from the fragments (never the previous point), so the solution
+            # depends on the job description only
+            guess = broken_symmetry_guess(job, mol, lambda m: _make_scf(m, level, FRAGMENT_GUESS_CONV_TOL_HARTREE))
+            record["guess"] = BROKEN_SYMMETRY_GUESS
         status, detail = converge_scf(mf, guess)
         record["scf_cycles"] = int(getattr(mf, "cycles", 0) or 0)
         record["status"], record["detail"] = status, detail
         if status != "failed":
             density = mf.make_rdm1()
+            if unrestricted:
+                record["spin_square"] = float(mf.spin_square()[0])
             e_scf = float(mf.e_tot)
             if want_gradient:
                 e_corr, e_disp = _gradient_outputs(job, mf, level, density, record)

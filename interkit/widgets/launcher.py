@@ -137,6 +137,11 @@ class ScanLauncher(widgets.VBox):
                         for f in "AB"]
         self.mults = [widgets.IntText(value=1, description=f"2S+1 {f}", layout=lay(width="150px"))
                       for f in "AB"]
+        self.dimer_mult = widgets.Text(value="", description="2S+1 dimer", placeholder="high spin",
+                                       tooltip="empty: high spin (S = S_A + S_B); the lowest spin |S_A - S_B| "
+                                               "is a broken-symmetry calculation",
+                                       continuous_update=False, layout=lay(width="300px"))
+        self.dimer_mult.add_class("interkit-dimer-multiplicity")
         self.dimer_info = widgets.HTML()
         self.preview = Molecule3D([scene_from_arrays(["H", "H"], ["A", "B"], [[0, 0, 0], [0, 0, 0.74]])],
                                   width=360, height=280)
@@ -195,7 +200,7 @@ class ScanLauncher(widgets.VBox):
         self.demo.observe(lambda _c: self._load_demo(), "value")
         self.upload.observe(self._on_upload, "value")
         self.paste_button.on_click(lambda _b: self.load_xyz_text(self.paste.value, "pasted"))
-        for w in (self.fragment_a, *self.charges, *self.mults):
+        for w in (self.fragment_a, *self.charges, *self.mults, self.dimer_mult):
             w.observe(lambda _c: self._reload(), "value")
         for w in (self.coordinate, self.atom_a, self.atom_b):
             w.observe(lambda _c: self._refresh_preview(), "value")
@@ -213,6 +218,7 @@ class ScanLauncher(widgets.VBox):
         form = widgets.VBox([
             h("<b>1 · Dimer</b>"), self.source, self._source_box,
             widgets.HBox([self.fragment_a]), widgets.HBox(self.charges), widgets.HBox(self.mults),
+            self.dimer_mult,
             self.dimer_info,
             h("<b>2 · Scan coordinate and grid</b>"), self.coordinate, widgets.HBox([self.atom_a, self.atom_b]),
             self.grid_mode, self.grid,
@@ -261,6 +267,7 @@ class ScanLauncher(widgets.VBox):
             for k in range(2):
                 self.charges[k].value = int(entry.get("charges", (0, 0))[k])
                 self.mults[k].value = int(entry.get("multiplicities", (1, 1))[k])
+            self.dimer_mult.value = ""
         finally:
             self._loading = False
 
@@ -288,12 +295,22 @@ class ScanLauncher(widgets.VBox):
             return None
         return [int(x) for x in parse_grid(text, "fragment A")]
 
+    def _dimer_multiplicity(self) -> int | None:
+        text = self.dimer_mult.value.strip()
+        if not text:
+            return None
+        try:
+            return int(text)
+        except ValueError:
+            raise InputError(f"dimer_multiplicity: {text!r} is not an integer (leave empty for high spin)") from None
+
     @_shows_errors
     def _reload(self) -> Dimer | None:
         if getattr(self, "_loading", False):
             return None
         kwargs = {"fragment_a": self._fragment_a(), "charges": tuple(w.value for w in self.charges),
-                  "multiplicities": tuple(w.value for w in self.mults)}
+                  "multiplicities": tuple(w.value for w in self.mults),
+                  "dimer_multiplicity": self._dimer_multiplicity()}
         if self._text_source:
             dimer = Dimer.from_xyz_string(self._text_source, name=self._text_name, **kwargs)
         else:
@@ -314,7 +331,9 @@ class ScanLauncher(widgets.VBox):
         self.dimer_info.value = note_html(
             f"{dimer.name}: {dimer.natoms} atoms · A {len(dimer.fragment_a)} atoms ({formula['A']}, charge "
             f"{dimer.charges[0]}, 2S+1 = {dimer.multiplicities[0]}) · B {len(dimer.fragment_b)} atoms "
-            f"({formula['B']}, charge {dimer.charges[1]}, 2S+1 = {dimer.multiplicities[1]})")
+            f"({formula['B']}, charge {dimer.charges[1]}, 2S+1 = {dimer.multiplicities[1]}) · dimer "
+            f"2S+1 = {dimer.spin + 1}" + (" (broken symmetry)" if dimer.broken_symmetry else
+                                           " (high spin)" if sum(dimer.spins) else ""))
         self._guess_seconds()
         self._refresh_preview()
 

@@ -139,13 +139,18 @@ class BackgroundScan:
         return assemble(self.plan, records, missing_reason="pending", dispersion_terms=self._dispersion_terms)
 
     def point_states(self) -> np.ndarray:
-        """(level, point) array of 'waiting', 'partial', 'ok', 'retried' or 'failed'."""
+        """(level, point) array of 'waiting', 'partial', 'ok', 'retried', 'spin-contaminated'
+        or 'failed'."""
+        from ..spin import spin_note
+
         with self._lock:
             records = dict(self.records)
         nl, npnt = len(self.spec.levels), len(self.spec.points)
         out = np.full((nl, npnt), "waiting", dtype=object)
         for (li, pi), roles in self.plan.table.items():
             recs = [records.get(key) for key in roles.values()]
+            flagged = any(r is not None and r.get("status") != "failed" and spin_note(self.plan.jobs[k], r)
+                          for k, r in zip(roles.values(), recs))
             got = [r for r in recs if r is not None]
             if not got:
                 continue
@@ -154,6 +159,8 @@ class BackgroundScan:
                 out[li, pi] = "failed"
             elif len(got) < len(recs):
                 out[li, pi] = "partial"
+            elif flagged:
+                out[li, pi] = "spin-contaminated"
             else:
                 out[li, pi] = "retried" if "retried" in states else "ok"
         return out

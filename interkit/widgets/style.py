@@ -18,6 +18,7 @@ STATUS_STYLE = {
     "partial": ("◐", "#3d6fb6"),
     "ok": ("●", "#2f8f4e"),
     "retried": ("●", "#c7961c"),
+    "spin-contaminated": ("▲", "#c7961c"),
     "failed": ("✕", "#b3261e"),
 }
 
