@@ -28,6 +28,12 @@ is written to the store from the worker when a store is given (its folder must b
 visible to the workers, e.g. on a shared file system; if a worker cannot write it, the
 client does).
 
+Bounded waits, never a hang: :func:`connect` gives up after ``timeout`` seconds
+(``CONNECT_TIMEOUT_S``) with a :class:`~interkit.errors.ClusterError`; a scan waits at
+most ``DaskExecutor.cluster_wait_s`` (``CLUSTER_WAIT_S``) for a first worker (else
+ClusterError before anything runs) and, when every worker has left mid-scan, as long
+for a new one before its unfinished calculations come back as failed records.
+
 Dask is an optional dependency (``pip install 'interkit[dask]'``), imported only when
 used.
 """
