@@ -81,3 +81,23 @@ def test_dask_store_write_failure_keeps_results_and_counts_them(tmp_path, monkey
     np.testing.assert_allclose(ds["e_total_hartree"].values, ref["e_total_hartree"].values, atol=1e-9, rtol=0)
     assert (ds["status"].values == ref["status"].values).all()
     assert ResultStore(tmp_path / "store").keys() == []
+
+
+def test_workers_gone_mid_scan_give_failed_records_after_the_wait():
+    from interkit.plan import plan_scan
+
+    plan = plan_scan(_spec())
+    chunks = [list(plan.chunks(1)[0])]
+    with local_cluster(n_workers=1, processes=False, protocol="tcp://") as cluster, \
+            Client(cluster, set_as_default=False) as client:
+        executor = DaskExecutor(client, cluster_wait_s=WAIT_S)
+        executor.wait_for_workers()
+        cluster.scale(0)  # every worker leaves (e.g. the batch jobs ended)
+        deadline = time.monotonic() + 30
+        while client.nthreads() and time.monotonic() < deadline:
+            time.sleep(0.05)
+        t0 = time.monotonic()
+        records = executor.run(chunks, plan.jobs, None)
+        assert time.monotonic() - t0 < WAIT_S + SLACK_S  # before: waited for ever
+    assert set(records) == {key for _, key in chunks[0]}
+    assert all(r["status"] == "failed" and "no Dask worker" in r["detail"] for r in records.values())
