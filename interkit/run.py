@@ -125,9 +125,10 @@ def run_scan(
     Raises
     ------
     Exception
-        An error after calculations finished (an interrupt, an error while assembling
-        the Dataset or in the post-hoc dispersion step) carries every record computed
-        so far as ``exc.records`` (job key -> record, see
+        An error once calculations have started (an interrupt, an error of the executor,
+        while assembling the Dataset or in the post-hoc dispersion step) carries every
+        record at hand, computed or read from the store, as ``exc.records`` (job key ->
+        record; ``assemble(plan_scan(spec), exc.records)`` builds the Dataset, see
         :func:`interkit.results.assemble`), besides the copies in the store.
     """
     if not isinstance(spec, ScanSpec):
