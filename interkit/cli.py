@@ -86,6 +86,9 @@ def _add_run_options(p, default_cache: str | None = ".interkit-cache") -> None:
     p.add_argument("--scheduler", metavar="ADDRESS", default=None,
                    help="run one calculation per task on the Dask cluster of this scheduler "
                         "(e.g. tcp://HOST:8786); the --cache folder must be visible to its workers")
+    p.add_argument("--cluster-wait", metavar="SECONDS", type=float, default=None,
+                   help="with --scheduler: seconds to wait for the scheduler (default 10) and for a "
+                        "first worker (default 60) before giving up with an error")
 
 
 def _energy_table(ds) -> str:
@@ -164,7 +167,16 @@ def _cmd_scan(args) -> int:
     print(_energy_table(ds))
     print(_minimum_report(ds))
     print(f"wrote {args.output}")
+    _store_summary(ds, args.output)
     return 0 if not (ds["status"] == "failed").any() else 1
+
+
+def _store_summary(ds, where: str) -> None:
+    """One line on stderr when results could not be written to the store."""
+    n = int(ds.attrs.get("calculations_not_stored", 0))
+    if n:
+        print(f"interkit: warning: {n} calculation(s) could not be written to the store; their results "
+              f"are in {where}, a rerun computes them again", file=sys.stderr)
 
 
 def demo_spec():
@@ -205,6 +217,7 @@ def _cmd_demo(args) -> int:
     print(_minimum_report(ds))
     print(f"wrote {nc} and {png} ({ds.attrs['calculations_computed']} calculations computed, "
           f"{ds.attrs['calculations_from_store']} from the store, {ds.attrs['run_wall_time_s']:.1f} s)")
+    _store_summary(ds, nc)
     return 0
 
 
@@ -226,14 +239,15 @@ def _cmd_systems(args) -> int:
 
 def _run_on_scheduler(spec, args):
     from .errors import InputError
-    from .executors_dask import connect
+    from .executors_dask import connect, dask_executor
     from .run import run_scan
 
     if args.serial or args.workers is not None:
         raise InputError("--scheduler: the cluster's workers run the scan; leave out --serial and --workers")
-    client = connect(args.scheduler)
+    client = connect(args.scheduler, timeout=args.cluster_wait)
     try:
-        return run_scan(spec, executor=client, cache=args.cache, progress=not args.quiet)
+        return run_scan(spec, executor=dask_executor(client, args.cluster_wait), cache=args.cache,
+                        progress=not args.quiet)
     finally:
         client.close()
 

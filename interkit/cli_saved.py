@@ -59,13 +59,13 @@ def _executor(args):
     if not getattr(args, "scheduler", None):
         yield "serial" if args.serial else "processes"
         return
-    from .executors_dask import connect
+    from .executors_dask import connect, dask_executor
 
     if args.serial or args.workers is not None:
         raise InputError("--scheduler: the cluster's workers run the scan; leave out --serial and --workers")
-    client = connect(args.scheduler)
+    client = connect(args.scheduler, timeout=args.cluster_wait)
     try:
-        yield client
+        yield dask_executor(client, args.cluster_wait)
     finally:
         client.close()
 

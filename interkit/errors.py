@@ -27,6 +27,11 @@ class ResourceError(InterkitError, RuntimeError):
     """A calculation would exceed a stated resource limit (memory, size)."""
 
 
+class ClusterError(InputError):
+    """A Dask cluster cannot run the scan: no scheduler answers, or no worker joined
+    within the stated wait."""
+
+
 class StoreError(InterkitError, OSError):
     """The on-disk result store cannot be used."""
 

@@ -3,6 +3,8 @@
 A chunk is an ordered list of ``(role, key)``; a worker runs it in order, seeding each
 SCF with the density of the previous calculation in the same role, and writes every
 finished result to the store at once so a killed run loses at most the running jobs.
+A result that cannot be written (disk full, permission) is still returned, marked with
+``NOT_STORED_FIELD``.
 """
 
 from __future__ import annotations
@@ -20,6 +22,9 @@ import numpy as np
 from .plan import Job
 
 _THREAD_VARS = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
+#: field an executor adds to a record it could not write to the store (the reason);
+#: :func:`interkit.run.run_scan` counts and removes it
+NOT_STORED_FIELD = "_not_stored"
 
 
 def run_chunk(tasks, jobs: dict[str, Job], store_root: str | None = None,
@@ -34,7 +39,12 @@ def run_chunk(tasks, jobs: dict[str, Job], store_root: str | None = None,
     from .engine.energy import run_energy_job
     from .store import ResultStore
 
-    store = ResultStore(store_root) if store_root else None
+    store, store_problem = None, None
+    if store_root:
+        try:
+            store = ResultStore(store_root)
+        except OSError as exc:  # e.g. made read-only meanwhile: results are still returned
+            store_problem = _reason(exc)
     history: dict[str, list] = {}
     out = []
     for role, key in tasks:
@@ -50,12 +60,28 @@ def run_chunk(tasks, jobs: dict[str, Job], store_root: str | None = None,
         else:
             history.pop(role, None)
         record["role"] = role
-        if store is not None and record["status"] != "failed":
-            store.put(key, record, job.describe())
+        if store_root and record["status"] != "failed":
+            why = store_problem if store is None else put_record(store, key, record, job.describe())
+            if why is not None:
+                record[NOT_STORED_FIELD] = why
         out.append((key, record))
         if report is not None:
             report(key, record)
     return out
+
+
+def put_record(store, key: str, record: dict, job: dict) -> str | None:
+    """Write one record to ``store``; None when written, else why not (one line)."""
+    try:
+        store.put(key, record, job)
+    except (OSError, ValueError, TypeError) as exc:  # disk full, permission...
+        return _reason(exc)
+    return None
+
+
+def _reason(exc: BaseException) -> str:
+    text = exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc)
+    return f"{type(exc).__name__}: {(text.strip().splitlines() or [''])[0]}"[:200]
 
 
 def extrapolated_guess(previous: list, job: Job):

@@ -28,6 +28,12 @@ is written to the store from the worker when a store is given (its folder must b
 visible to the workers, e.g. on a shared file system; if a worker cannot write it, the
 client does).
 
+Bounded waits, never a hang: :func:`connect` gives up after ``timeout`` seconds
+(``CONNECT_TIMEOUT_S``) with a :class:`~interkit.errors.ClusterError`; a scan waits at
+most ``DaskExecutor.cluster_wait_s`` (``CLUSTER_WAIT_S``) for a first worker (else
+ClusterError before anything runs) and, when every worker has left mid-scan, as long
+for a new one before its unfinished calculations come back as failed records.
+
 Dask is an optional dependency (``pip install 'interkit[dask]'``), imported only when
 used.
 """
@@ -37,6 +43,7 @@ from __future__ import annotations
 import os
 import tempfile
 import threading
+import time
 import uuid
 from collections import OrderedDict
 from collections.abc import Callable
@@ -47,7 +54,7 @@ from typing import Any
 
 import numpy as np
 
-from .errors import InputError, InterkitError, NotAvailableError
+from .errors import ClusterError, InputError, InterkitError, NotAvailableError
 
 #: retries of a task that raised (lost workers are handled by distributed's allowed-failures)
 DEFAULT_RETRIES = 2
@@ -55,6 +62,9 @@ DEFAULT_RETRIES = 2
 DENSITY_CACHE_BYTES = 256 * 2**20
 #: seconds to wait for a scheduler when connecting by address
 CONNECT_TIMEOUT_S = 10.0
+#: seconds a scan waits for a first worker (and, mid-scan, for any worker) before it
+#: gives up: an error before the scan, failed records ("no Dask worker") during it
+CLUSTER_WAIT_S = 60.0
 #: the only interface local clusters listen on
 LOOPBACK = "127.0.0.1"
 
@@ -75,11 +85,17 @@ class DaskExecutor:
         thread per core; a worker with one thread on an n-core allocation wants n).
     retries : int
         How often a task that raised is submitted again.
+    cluster_wait_s : float
+        Seconds to wait for the cluster's first worker before the scan starts
+        (:class:`~interkit.errors.ClusterError` if none joins), and, during the scan,
+        for any worker when all are gone (the unfinished calculations then come back
+        as failed records). Default ``CLUSTER_WAIT_S`` (60 s).
     """
 
     client: Any
     blas_threads: int = 1
     retries: int = DEFAULT_RETRIES
+    cluster_wait_s: float = CLUSTER_WAIT_S
 
     def __post_init__(self):
         for name in ("blas_threads", "retries"):
@@ -87,6 +103,21 @@ class DaskExecutor:
             low = 1 if name == "blas_threads" else 0
             if isinstance(value, bool) or not isinstance(value, int) or value < low:
                 raise InputError(f"{name}: {value!r} is not an integer >= {low}")
+        wait = self.cluster_wait_s
+        if isinstance(wait, bool) or not isinstance(wait, (int, float)) or not 0 < wait < float("inf"):
+            raise InputError(f"cluster_wait_s: {wait!r} is not a positive number of seconds")
+
+    def wait_for_workers(self) -> None:
+        """Return once the cluster has a worker; ClusterError after ``cluster_wait_s``."""
+        try:
+            self.client.wait_for_workers(1, timeout=self.cluster_wait_s)
+        except Exception as exc:  # TimeoutError, or the scheduler went away (OSError...)
+            if isinstance(exc, TimeoutError) or "timed out" in str(exc).lower():
+                why = f"no worker joined within {self.cluster_wait_s:g} s"
+            else:
+                why = (str(exc).strip().splitlines() or [type(exc).__name__])[0][:160]
+            raise ClusterError(f"executor: the Dask cluster cannot run the scan ({why}); start workers "
+                               "or raise the wait (cluster_wait_s, --cluster-wait)") from None
 
     def worker_threads(self) -> dict[str, int]:
         """Threads of each connected worker, by address."""
@@ -123,6 +154,7 @@ class DaskExecutor:
                 futures[fut] = (role, key)
         results: dict[str, dict] = {}
         pending = set(futures)
+        seen_worker = next_check = time.monotonic()
         try:
             while pending:
                 if cancel is not None and cancel.is_set():
@@ -132,6 +164,20 @@ class DaskExecutor:
                     with client.as_current():  # wait() uses the current client
                         wait(list(pending), timeout=0.25, return_when="FIRST_COMPLETED")
                 except TimeoutError:
+                    now = time.monotonic()
+                    if now >= next_check:  # all workers gone for too long: give up, never hang
+                        next_check = now + 1.0
+                        if self._has_workers():
+                            seen_worker = now
+                        elif now - seen_worker > self.cluster_wait_s:
+                            client.cancel(list(pending))
+                            for fut in pending:
+                                role, key = futures[fut]
+                                results[key] = _failed_record(
+                                    role, f"no Dask worker for {self.cluster_wait_s:g} s (cluster_wait_s)")
+                                if report is not None:
+                                    report(key, results[key])
+                            pending.clear()
                     continue
                 except CancelledError:  # futures cancelled, e.g. the scheduler was lost
                     pass
@@ -148,6 +194,12 @@ class DaskExecutor:
                 client.cancel(list(pending))
         return results
 
+    def _has_workers(self) -> bool:
+        try:
+            return bool(self.client.nthreads())
+        except Exception:  # scheduler unreachable: its futures are cancelled, handled above
+            return True
+
     @staticmethod
     def _collect(fut, role, key, jobs, store_root) -> dict:
         if fut.status == "finished":
@@ -156,12 +208,15 @@ class DaskExecutor:
             except Exception as exc:  # lost between finishing and fetching
                 return _lost_record(role, exc)
             if not stored and store_root and record.get("status") != "failed":
+                from .executors import NOT_STORED_FIELD, put_record
                 from .store import ResultStore
 
                 try:
-                    ResultStore(store_root).put(key, record, jobs[key].describe())
-                except (OSError, InterkitError):
-                    pass  # the scan still gets the result; the store misses it
+                    why = put_record(ResultStore(store_root), key, record, jobs[key].describe())
+                except (OSError, InterkitError) as exc:
+                    why = f"{type(exc).__name__}: {exc}"[:200]
+                if why is not None:  # the scan still gets the result; run_scan counts it
+                    record[NOT_STORED_FIELD] = why
             return record
         exc = fut.exception() if fut.status == "error" else RuntimeError(f"task {fut.status}")
         return _lost_record(role, exc)
@@ -198,16 +253,33 @@ def as_dask_executor(obj) -> DaskExecutor:
         executor = DaskExecutor(obj)
     if executor.client.status != "running":
         raise InputError(f"executor: the Dask client is {executor.client.status}, not connected")
+    executor.wait_for_workers()
     return executor
+
+
+def dask_executor(client, cluster_wait_s: float | None = None) -> DaskExecutor:
+    """``DaskExecutor(client)`` with ``cluster_wait_s`` (None: the default wait)."""
+    if cluster_wait_s is None:
+        return DaskExecutor(client)
+    return DaskExecutor(client, cluster_wait_s=cluster_wait_s)
 
 
 def connect(address: str, timeout: float | None = None):
     """A ``distributed.Client`` connected to the scheduler at ``address``.
 
+    Parameters
+    ----------
+    address : str
+        Scheduler address, e.g. ``tcp://HOST:8786``.
+    timeout : float, optional
+        Seconds to wait for the scheduler (default ``CONNECT_TIMEOUT_S``, 10 s).
+
     Raises
     ------
+    ClusterError
+        One line naming the address when no scheduler answers there within ``timeout``.
     InputError
-        One line naming the address when no scheduler answers there.
+        A malformed address or timeout.
     NotAvailableError
         When dask.distributed is not installed.
     """
@@ -221,6 +293,8 @@ def connect(address: str, timeout: float | None = None):
     from distributed.comm.registry import get_backend
 
     timeout = CONNECT_TIMEOUT_S if timeout is None else timeout
+    if isinstance(timeout, bool) or not isinstance(timeout, (int, float)) or not 0 < timeout < float("inf"):
+        raise InputError(f"--cluster-wait: {timeout!r} is not a positive number of seconds")
     try:  # a malformed address is refused before a client exists
         get_backend(parse_address(address)[0])
         get_address_host_port(address)
@@ -231,7 +305,7 @@ def connect(address: str, timeout: float | None = None):
         return Client(address, timeout=timeout, set_as_default=False)
     except Exception as exc:  # distributed raises OSError, TimeoutError, ValueError, TypeError...
         reason = (str(exc).strip().splitlines() or [type(exc).__name__])[0][:200]
-        raise InputError(f"--scheduler: cannot connect to {address!r} ({reason})") from None
+        raise ClusterError(f"--scheduler: cannot connect to {address!r} within {timeout:g} s ({reason})") from None
 
 
 def local_cluster(n_workers: int = 2, threads_per_worker: int = 1, **kwargs):

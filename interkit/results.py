@@ -25,6 +25,10 @@ symbol, fragment            atom                        -
 factor                      distance                    1
 ==========================  ==========================  ===========
 
+A point with counterpoise whose monomer in its own basis failed keeps ``e_int`` (which does
+not use it) and its status (``ok``/``retried``); only ``e_int_nocp`` and ``bsse`` are NaN,
+and ``status_detail`` says which calculation failed and why.
+
 Sign convention: interaction energies are negative when the dimer is bound. Every
 later variable (forces, components, dispersion corrections) is added to this layout:
 forces see :mod:`interkit.forces`, the SAPT0 components (dimension ``distance`` only)
@@ -42,7 +46,7 @@ import numpy as np
 import xarray as xr
 
 from .errors import InputError
-from .plan import ROLE_LABELS, ScanPlan
+from .plan import OWN_BASIS_ROLES, ROLE_LABELS, ScanPlan
 from .units import CODATA_EDITION, HARTREE_TO_KCAL_PER_MOL
 
 SCHEMA_VERSION = "interkit-scan/1"
@@ -58,6 +62,9 @@ ENERGY_VARIABLES = {
     "e_int_nocp": "interaction energy (uncorrected)",
     "bsse": "basis set superposition error (corrected minus uncorrected; positive)",
 }
+
+#: appended to the status detail of a point whose own-basis monomer failed (with counterpoise)
+NOCP_LOST = "e_int_nocp and bsse not available (e_int does not use the own-basis monomers)"
 
 REQUIRED_VARIABLES = ("e_int", "e_int_nocp", "bsse", "converged", "status", "coordinates",
                       "symbol", "fragment")
@@ -134,10 +141,11 @@ def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: s
     with_spin = any(is_unrestricted_job(plan.jobs[k]) for entry in plan.table.values()
                     for k in entry.values())
     s2 = np.full((nl, npnt, len(roles)), np.nan)
+    nocp_lost = np.zeros((nl, npnt), dtype=bool)
     for li in range(nl):
         for pi in range(npnt):
             entry = plan.table[(li, pi)]
-            states, notes, contaminated = [], [], False
+            states, notes, own_failed, contaminated = [], [], [], False
             per_point = plan.point_roles(li, pi)
             for ri, role in enumerate(roles):
                 key = entry.get(role)
@@ -145,13 +153,19 @@ def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: s
                     continue
                 keys[li, pi, ri] = key
                 rec = records.get(key)
+                # with counterpoise, a failed own-basis monomer costs only e_int_nocp and bsse
+                soft = spec.counterpoise and role in OWN_BASIS_ROLES
                 if rec is None:
-                    states.append("failed")
+                    states.append("ok" if soft else "failed")
                     notes.append(f"{ROLE_LABELS[role]}: {missing_reason}")
+                    if soft:
+                        own_failed.append(role)
                     continue
-                states.append(rec["status"])
+                states.append("ok" if soft and rec["status"] == "failed" else rec["status"])
                 if rec["status"] == "failed":
                     notes.append(f"{ROLE_LABELS[role]}: {rec.get('detail', '')}")
+                    if soft:
+                        own_failed.append(role)
                 else:
                     total[li, pi, ri] = rec["energy_hartree"]
                     if rec["status"] == "retried":
@@ -173,6 +187,9 @@ def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: s
             else:
                 status[li, pi] = "ok"
             converged[li, pi] = status[li, pi] != "failed"
+            nocp_lost[li, pi] = bool(own_failed)
+            if own_failed and converged[li, pi]:
+                notes.append(NOCP_LOST)
             detail[li, pi] = "; ".join(notes)
     ri = {r: i for i, r in enumerate(roles)}
     e_dimer = total[..., ri["dimer"]]
@@ -187,6 +204,8 @@ def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: s
     bad = ~converged
     for arr in (e_cp, e_nocp, bsse):
         arr[bad] = np.nan
+    e_nocp[nocp_lost] = np.nan  # (NaN already: the own-basis energy is NaN; said explicitly)
+    bsse[nocp_lost] = np.nan
 
     extra_vars = {}
     if spec.forces:
@@ -216,7 +235,8 @@ def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: s
             "bsse": (("level", "distance"), bsse, {"units": "kcal/mol", "long_name": ENERGY_VARIABLES["bsse"]}),
             "e_total_hartree": (("level", "distance", "role"), total,
                                 {"units": "hartree", "long_name": "total energy of each calculation"}),
-            "converged": (("level", "distance"), converged, {"long_name": "all calculations of the point converged"}),
+            "converged": (("level", "distance"), converged,
+                          {"long_name": "all calculations of the point's e_int converged"}),
             "status": (("level", "distance"), status.astype(str),
                        {"long_name": "point status", "flag_values": "ok retried spin-contaminated failed"}),
             "status_detail": (("level", "distance"), detail.astype(str),

@@ -6,12 +6,13 @@ import os
 import sys
 import threading
 import time
+import warnings
 from collections.abc import Callable
 
 import xarray as xr
 
-from .errors import InputError
-from .executors import run_processes, run_serial
+from .errors import InputError, InterkitWarning
+from .executors import NOT_STORED_FIELD, run_processes, run_serial
 from .plan import ScanPlan, plan_scan
 from .results import assemble
 from .spec import ScanSpec
@@ -20,8 +21,45 @@ from .store import ResultStore
 ProgressCallback = Callable[[int, int, str, dict], None]
 
 
+def _guarded(report):
+    """``report`` that never raises: the first exception is reported once (an
+    :class:`InterkitWarning`), later calls are still attempted, the scan goes on."""
+    if report is None:
+        return None
+    failed = threading.Event()
+
+    def guarded(key, record):
+        try:
+            report(key, record)
+        except Exception as exc:  # a broken progress display must not stop the scan
+            if not failed.is_set():
+                failed.set()
+                text = (str(exc).strip().splitlines() or [""])[0][:200]
+                warnings.warn(f"progress: the progress display raised {type(exc).__name__}: {text}; "
+                              "the scan goes on (further errors of the display are not reported)",
+                              InterkitWarning, stacklevel=2)
+
+    return guarded
+
+
 def _make_progress(progress, total: int):
-    """Return (report(key, record), close()) for True/False/a callable."""
+    """Return (report(key, record), close()) for True/False/a callable.
+
+    An exception in the progress callback (or the bar) never stops a scan: it is reported
+    once as an :class:`~interkit.errors.InterkitWarning`.
+    """
+    report, close = _make_progress_unguarded(progress, total)
+
+    def safe_close():
+        try:
+            close()
+        except Exception:
+            pass
+
+    return _guarded(report), safe_close
+
+
+def _make_progress_unguarded(progress, total: int):
     if callable(progress):
         done = [0]
 
@@ -79,7 +117,19 @@ def run_scan(
     Returns
     -------
     xarray.Dataset
-        See :mod:`interkit.results` for the layout; energies in kcal/mol.
+        See :mod:`interkit.results` for the layout; energies in kcal/mol. The attribute
+        ``calculations_not_stored`` counts the calculations that could not be written to
+        the store (disk full, no permission; a warning says why): their results are in
+        the Dataset all the same, a rerun computes them again.
+
+    Raises
+    ------
+    Exception
+        An error once calculations have started (an interrupt, an error of the executor,
+        while assembling the Dataset or in the post-hoc dispersion step) carries every
+        record at hand, computed or read from the store, as ``exc.records`` (job key ->
+        record; ``assemble(plan_scan(spec), exc.records)`` builds the Dataset, see
+        :func:`interkit.results.assemble`), besides the copies in the store.
     """
     if not isinstance(spec, ScanSpec):
         raise InputError(f"spec: expected an interkit.ScanSpec, got {type(spec).__name__}")
@@ -105,7 +155,13 @@ def run_scan(
                 records[key] = rec
     chunks = _pending_chunks(plan, records, n_workers if executor in ("processes", "dask") else 1)
     n_todo = sum(len(c) for c in chunks)
-    report, close = _make_progress(progress if n_todo else False, n_todo)
+    shown, close = _make_progress(progress if n_todo else False, n_todo)
+
+    def report(key, record):  # every finished record is kept here at once
+        records[key] = record
+        if shown is not None:
+            shown(key, record)
+
     t0 = time.perf_counter()
     try:
         if n_todo:
@@ -118,14 +174,22 @@ def run_scan(
                 new = run_processes(chunks, plan.jobs, store_root, report,
                                     workers=min(n_workers, len(chunks)), cancel=cancel)
             records.update(new)
+        not_stored = _not_stored(records, store)
+        cancelled = cancel is not None and cancel.is_set()
+        t_disp = time.perf_counter()
+        terms = posthoc_dispersion(plan)
+        t_disp = time.perf_counter() - t_disp
+        ds = assemble(plan, records, missing_reason="cancelled" if cancelled else "not computed",
+                      dispersion_terms=terms)
+    except BaseException as exc:  # nothing computed is lost to a late error
+        try:
+            exc.records = dict(records)
+        except AttributeError:
+            pass
+        raise
     finally:
         close()
-    cancelled = cancel is not None and cancel.is_set()
-    t_disp = time.perf_counter()
-    terms = posthoc_dispersion(plan)
-    t_disp = time.perf_counter() - t_disp
-    ds = assemble(plan, records, missing_reason="cancelled" if cancelled else "not computed",
-                  dispersion_terms=terms)
+    ds.attrs["calculations_not_stored"] = len(not_stored)
     ds.attrs["executor"] = executor
     ds.attrs["workers"] = n_workers if executor in ("processes", "dask") else 1
     ds.attrs["calculations_computed"] = n_todo
@@ -134,6 +198,25 @@ def run_scan(
     if spec.dispersion:
         ds.attrs["dispersion_wall_time_s"] = t_disp
     return ds
+
+
+def _not_stored(records: dict[str, dict], store: ResultStore | None) -> list[str]:
+    """Keys of the records the executor could not write to the store (one warning).
+
+    Executors mark such a record with ``NOT_STORED_FIELD`` (the reason); the mark is
+    removed here, the record itself stays in the scan.
+    """
+    keys, reasons = [], []
+    for key, rec in records.items():
+        why = rec.pop(NOT_STORED_FIELD, None)
+        if why is not None:
+            keys.append(key)
+            reasons.append(str(why))
+    if keys and store is not None:
+        warnings.warn(f"store: {len(keys)} calculation(s) could not be written to {str(store.root)!r} "
+                      f"({reasons[0][:160]}); their results are in this scan, a rerun computes them again",
+                      InterkitWarning, stacklevel=3)
+    return keys
 
 
 def posthoc_dispersion(plan: ScanPlan) -> dict | None:

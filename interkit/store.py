@@ -10,10 +10,11 @@ Several processes, notebooks and users may share one store:
   over the entry, so a reader sees the old file or the new one, never a partial one, and
   two writers of the same key never share a temporary file; the last rename wins, and
   both wrote the same result;
-* a damaged entry (checksum or format wrong) is moved aside only if it is still the file
-  that was read: the reader first renames whatever is at the entry's path to a private
-  name and compares it with the file it holds open; a fresh entry that another process
-  wrote in between is put back;
+* a damaged entry (checksum or format wrong, a job description that does not hash to
+  the entry's key, or a record that lacks a field: :func:`entry_problem`) is moved aside
+  only if it is still the file that was read: the reader first renames whatever is at
+  the entry's path to a private name and compares it with the file it holds open; a
+  fresh entry that another process wrote in between is put back;
 * every successful read marks the entry as used (file times set to now), so
   :meth:`ResultStore.prune` can drop the least recently used entries.
 
@@ -137,8 +138,8 @@ class ResultStore:
     def get(self, key: str) -> dict | None:
         """The stored record of ``key``, or None if absent, unreadable or damaged.
 
-        A damaged entry is moved aside (``<key>...damaged``) with a warning, so the
-        calculation is done again; a successful read marks the entry as used.
+        A damaged entry (checksum or format wrong, or :func:`entry_problem`) is moved
+        aside (``<key>...damaged``) with a warning, so the calculation is done again; a successful read marks the entry as used.
         """
         path = self.path(key)
         try:
@@ -153,14 +154,15 @@ class ResultStore:
                     entry.get("checksum") == _checksum(payload)
             except (OSError, ValueError, KeyError, TypeError):
                 ok = False
-            if ok:
+            problem = None if not ok else entry_problem(key, entry["job"], entry["record"])
+            if ok and problem is None:
                 _mark_used(fh.fileno())
                 return entry["record"]
             # keep the file open while checking, so its inode cannot be reused meanwhile
-            self._quarantine(path, key, os.fstat(fh.fileno()))
+            self._quarantine(path, key, os.fstat(fh.fileno()), problem)
         return None
 
-    def _quarantine(self, path: Path, key: str, read: os.stat_result) -> None:
+    def _quarantine(self, path: Path, key: str, read: os.stat_result, problem: str | None = None) -> None:
         """Move the damaged file that was read aside, but never a fresh entry."""
         taken = _private_name(path, key, CHECKING_SUFFIX)
         try:
@@ -178,7 +180,8 @@ class ResultStore:
             except OSError:
                 pass
             self.damaged.append(key)
-            warnings.warn(f"store: entry {key[:12]} failed its checksum and will be recomputed",
+            why = f"is damaged ({problem})" if problem else "failed its checksum"
+            warnings.warn(f"store: entry {key[:12]} {why} and will be recomputed",
                           InterkitWarning, stacklevel=3)
             return
         # another process replaced the damaged file with a fresh entry in between
@@ -300,6 +303,49 @@ class ResultStore:
         return PruneResult(removed_entries=removed["entry"], removed_damaged=removed["damaged"],
                            removed_partial=removed["partial"], freed_bytes=freed,
                            remaining_entries=remaining, remaining_bytes=total)
+
+
+#: fields every stored record has (run_energy_job, run_decomposition_job)
+REQUIRED_RECORD_FIELDS = ("energy_hartree", "converged", "status", "detail", "wall_time_s")
+#: further fields by job output
+OUTPUT_RECORD_FIELDS = {
+    "energy": ("scf_energy_hartree", "correlation_energy_hartree", "dispersion_energy_hartree"),
+    "gradient": ("gradient_hartree_per_bohr", "electrostatic_force_hartree_per_bohr"),
+    "sapt0": ("sapt0_hartree",),
+}
+
+
+def entry_problem(key: str, job: dict, record: dict) -> str | None:
+    """Why an entry with a valid checksum still cannot be used, or None.
+
+    The stored job description must hash to the entry's key (:func:`interkit.plan.job_key`,
+    with this interkit and pyscf), and the record must be a finished (not failed) result
+    with every field its job's outputs produce; the energy of an energy job must be a
+    number.
+    """
+    from .plan import job_key
+
+    if not isinstance(job, dict) or not isinstance(record, dict):
+        return "job or record is not a mapping"
+    try:
+        if job_key(job) != key:
+            return "its job description does not hash to its key"
+    except (TypeError, ValueError):
+        return "its job description cannot be hashed"
+    outputs = job.get("outputs", ["energy"])
+    needed = list(REQUIRED_RECORD_FIELDS)
+    for out in outputs if isinstance(outputs, list) else ["energy"]:
+        needed += OUTPUT_RECORD_FIELDS.get(out, ())
+    missing = [f for f in needed if f not in record]
+    if missing:
+        return f"the record lacks {', '.join(missing)}"
+    if record["status"] not in ("ok", "retried"):
+        return f"record status {str(record['status'])[:20]!r} is not ok or retried"
+    if "sapt0" not in outputs:
+        e = record["energy_hartree"]
+        if isinstance(e, bool) or not isinstance(e, (int, float)) or e != e:
+            return "the record's energy_hartree is not a number"
+    return None
 
 
 def _kind(name: str) -> str:

@@ -24,6 +24,24 @@ from interkit.store import ResultStore, parse_size
 
 HF_DIMER = HF_DIMER_XYZ
 
+#: a record with every field a stored energy record has (the store sets aside entries
+#: that lack one, or whose job description does not hash to their key)
+RECORD_FIELDS = ('{"energy_hartree": -1.0, "scf_energy_hartree": -1.0, "correlation_energy_hartree": 0.0, '
+                 '"dispersion_energy_hartree": 0.0, "converged": true, "status": "ok", "detail": "", '
+                 '"wall_time_s": 0.0}')
+
+
+def _record(**extra) -> dict:
+    return dict(json.loads(RECORD_FIELDS), **extra)
+
+
+def _job(i, what="stress test") -> tuple[str, dict]:
+    """(key, job description) of a made-up job; the key is its description's hash."""
+    from interkit.plan import job_key
+
+    job = {"what": what, "index": i}
+    return job_key(job), job
+
 
 def _spec_toml(factors) -> str:
     return ('[system]\ngeometry = "g.xyz"\n[scan]\ncoordinate = "atom-pair"\natoms = [1, 2]\n'
@@ -78,16 +96,17 @@ def test_two_processes_with_overlapping_scans_share_one_store(tmp_path):
 
 
 WRITER = """
-import sys, time
+import json, sys, time
+from interkit.plan import job_key
 from interkit.store import ResultStore
 root, tag, rounds = sys.argv[1], sys.argv[2], int(sys.argv[3])
 store = ResultStore(root)
-keys = [f"{i:02d}" + "ab" * 31 for i in range(8)]
+jobs = [{"what": "stress test", "index": i} for i in range(8)]
 for r in range(rounds):
-    for k in keys:
-        store.put(k, {"writer": tag, "round": r, "energy_hartree": -1.0 - r * 1e-3,
-                      "padding": "x" * (200 * (r % 7))}, {"what": "stress test", "key": k})
-"""
+    for job in jobs:
+        store.put(job_key(job), dict(json.loads(RECORD), writer=tag, round=r, energy_hartree=-1.0 - r * 1e-3,
+                                     padding="x" * (200 * (r % 7))), job)
+""".replace("RECORD", repr(RECORD_FIELDS))
 
 READER = """
 import sys, warnings
@@ -95,7 +114,8 @@ from interkit.store import ResultStore
 warnings.simplefilter("error")
 root, rounds = sys.argv[1], int(sys.argv[2])
 store = ResultStore(root)
-keys = [f"{i:02d}" + "ab" * 31 for i in range(8)]
+from interkit.plan import job_key
+keys = [job_key({"what": "stress test", "index": i}) for i in range(8)]
 seen = 0
 for r in range(rounds):
     for k in keys:
@@ -113,8 +133,8 @@ def test_concurrent_writers_of_the_same_keys_never_show_a_partial_entry(tmp_path
     store = tmp_path / "store"
     seed = ResultStore(store)
     for i in range(8):
-        key = f"{i:02d}" + "ab" * 31
-        seed.put(key, {"writer": "A", "round": -1, "energy_hartree": -1.0}, {"what": "seed", "key": key})
+        key, job = _job(i)
+        seed.put(key, _record(writer="A", round=-1), job)
     procs = [subprocess.Popen([sys.executable, "-c", WRITER, str(store), tag, "60"]) for tag in ("A", "B")]
     readers = [subprocess.Popen([sys.executable, "-c", READER, str(store), "150"],
                                 stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True) for _ in range(2)]
@@ -130,8 +150,8 @@ def test_concurrent_writers_of_the_same_keys_never_show_a_partial_entry(tmp_path
 
 def test_a_fresh_entry_written_while_a_damaged_one_is_read_is_kept(tmp_path, monkeypatch):
     store = ResultStore(tmp_path / "store")
-    key = "cd" * 32
-    record, job = {"energy_hartree": -1.5, "status": "ok"}, {"what": "race"}
+    key, job = _job(0, "race")
+    record = _record(energy_hartree=-1.5)
     store.put(key, record, job)
     path = store.path(key)
     path.write_text(path.read_text()[:50])  # damaged on disk
@@ -168,10 +188,11 @@ def test_entries_get_the_permissions_the_umask_allows(tmp_path):
 
 def _populate(root: Path, n: int) -> tuple[ResultStore, list[str]]:
     store = ResultStore(root)
-    keys = [f"{i:02d}" + "0f" * 31 for i in range(n)]
+    jobs = [_job(i, "prune") for i in range(n)]
+    keys = [k for k, _ in jobs]
     base = time.time() - 10 * 86400
-    for i, key in enumerate(keys):
-        store.put(key, {"energy_hartree": -float(i), "status": "ok"}, {"index": i})
+    for i, (key, job) in enumerate(jobs):
+        store.put(key, _record(energy_hartree=-float(i)), job)
         os.utime(store.path(key), (base + 3600 * i, base + 3600 * i))  # written an hour apart
     return store, keys
 
@@ -214,7 +235,7 @@ def test_store_commands(tmp_path, capsys):
     assert main(["store", "prune", str(tmp_path / "store"), "--max-size", f"{3 * one + 10}B"]) == 0
     out = capsys.readouterr().out
     assert "removed 3 least recently used entries" in out
-    assert store.keys() == keys[3:]
+    assert store.keys() == sorted(keys[3:])
 
 
 @pytest.mark.parametrize("text,expected", [("500MB", 500 * 10**6), ("2GB", 2 * 10**9), ("1GiB", 2**30),
