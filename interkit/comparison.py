@@ -377,21 +377,24 @@ def ranking_table(ds: xr.Dataset, reference_level: str | None = None, reference=
 REFERENCE_PREFERENCE = ("ccsd(t)", "mp2", "scs-mp2")
 
 
-def curve_pairs(ds: xr.Dataset) -> dict[str, tuple[str, str | None]]:
-    """Folded label -> (level, scheme or None) of every curve with values."""
+def curve_pairs(ds: xr.Dataset, variable: str | None = None) -> dict[str, tuple[str, str | None]]:
+    """Folded label -> (level, scheme or None) of every curve with values of ``variable``
+    (default ``e_int``, or ``e_int_nocp`` for a scan run without counterpoise)."""
     from .corrections import scheme_label
     from .levels import parse_level
 
+    if variable is None:
+        variable = "e_int_nocp" if ds.attrs.get("counterpoise", "") == "none" else "e_int"
     out = {}
     if "dispersion" in ds.dims:
         from .corrections import available_pairs
 
         for level, scheme in available_pairs(ds):
-            if np.isfinite(ds["e_int"].sel(level=level, dispersion=scheme).values).any():
+            if np.isfinite(ds[variable].sel(level=level, dispersion=scheme).values).any():
                 out[scheme_label(parse_level(level), scheme)] = (level, scheme)
     else:
         for level in ds["level"].values:
-            if np.isfinite(ds["e_int"].sel(level=level).values).any():
+            if np.isfinite(ds[variable].sel(level=level).values).any():
                 out[str(level)] = (str(level), None)
     return out
 
@@ -432,7 +435,7 @@ def reference_from_scan(path, curve: str | None = None) -> ReferenceCurve:
     if label not in pairs:
         raise InputError(f"reference curve: {label!r} is not a curve of {str(path)!r} ({', '.join(pairs)})")
     level, scheme = pairs[label]
-    da = ds["e_int"].sel(level=level)
+    da = ds["e_int_nocp" if ds.attrs.get("counterpoise", "") == "none" else "e_int"].sel(level=level)
     if scheme is not None:
         da = da.sel(dispersion=scheme)
     r, e = ds["distance"].values, da.transpose("distance").values
