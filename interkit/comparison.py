@@ -16,7 +16,7 @@ import xarray as xr
 from scipy.interpolate import CubicSpline
 
 from .analysis import find_minimum
-from .errors import InputError
+from .errors import InputError, excerpt
 
 DISTANCE_COLUMN = "distance_angstrom"
 ENERGY_COLUMN = "e_int_kcal_per_mol"
@@ -199,9 +199,13 @@ def reference_from_csv(path) -> ReferenceCurve:
     """
     p = Path(path)
     try:
-        text = p.read_text(encoding="utf-8")
+        text = p.read_text(encoding="utf-8-sig")
     except OSError as exc:
         raise InputError(f"reference file {str(p)!r}: cannot be read ({exc.strerror})") from None
+    except UnicodeDecodeError:
+        raise InputError(f"reference file {str(p)!r}: not a UTF-8 text (CSV) file") from None
+    if "\x00" in text:
+        raise InputError(f"reference file {str(p)!r}: not a text (CSV) file (it contains NUL bytes)")
     header = None
     rs, es = [], []
     for lineno, row in enumerate(csv.reader(text.splitlines()), start=1):
@@ -211,7 +215,7 @@ def reference_from_csv(path) -> ReferenceCurve:
             header = [c.strip() for c in row]
             for col in (DISTANCE_COLUMN, ENERGY_COLUMN):
                 if col not in header:
-                    raise InputError(f"{p.name} line {lineno}: header lacks column {col!r} (found {header})")
+                    raise InputError(f"{p.name} line {lineno}: header lacks column {col!r} (found {excerpt(', '.join(header))})")
             i_r, i_e = header.index(DISTANCE_COLUMN), header.index(ENERGY_COLUMN)
             continue
         values = []
@@ -221,7 +225,7 @@ def reference_from_csv(path) -> ReferenceCurve:
             try:
                 values.append(float(row[i]))
             except ValueError:
-                raise InputError(f"{p.name} line {lineno}: column {col!r} value {row[i].strip()!r} "
+                raise InputError(f"{p.name} line {lineno}: column {col!r} value {excerpt(row[i].strip())} "
                                  "is not a number") from None
         if not np.isfinite(values[0]) or values[0] <= 0:
             raise InputError(f"{p.name} line {lineno}: column {DISTANCE_COLUMN!r} value {values[0]!r} "

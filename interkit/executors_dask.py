@@ -201,8 +201,12 @@ def as_dask_executor(obj) -> DaskExecutor:
     return executor
 
 
-def connect(address: str, timeout: float | None = None):
+def connect(address: str, timeout: float | None = None, security=None):
     """A ``distributed.Client`` connected to the scheduler at ``address``.
+
+    ``security`` (a ``distributed.security.Security``) is passed to the client; without
+    it the connection uses the Dask configuration (``distributed.comm.tls.*``), which by
+    default means plain TCP: no encryption and no authentication.
 
     Raises
     ------
@@ -228,7 +232,7 @@ def connect(address: str, timeout: float | None = None):
         raise InputError(f"--scheduler: {address!r} is not a scheduler address such as "
                          f"tcp://HOST:8786 ({str(exc)[:120]})") from None
     try:
-        return Client(address, timeout=timeout, set_as_default=False)
+        return Client(address, timeout=timeout, set_as_default=False, security=security)
     except Exception as exc:  # distributed raises OSError, TimeoutError, ValueError, TypeError...
         reason = (str(exc).strip().splitlines() or [type(exc).__name__])[0][:200]
         raise InputError(f"--scheduler: cannot connect to {address!r} ({reason})") from None

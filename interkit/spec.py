@@ -435,6 +435,10 @@ def spec_from_mapping(data: dict, base_dir: str | os.PathLike = ".") -> ScanSpec
     kwargs = {k: system[k] for k in ("fragment_a", "charges", "multiplicities") if k in system}
     if ("geometry" in system) == ("demo" in system):
         raise InputError("system: give exactly one of system.geometry (an XYZ file) or system.demo")
+    for key in ("geometry", "demo"):
+        if key in system and not isinstance(system[key], str):
+            raise InputError(f"system.{key}: {system[key]!r} is not a "
+                             f"{'file name' if key == 'geometry' else 'demo system name'}")
     if "geometry" in system:
         path = os.path.join(os.fspath(base_dir), str(system["geometry"]))
         dimer = Dimer.from_xyz(path, **kwargs)
