@@ -119,7 +119,7 @@ def cmd_export(args) -> int:
     from .results import open_scan
 
     export_format(args.output, args.format, ("--output", "--format"))   # check before reading the scan
-    check_output(args.output, "--output", (".csv", ".json"), "export")
+    check_output(args.output, "--output", (".csv", ".json") if args.format is None else ("",), "export")
     ds = open_scan(args.scan)
     export_scan(ds, args.output, args.format, args.unit)
     print(f"wrote {args.output}")
