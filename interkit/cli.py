@@ -225,9 +225,8 @@ def _cmd_demo(args) -> int:
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from .cli_output import check_output_folder
+    from .cli_output import check_output_folder, save_or_rescue
     from .plot import plot_curves
-    from .results import save_scan
 
     out = args.output_dir
     check_output_folder(out, "--output-dir")
@@ -237,7 +236,7 @@ def _cmd_demo(args) -> int:
     spec = demo_spec()
     ds = _run(spec, args)
     nc, png = os.path.join(out, "scan.nc"), os.path.join(out, "curve.png")
-    save_scan(ds, nc)
+    save_or_rescue(ds, nc, "--output-dir")   # a failed write keeps the scan under another name
     ax = plot_curves(ds, show_uncorrected=True)
     ax.set_title("water–methanol hydrogen bond (interkit demo)", fontsize=10)
     ax.figure.tight_layout()
@@ -247,7 +246,10 @@ def _cmd_demo(args) -> int:
     print(_minimum_report(ds))
     print(f"wrote {nc} and {png} ({ds.attrs['calculations_computed']} calculations computed, "
           f"{ds.attrs['calculations_from_store']} from the store, {ds.attrs['run_wall_time_s']:.1f} s)")
-    return 0
+    failed = _failed_points(ds)
+    for line in failed:
+        print(line)
+    return 1 if failed else 0
 
 
 def _cmd_show(args) -> int:

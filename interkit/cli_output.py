@@ -93,7 +93,8 @@ def internal_error(exc: BaseException) -> int:
     try:
         folder = os.path.join(tempfile.gettempdir(), f"interkit-logs-{os.getuid()}")
         os.makedirs(folder, mode=0o700, exist_ok=True)
-        if os.path.islink(folder) or os.stat(folder).st_uid != os.getuid():
+        info = os.lstat(folder)
+        if os.path.islink(folder) or info.st_uid != os.getuid() or info.st_mode & 0o077:
             folder = tempfile.mkdtemp(prefix="interkit-logs-")
         fd, log = tempfile.mkstemp(prefix="traceback-", suffix=".txt", dir=folder)
         with os.fdopen(fd, "w", encoding="utf-8") as fh:
