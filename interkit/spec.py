@@ -520,7 +520,7 @@ def load_spec_toml(path: str | os.PathLike) -> ScanSpec:
         raise InputError(f"spec file: {path!r} does not exist")
     try:
         with open(path, "rb") as fh:
-            data = tomllib.load(fh)
+            data = tomllib.loads(fh.read().decode("utf-8-sig"))   # a byte-order mark is allowed
     except UnicodeDecodeError:
         raise InputError(f"spec file {path!r}: not a UTF-8 text file (TOML)") from None
     except tomllib.TOMLDecodeError as exc:

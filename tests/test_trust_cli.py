@@ -259,6 +259,13 @@ def test_xyz_with_a_byte_order_mark_is_read(tmp_path):
     assert ik.Dimer.from_xyz_string("\ufeff" + HF_DIMER_XYZ).symbols == ("F", "H", "F", "H")
 
 
+def test_spec_with_a_byte_order_mark_is_read(tmp_path):
+    """Editors on some systems start UTF-8 files with a byte-order mark (common practice)."""
+    path = _spec(tmp_path)
+    path.write_bytes(b"\xef\xbb\xbf" + path.read_bytes())
+    assert ik.load_spec_toml(path).levels[0].label == "hf/sto-3g"
+
+
 def test_plot_labels_with_dollar_signs_are_not_mathtext():
     """A level label is drawn as written: '$' must not switch matplotlib to mathtext."""
     import io
