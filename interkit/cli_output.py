@@ -28,7 +28,7 @@ def check_output(path: str, option: str, suffixes: tuple[str, ...], kind: str) -
     """Refuse an output path before anything is computed: a folder, a wrong suffix, a
     missing or unwritable folder, or an existing file that cannot be replaced."""
     if os.path.isdir(path):
-        raise InputError(f"{option}: {path!r} is a folder, not a {kind} file")
+        raise InputError(f"{option}: {path!r} is a folder, not a file ({kind})")
     if not path.lower().endswith(suffixes):
         raise InputError(f"{option}: {path!r} should end in {' or '.join(suffixes)} ({kind})")
     folder = os.path.dirname(os.path.abspath(path))

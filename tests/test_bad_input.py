@@ -70,13 +70,13 @@ def cmd(case, argv, expected, files=None):
 
 ROWS = [
     # ------------------------------------------------------------------ geometry files
-    spec("missing geometry file", "does not exist", system='geometry = "nope.xyz"'),
+    spec("missing geometry file", "geometry file: '{i}/nope.xyz' does not exist", system='geometry = "nope.xyz"'),
     spec("atom count not a number", "expected an atom count", xyz="four\nx\nF 0 0 0\n"),
-    spec("geometry not UTF-8", "is not a UTF-8 text file", xyz=b"\xff\xfe\x00F 0 0 0\n"),
+    spec("geometry not UTF-8", "geometry file: '{i}/g.xyz' is not a UTF-8 text file", xyz=b"\xff\xfe\x00F 0 0 0\n"),
     spec("geometry with NUL bytes", "it contains NUL bytes", xyz=b"4\n\x00\x00\x00\nF 0 0 0\n"),
     spec("geometry long garbage line is quoted short", "expected an atom count, found 'xxxxxxxx",
          xyz="x" * 5000 + "\n"),
-    spec("geometry is a folder", "g.xyz' does not exist", xyz=None, files={"g.xyz": DIR}),
+    spec("geometry is a folder", "geometry file: '{i}/g.xyz' does not exist", xyz=None, files={"g.xyz": DIR}),
     spec("geometry name not a string", "system.geometry: 5 is not", system="geometry = 5"),
     # ------------------------------------------------------------------ elements, coordinates
     spec("unknown element", "unknown element 'Xq'", xyz=WATER_HF.replace("F   0.000000  0.000000  0.000000", "Xq 0 0 0")),
@@ -133,7 +133,7 @@ ROWS = [
          scan=FRAMES, files={"f.xyz": WATER_HF + SWAPPED_B}),
     spec("frames with a grid", "a Frames coordinate gives its own geometries", scan=FRAMES + "factors = [1.0]",
          files={"f.xyz": WATER_HF}),
-    spec("frames file missing", "does not exist", scan='coordinate = "frames"\nframes = "none.xyz"'),
+    spec("frames file missing", "'{i}/none.xyz' does not exist", scan='coordinate = "frames"\nframes = "none.xyz"'),
     # ------------------------------------------------------------------ levels
     spec("unknown functional", "'b3lypp' is unknown", calculation='levels = ["b3lypp/def2-svp"]'),
     spec("unknown basis", "'def2-nonsense' is unknown", calculation='levels = ["hf/def2-nonsense"]'),
@@ -146,8 +146,8 @@ ROWS = [
     spec("nonlocal functional with a post-hoc correction", "own nonlocal (VV10)",
          calculation='levels = ["wb97m-v-d3bj/sto-3g"]'),
     # ------------------------------------------------------------------ spec keys and types
-    spec("spec not UTF-8", "not a UTF-8 text file", xyz=WATER_HF, files={"spec.toml": b"[system]\ngeometry = \"\xff\xfe\"\n"}),
-    spec("spec binary", "spec file", files={"spec.toml": bytes(range(256)) * 4}),
+    spec("spec not UTF-8", "spec file '{i}/spec.toml': not a UTF-8 text file", xyz=WATER_HF, files={"spec.toml": b"[system]\ngeometry = \"\xff\xfe\"\n"}),
+    spec("spec binary", "spec file '{i}/spec.toml': not a UTF-8", files={"spec.toml": bytes(range(256)) * 4}),
     spec("unknown spec key", "'calculation.basis_set' is not recognised",
          calculation='levels = ["hf/sto-3g"]\nbasis_set = "x"'),
     spec("unknown top-level key", "spec key 'title' is not recognised", extra='title = "x"'),
@@ -181,43 +181,44 @@ ROWS = [
          calculation='levels = ["b3lyp/sto-3g"]\ndispersion = ["d4", "d4"]'),
     spec("suffix level in a dispersion comparison", "carries its own dispersion suffix",
          calculation='levels = ["b3lyp-d3bj/sto-3g"]\ndispersion = ["none", "d4"]'),
-    cmd("spec file missing", "scan {i}/none.toml -o {t}/o.nc", "spec file: "),
+    cmd("spec file missing", "scan {i}/none.toml -o {t}/o.nc", "spec file: '{i}/none.toml' does not exist"),
     # ------------------------------------------------------------------ output paths
-    cmd("scan output a folder", "scan {s} -o {i}/out.nc --quiet --serial", "--output: ", files={"out.nc": DIR}),
-    cmd("scan output not .nc", "scan {s} -o {t}/out.txt", "--output: '"),
-    cmd("scan output folder missing", "scan {s} -o {t}/no/out.nc", "--output: folder"),
+    cmd("scan output a folder", "scan {s} -o {i}/out.nc --quiet --serial", "--output: '{i}/out.nc' is a folder, not a file (netCDF)", files={"out.nc": DIR}),
+    cmd("scan output not .nc", "scan {s} -o {t}/out.txt", "--output: '{t}/out.txt' should end in .nc"),
+    cmd("scan output folder missing", "scan {s} -o {t}/no/out.nc", "--output: folder '{t}/no' does not exist"),
     cmd("workers zero", "scan {s} -o {t}/o.nc --workers 0", "--workers: 0 is not a positive integer"),
-    cmd("demo output a file", "demo -o {i}/spec.toml --serial", "--output-dir: "),
+    cmd("demo output a file", "demo -o {i}/spec.toml --serial", "--output-dir: '{i}/spec.toml' is a file, not a folder"),
     cmd("rerun output not .nc", "rerun {d}/scan.nc -o {t}/again.txt --serial", "should end in .nc"),
-    cmd("rerun output a folder", "rerun {d}/scan.nc -o {i}/again.nc --serial", "--output: ", files={"again.nc": DIR}),
+    cmd("rerun output a folder", "rerun {d}/scan.nc -o {i}/again.nc --serial", "--output: '{i}/again.nc' is a folder", files={"again.nc": DIR}),
     cmd("report output not html", "report {d}/scan.nc -o {t}/report.pdf", "should end in .html"),
-    cmd("report output a folder", "report {d}/scan.nc -o {i}/r.html", "--output: ", files={"r.html": DIR}),
+    cmd("report output a folder", "report {d}/scan.nc -o {i}/r.html", "--output: '{i}/r.html' is a folder, not a file (HTML)", files={"r.html": DIR}),
     cmd("report folder missing", "report {d}/scan.nc -o {t}/nowhere/report.html", "does not exist"),
     cmd("export unknown suffix", "export {d}/scan.nc -o {t}/scan.txt", "should end in .csv or .json"),
-    cmd("export output a folder", "export {d}/scan.nc -o {i}/x.json", "--output: ", files={"x.json": DIR}),
-    cmd("compare table not csv", "compare {d}/scan.nc --table {t}/rank.txt", "--table: "),
-    cmd("compare table a folder", "compare {d}/scan.nc --table {i}/rank.csv", "--table: ", files={"rank.csv": DIR}),
+    cmd("export output a folder", "export {d}/scan.nc -o {i}/x.json", "--output: '{i}/x.json' is a folder", files={"x.json": DIR}),
+    cmd("compare table not csv", "compare {d}/scan.nc --table {t}/rank.txt", "--table: '{t}/rank.txt' should end in .csv"),
+    cmd("compare table a folder", "compare {d}/scan.nc --table {i}/rank.csv", "--table: '{i}/rank.csv' is a folder", files={"rank.csv": DIR}),
     # ------------------------------------------------------------------ saved .nc files
     cmd("verify sample 0", "verify {d}/scan.nc --sample 0", "sample: 0 is not a positive number of points"),
     cmd("verify sample not a number", "verify {d}/scan.nc --sample many", "invalid int value: 'many'"),
-    cmd("verify missing file", "verify {t}/none.nc", "does not exist"),
+    cmd("verify missing file", "verify {t}/none.nc", "scan file: '{t}/none.nc' does not exist"),
     cmd("verify not netCDF", "verify {d}/notes.nc", "not a readable netCDF scan"),
     cmd("show binary file", "show {i}/junk.nc", "not a readable netCDF scan", files={"junk.nc": bytes(range(256))}),
     cmd("show energies as strings", "show {d}/strings.nc", "dataset variable e_int: values of type"),
-    cmd("show a folder", "show {i}/dir.nc", "does not exist", files={"dir.nc": DIR}),
+    cmd("show a folder", "show {i}/dir.nc", "scan file: '{i}/dir.nc' does not exist", files={"dir.nc": DIR}),
     cmd("rerun spec not rebuildable", "rerun {d}/nospec.nc --serial --quiet", "cannot be rebuilt"),
     cmd("report unknown reference", "report {d}/scan.nc -o {t}/report.html --reference mp2/x",
         "--reference: 'mp2/x' is not a level of the scan"),
     cmd("export unknown format", "export {d}/scan.nc -o {t}/scan.csv --format xml", "invalid choice: 'xml'"),
     cmd("export unknown unit", "export {d}/scan.nc -o {t}/scan.csv --unit furlongs", "unit: 'furlongs'"),
     # ------------------------------------------------------------------ reference files
-    cmd("reference CSV binary", "compare {d}/scan.nc --reference-file {i}/ref.csv", "ref.csv",
+    cmd("reference CSV binary", "compare {d}/scan.nc --reference-file {i}/ref.csv", "reference file '{i}/ref.csv': not a UTF-8 text (CSV) file",
         files={"ref.csv": bytes(range(256)) * 4}),
     cmd("reference CSV without columns", "compare {d}/scan.nc --reference-file {i}/ref.csv",
         "header lacks column 'distance_angstrom'", files={"ref.csv": "r,e\n1,2\n"}),
     cmd("reference CSV long header is quoted short", "compare {d}/scan.nc --reference-file {i}/ref.csv",
         "header lacks column", files={"ref.csv": "y" * 3000 + "\n"}),
-    cmd("reference CSV non-numeric", "compare {d}/scan.nc --reference-file {i}/ref.csv", "line 2",
+    cmd("reference CSV non-numeric", "compare {d}/scan.nc --reference-file {i}/ref.csv",
+        "ref.csv line 2: column 'e_int_kcal_per_mol' value 'deep' is not a number",
         files={"ref.csv": "distance_angstrom,e_int_kcal_per_mol\n2.0,deep\n3.0,-1\n"}),
     cmd("reference scan with string energies", "compare {d}/scan.nc --reference-file {d}/strings.nc",
         "dataset variable e_int: values of type"),
@@ -293,6 +294,7 @@ def test_bad_input_is_one_line_exit_2_and_writes_nothing(saved_scans, tmp_path, 
     err = capsys.readouterr().err.strip()
     assert code == 2, err
     assert err.startswith("interkit: error: ") and "\n" not in err, err
+    expected = expected.format(i=inp, t=out, d=saved_scans)
     assert expected in err, err
     assert len(err) <= MAX_MESSAGE_CHARS, f"message of {len(err)} characters"
     assert _snapshot(inp) == before and _snapshot(saved_scans) == saved_before, "an input was changed"

@@ -97,7 +97,7 @@ def test_output_that_cannot_be_written_after_the_run_is_rescued(tmp_path, capsys
 
 
 @pytest.mark.parametrize("argv,message", [
-    ("scan {s} -o {t}", "is a folder, not a netCDF file"),
+    ("scan {s} -o {t}", "is a folder, not a file (netCDF)"),
     ("scan {s} -o {t}/x.NC.txt", "should end in .nc"),
 ])
 def test_scan_output_is_checked_before_the_spec_runs(tmp_path, capsys, argv, message):
