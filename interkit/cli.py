@@ -14,7 +14,10 @@
 
 The saved-file commands (rerun, verify, report, export) live in :mod:`interkit.cli_saved`.
 
-Usage errors and bad input print one line and exit with status 2 (no traceback).
+Exit status: 0 success; 1 finished, but some points failed (the summary names them) or
+a check is off tolerance; 2 usage error or bad input (one line, nothing written); 3
+internal error, or a result that could not be written where asked (one line naming the
+file the traceback or the rescued scan went to). No command prints a raw traceback.
 """
 
 from __future__ import annotations
@@ -26,6 +29,7 @@ import sys
 from .errors import InterkitError
 
 EXIT_USAGE = 2
+EXIT_INTERNAL = 3
 
 #: the demo scan: small enough for about a minute on 2 cores
 DEMO_LEVELS = ("hf/def2-svp", "b3lyp-d3bj/def2-svp")
@@ -95,14 +99,15 @@ def _energy_table(ds) -> str:
     from .corrections import flatten_dispersion
 
     ds = flatten_dispersion(ds)
+    variable, kind = _energy_variable(ds)
     levels = [str(x) for x in ds["level"].values]
     width = max(14, *(len(lv) + 2 for lv in levels))
     head = f"{'R / Å':>8s}  " + "".join(f"{lv:>{width}s}" for lv in levels)
-    lines = ["interaction energy, counterpoise-corrected (kcal/mol)", head]
+    lines = [f"interaction energy, {kind} (kcal/mol)", head]
     for i, r in enumerate(ds["distance"].values):
         cells = []
         for lv in levels:
-            v = float(ds["e_int"].sel(level=lv).values[i])
+            v = float(ds[variable].sel(level=lv).values[i])
             st = str(ds["status"].sel(level=lv).values[i])
             cells.append(f"{'failed':>{width}s}" if st == "failed" else f"{v:>{width}.3f}")
         lines.append(f"{r:8.3f}  " + "".join(cells))
@@ -115,10 +120,12 @@ def _minimum_report(ds) -> str:
     ds = flatten_dispersion(ds)
     from .analysis import minimum_table
 
+    variable, kind = _energy_variable(ds)
     lines = [f"scan: {ds.attrs.get('title', '')}",
              f"coordinate: {ds['distance'].attrs.get('long_name', '')}; counterpoise: {ds.attrs.get('counterpoise')}",
+             f"minimum and well depth of the {kind} interaction energy ({variable})",
              f"{'level':<28s} {'R_min / Å':>10s} {'well depth / kcal/mol':>22s}  note"]
-    for row in minimum_table(ds):
+    for row in minimum_table(ds, variable):
         note = [] if row["interior"] else ["minimum at the edge of the grid"]
         if row["failed_points"]:
             note.append(f"{row['failed_points']} failed point(s)")
@@ -130,6 +137,30 @@ def _minimum_report(ds) -> str:
     lines.extend(decomposition_report(ds))
     lines.append("Note: " + ds.attrs.get("caution", ""))
     return "\n".join(lines)
+
+
+def _energy_variable(ds) -> tuple[str, str]:
+    """The interaction-energy variable a scan's tables use, and how to call it: the
+    uncorrected ``e_int_nocp`` when the scan ran without counterpoise."""
+    if ds.attrs.get("counterpoise", "") == "none":
+        return "e_int_nocp", "uncorrected (no counterpoise correction)"
+    return "e_int", "counterpoise-corrected"
+
+
+def _failed_points(ds) -> list[str]:
+    """One line per level with failed points: where and why."""
+    lines = []
+    for level in ds["level"].values:
+        status = ds["status"].sel(level=level).values
+        bad = [i for i, st in enumerate(status) if str(st) == "failed"]
+        if not bad:
+            continue
+        detail = ds["status_detail"].sel(level=level).values if "status_detail" in ds.variables else None
+        where = ", ".join(f"R = {float(ds['distance'].values[i]):.3f} Å"
+                          + (f" ({str(detail[i])[:120]})" if detail is not None and str(detail[i]) else "")
+                          for i in bad)
+        lines.append(f"failed points of {level}: {where}")
+    return lines
 
 
 def _force_report(ds) -> list[str]:
@@ -157,18 +188,27 @@ def _run(spec, args):
 
 
 def _cmd_scan(args) -> int:
-    from .results import save_scan
+    from .cli_output import OutputRescued, save_or_rescue
     from .spec import load_spec_toml
 
     spec = load_spec_toml(args.spec)
     _check_output(args.output)
     ds = _run(spec, args)
-    save_scan(ds, args.output)
+    rescued = None
+    try:
+        save_or_rescue(ds, args.output)
+    except OutputRescued as exc:
+        rescued = exc
     print(_energy_table(ds))
     print(_minimum_report(ds))
+    failed = _failed_points(ds)
+    for line in failed:
+        print(line)
+    if rescued is not None:
+        raise rescued
     print(f"wrote {args.output}")
     _store_summary(ds, args.output)
-    return 0 if not (ds["status"] == "failed").any() else 1
+    return 1 if failed else 0
 
 
 def _store_summary(ds, where: str) -> None:
@@ -197,17 +237,18 @@ def _cmd_demo(args) -> int:
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
+    from .cli_output import check_output_folder, save_or_rescue
     from .plot import plot_curves
-    from .results import save_scan
 
     out = args.output_dir
+    check_output_folder(out, "--output-dir")
     os.makedirs(out, exist_ok=True)
     if args.cache is None:
         args.cache = os.path.join(out, "cache")
     spec = demo_spec()
     ds = _run(spec, args)
     nc, png = os.path.join(out, "scan.nc"), os.path.join(out, "curve.png")
-    save_scan(ds, nc)
+    save_or_rescue(ds, nc, "--output-dir")   # a failed write keeps the scan under another name
     ax = plot_curves(ds, show_uncorrected=True)
     ax.set_title("water–methanol hydrogen bond (interkit demo)", fontsize=10)
     ax.figure.tight_layout()
@@ -218,7 +259,10 @@ def _cmd_demo(args) -> int:
     print(f"wrote {nc} and {png} ({ds.attrs['calculations_computed']} calculations computed, "
           f"{ds.attrs['calculations_from_store']} from the store, {ds.attrs['run_wall_time_s']:.1f} s)")
     _store_summary(ds, nc)
-    return 0
+    failed = _failed_points(ds)
+    for line in failed:
+        print(line)
+    return 1 if failed else 0
 
 
 def _cmd_show(args) -> int:
@@ -280,13 +324,9 @@ def _cmd_store(args) -> int:
 
 
 def _check_output(path: str) -> None:
-    from .errors import InputError
+    from .cli_output import check_output
 
-    folder = os.path.dirname(os.path.abspath(path))
-    if not os.path.isdir(folder):
-        raise InputError(f"--output: folder {folder!r} does not exist")
-    if not path.endswith(".nc"):
-        raise InputError(f"--output: {path!r} should end in .nc (netCDF)")
+    check_output(path, "--output", (".nc",), "netCDF")
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -307,11 +347,20 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return handlers[args.command](args)
     except InterkitError as exc:
-        print(f"interkit: error: {exc}", file=sys.stderr)
-        return EXIT_USAGE
+        print(f"interkit: error: {_one_line(exc)}", file=sys.stderr)
+        return getattr(exc, "exit_code", EXIT_USAGE)
     except KeyboardInterrupt:
         print("interkit: interrupted; finished calculations are kept in the store", file=sys.stderr)
         return 130
+    except Exception as exc:  # last resort: one line, the traceback goes to a file
+        from .cli_output import internal_error
+
+        return internal_error(exc)
+
+
+def _one_line(exc: BaseException) -> str:
+    """The message of ``exc`` on one line (newlines of an embedded excerpt folded)."""
+    return " ".join(str(exc).split("\n"))
 
 
 if __name__ == "__main__":  # pragma: no cover

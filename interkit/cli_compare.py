@@ -13,7 +13,6 @@ of the scan.
 from __future__ import annotations
 
 import csv
-import os
 
 #: columns of the printed and written ranking (row key, header)
 COLUMNS = (("rmse_kcal_per_mol", "RMSE"), ("mae_kcal_per_mol", "MAE"),
@@ -53,14 +52,21 @@ def _ranking(ds, args) -> tuple[list[dict], str]:
         raise InputError("--reference-curve: give --reference-file as well")
     if args.reference_file:
         curve = reference_from_file(args.reference_file, args.reference_curve)
-        _, label = resolve_reference(ds, reference=curve)
-        return ranking_table(ds, reference=curve), label
-    pairs = curve_pairs(ds)
+        _, label = resolve_reference(ds, reference=curve, variable=_variable(ds))
+        return ranking_table(ds, reference=curve, variable=_variable(ds)), label
+    pairs = curve_pairs(ds, _variable(ds))
+    if not pairs:
+        raise InputError(f"scan {args.scan!r}: no curve has a finite interaction energy to compare")
     choice = args.reference or default_reference(list(pairs))
     if choice not in pairs:
         raise InputError(f"--reference: {choice!r} is not a curve of the scan ({', '.join(pairs)})")
     level, scheme = pairs[choice]
-    return ranking_table(ds, reference_level=level, reference_dispersion=scheme), choice
+    return ranking_table(ds, reference_level=level, reference_dispersion=scheme, variable=_variable(ds)), choice
+
+
+def _variable(ds) -> str:
+    """``e_int``, or the uncorrected ``e_int_nocp`` of a scan run without counterpoise."""
+    return "e_int_nocp" if ds.attrs.get("counterpoise", "") == "none" else "e_int"
 
 
 def _label(row: dict) -> str:
@@ -73,17 +79,18 @@ def _label(row: dict) -> str:
 
 def run_compare(args) -> int:
     """Print the ranking (kcal/mol, angstrom); optionally write it as CSV."""
-    from .errors import InputError
     from .results import open_scan
 
-    ds = open_scan(args.scan)
     if args.table:
-        folder = os.path.dirname(os.path.abspath(args.table))
-        if not os.path.isdir(folder):
-            raise InputError(f"--table: folder {folder!r} does not exist")
+        from .cli_output import check_output
+
+        check_output(args.table, "--table", (".csv",), "CSV")
+    ds = open_scan(args.scan)
     rows, label = _ranking(ds, args)
     width = max([26] + [len(_label(r)) + 2 for r in rows])
     print(f"reference: {label}; errors in kcal/mol (curve minus reference)")
+    if _variable(ds) == "e_int_nocp":
+        print("the scan ran without counterpoise correction: the uncorrected curves (e_int_nocp) are compared")
     print(f"{'rank':>4s}  {'curve':<{width}s}" + "".join(f"{h:>10s}" for _, h in COLUMNS))
     for row in rows:
         cells = "".join(f"{row[k]:>10.3f}" if row[k] == row[k] else f"{'–':>10s}" for k, _ in COLUMNS)

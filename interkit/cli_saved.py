@@ -10,7 +10,6 @@
 
 from __future__ import annotations
 
-import os
 from contextlib import contextmanager
 
 from .errors import InputError
@@ -78,7 +77,6 @@ def _finish(table) -> int:
 def cmd_rerun(args) -> int:
     from .cli import _check_output
     from .provenance import rerun_scan
-    from .results import save_scan
 
     if args.output is not None:
         _check_output(args.output)
@@ -87,7 +85,9 @@ def cmd_rerun(args) -> int:
                                   progress=not args.quiet, log=print)
     code = _finish(table)
     if args.output is not None:
-        save_scan(fresh, args.output)
+        from .cli_output import save_or_rescue
+
+        save_or_rescue(fresh, args.output)
         print(f"wrote {args.output}")
     return code
 
@@ -102,14 +102,11 @@ def cmd_verify(args) -> int:
 
 
 def cmd_report(args) -> int:
+    from .cli_output import check_output
     from .report import write_report
     from .results import open_scan
 
-    if not args.output.lower().endswith((".html", ".htm")):
-        raise InputError(f"--output: {args.output!r} should end in .html")
-    folder = os.path.dirname(os.path.abspath(args.output))
-    if not os.path.isdir(folder):
-        raise InputError(f"--output: folder {folder!r} does not exist")
+    check_output(args.output, "--output", (".html", ".htm"), "HTML")
     ds = open_scan(args.scan)
     write_report(ds, args.output, reference=args.reference)
     print(f"wrote {args.output}")
@@ -117,10 +114,12 @@ def cmd_report(args) -> int:
 
 
 def cmd_export(args) -> int:
+    from .cli_output import check_output
     from .export import export_format, export_scan
     from .results import open_scan
 
     export_format(args.output, args.format, ("--output", "--format"))   # check before reading the scan
+    check_output(args.output, "--output", (".csv", ".json") if args.format is None else ("",), "export")
     ds = open_scan(args.scan)
     export_scan(ds, args.output, args.format, args.unit)
     print(f"wrote {args.output}")

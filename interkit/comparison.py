@@ -16,7 +16,7 @@ import xarray as xr
 from scipy.interpolate import CubicSpline
 
 from .analysis import find_minimum
-from .errors import InputError
+from .errors import InputError, excerpt
 
 DISTANCE_COLUMN = "distance_angstrom"
 ENERGY_COLUMN = "e_int_kcal_per_mol"
@@ -199,9 +199,13 @@ def reference_from_csv(path) -> ReferenceCurve:
     """
     p = Path(path)
     try:
-        text = p.read_text(encoding="utf-8")
+        text = p.read_text(encoding="utf-8-sig")
     except OSError as exc:
         raise InputError(f"reference file {str(p)!r}: cannot be read ({exc.strerror})") from None
+    except UnicodeDecodeError:
+        raise InputError(f"reference file {str(p)!r}: not a UTF-8 text (CSV) file") from None
+    if "\x00" in text:
+        raise InputError(f"reference file {str(p)!r}: not a text (CSV) file (it contains NUL bytes)")
     header = None
     rs, es = [], []
     for lineno, row in enumerate(csv.reader(text.splitlines()), start=1):
@@ -211,7 +215,7 @@ def reference_from_csv(path) -> ReferenceCurve:
             header = [c.strip() for c in row]
             for col in (DISTANCE_COLUMN, ENERGY_COLUMN):
                 if col not in header:
-                    raise InputError(f"{p.name} line {lineno}: header lacks column {col!r} (found {header})")
+                    raise InputError(f"{p.name} line {lineno}: header lacks column {col!r} (found {excerpt(', '.join(header))})")
             i_r, i_e = header.index(DISTANCE_COLUMN), header.index(ENERGY_COLUMN)
             continue
         values = []
@@ -221,7 +225,7 @@ def reference_from_csv(path) -> ReferenceCurve:
             try:
                 values.append(float(row[i]))
             except ValueError:
-                raise InputError(f"{p.name} line {lineno}: column {col!r} value {row[i].strip()!r} "
+                raise InputError(f"{p.name} line {lineno}: column {col!r} value {excerpt(row[i].strip())} "
                                  "is not a number") from None
         if not np.isfinite(values[0]) or values[0] <= 0:
             raise InputError(f"{p.name} line {lineno}: column {DISTANCE_COLUMN!r} value {values[0]!r} "
@@ -377,21 +381,24 @@ def ranking_table(ds: xr.Dataset, reference_level: str | None = None, reference=
 REFERENCE_PREFERENCE = ("ccsd(t)", "mp2", "scs-mp2")
 
 
-def curve_pairs(ds: xr.Dataset) -> dict[str, tuple[str, str | None]]:
-    """Folded label -> (level, scheme or None) of every curve with values."""
+def curve_pairs(ds: xr.Dataset, variable: str | None = None) -> dict[str, tuple[str, str | None]]:
+    """Folded label -> (level, scheme or None) of every curve with values of ``variable``
+    (default ``e_int``, or ``e_int_nocp`` for a scan run without counterpoise)."""
     from .corrections import scheme_label
     from .levels import parse_level
 
+    if variable is None:
+        variable = "e_int_nocp" if ds.attrs.get("counterpoise", "") == "none" else "e_int"
     out = {}
     if "dispersion" in ds.dims:
         from .corrections import available_pairs
 
         for level, scheme in available_pairs(ds):
-            if np.isfinite(ds["e_int"].sel(level=level, dispersion=scheme).values).any():
+            if np.isfinite(ds[variable].sel(level=level, dispersion=scheme).values).any():
                 out[scheme_label(parse_level(level), scheme)] = (level, scheme)
     else:
         for level in ds["level"].values:
-            if np.isfinite(ds["e_int"].sel(level=level).values).any():
+            if np.isfinite(ds[variable].sel(level=level).values).any():
                 out[str(level)] = (str(level), None)
     return out
 
@@ -432,7 +439,7 @@ def reference_from_scan(path, curve: str | None = None) -> ReferenceCurve:
     if label not in pairs:
         raise InputError(f"reference curve: {label!r} is not a curve of {str(path)!r} ({', '.join(pairs)})")
     level, scheme = pairs[label]
-    da = ds["e_int"].sel(level=level)
+    da = ds["e_int_nocp" if ds.attrs.get("counterpoise", "") == "none" else "e_int"].sel(level=level)
     if scheme is not None:
         da = da.sel(dispersion=scheme)
     r, e = ds["distance"].values, da.transpose("distance").values

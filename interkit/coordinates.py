@@ -168,31 +168,64 @@ class Frames(ScanCoordinate):
         How the scan value of each frame is measured (default centre-of-mass distance).
     values : sequence of float, optional
         Explicit values (angstrom) instead of measuring.
+    symbols : sequence of sequence of str, optional
+        Element symbols of every frame; taken from the file or the Dimers when not given
+        (bare arrays carry none). Each frame's symbols must equal the scanned dimer's,
+        atom by atom.
     """
 
     kind = "frames"
 
     def __init__(self, geometries, measure: ScanCoordinate | None = None,
-                 values: Sequence[float] | None = None):
+                 values: Sequence[float] | None = None, symbols: Sequence[Sequence[str]] | None = None):
+        frame_symbols: list[tuple[str, ...] | None] = []
         if isinstance(geometries, (str, os.PathLike)):
             from .geometry import read_xyz
 
-            geometries = [f.coordinates for f in read_xyz(geometries)]
+            xyz = read_xyz(geometries)
+            geometries = [f.coordinates for f in xyz]
+            frame_symbols = [tuple(f.symbols) for f in xyz]
+        elif isinstance(geometries, bytes) or not hasattr(geometries, "__iter__"):
+            raise InputError(f"coordinate frames: {geometries!r} is not a list of geometries")
+        geometries = list(geometries)
+        if not frame_symbols:
+            frame_symbols = [tuple(g.symbols) if isinstance(g, Dimer) else None for g in geometries]
+        if symbols is not None:
+            from .geometry import normalise_symbol
+
+            if len(symbols) != len(geometries):
+                raise InputError(f"coordinate symbols: {len(symbols)} symbol lists for {len(geometries)} frames")
+            frame_symbols = [None if sy is None else
+                             tuple(normalise_symbol(x, f"coordinate frames[{k}] symbol") for x in sy)
+                             for k, sy in enumerate(symbols)]
         frames = []
         for k, g in enumerate(geometries):
             arr = np.array(g.coordinates if isinstance(g, Dimer) else g, dtype=float)
             if arr.ndim != 2 or arr.shape[1] != 3:
                 raise InputError(f"coordinate frames[{k}]: expected an (natoms, 3) array, got shape {arr.shape}")
+            if frame_symbols[k] is not None and len(frame_symbols[k]) != arr.shape[0]:
+                raise InputError(f"coordinate frames[{k}]: {len(frame_symbols[k])} symbols for {arr.shape[0]} atoms")
             arr.setflags(write=False)
             frames.append(arr)
         if not frames:
             raise InputError("coordinate frames: no geometries given")
         self.frames = tuple(frames)
+        self.symbols = tuple(frame_symbols)
         if isinstance(measure, Frames):
             raise InputError("coordinate frames: measure cannot itself be Frames")
         self.measure = measure or CentreOfMass()
         if values is not None:
-            vals = [float(v) for v in values]
+            if isinstance(values, (str, bytes)) or not hasattr(values, "__iter__"):
+                raise InputError(f"coordinate values: {values!r} is not a list of numbers (angstrom)")
+            vals = []
+            for k, v in enumerate(values):
+                try:
+                    x = float(v) if not isinstance(v, (bool, str, bytes)) else None
+                except (TypeError, ValueError):
+                    x = None
+                if x is None or not np.isfinite(x):
+                    raise InputError(f"coordinate values[{k}]: {v!r} is not a finite number (angstrom)")
+                vals.append(x)
             if len(vals) != len(frames):
                 raise InputError(f"coordinate values: {len(vals)} values for {len(frames)} frames")
             self.values = tuple(vals)
@@ -207,6 +240,11 @@ class Frames(ScanCoordinate):
                 raise InputError(
                     f"coordinate frames[{k}]: {arr.shape[0]} atoms, but the dimer has {template.natoms}"
                 )
+            syms = self.symbols[k]
+            if syms is not None and tuple(syms) != tuple(template.symbols):
+                i = next(i for i, (a, b) in enumerate(zip(syms, template.symbols)) if a != b)
+                raise InputError(f"coordinate frames[{k}]: atom {i} is {syms[i]}, but atom {i} of the dimer "
+                                 f"is {template.symbols[i]}; the frames must list the dimer's atoms in order")
             try:
                 out.append(template.with_coordinates(arr))
             except InputError as exc:
@@ -240,6 +278,8 @@ class Frames(ScanCoordinate):
             "measure": self.measure.to_dict(),
             "values": list(self.values) if self.values is not None else None,
             "frames_angstrom": [f.tolist() for f in self.frames],
+            **({"symbols": [list(sy) if sy is not None else None for sy in self.symbols]}
+               if any(sy is not None for sy in self.symbols) else {}),
         }
 
     def __eq__(self, other):
@@ -264,7 +304,8 @@ def coordinate_from_dict(data: dict) -> ScanCoordinate:
     if kind == "vector":
         return Vector(tuple(data.get("vector", ())))
     if kind == "frames":
-        return Frames(data["frames_angstrom"], coordinate_from_dict(data["measure"]), data.get("values"))
+        return Frames(data["frames_angstrom"], coordinate_from_dict(data["measure"]), data.get("values"),
+                      data.get("symbols"))
     raise InputError(
         f"scan.coordinate: {kind!r} is not one of centre-of-mass, atom-pair, vector, frames"
     )

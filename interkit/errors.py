@@ -38,3 +38,14 @@ class StoreError(InterkitError, OSError):
 
 class InterkitWarning(UserWarning):
     """Warnings interkit emits (cost, approximations, unavailable schemes)."""
+
+
+#: longest piece of a user's file quoted in an error message (characters)
+EXCERPT_CHARS = 40
+
+
+def excerpt(text: object, limit: int = EXCERPT_CHARS) -> str:
+    """``repr`` of the start of ``text``, cut to ``limit`` characters, for error messages
+    that quote a file which is not in the expected format."""
+    text = str(text)
+    return repr(text if len(text) <= limit else text[:limit] + "…")

@@ -264,7 +264,7 @@ def dask_executor(client, cluster_wait_s: float | None = None) -> DaskExecutor:
     return DaskExecutor(client, cluster_wait_s=cluster_wait_s)
 
 
-def connect(address: str, timeout: float | None = None):
+def connect(address: str, timeout: float | None = None, security=None):
     """A ``distributed.Client`` connected to the scheduler at ``address``.
 
     Parameters
@@ -273,6 +273,10 @@ def connect(address: str, timeout: float | None = None):
         Scheduler address, e.g. ``tcp://HOST:8786``.
     timeout : float, optional
         Seconds to wait for the scheduler (default ``CONNECT_TIMEOUT_S``, 10 s).
+    security : distributed.security.Security, optional
+        Passed to the client; without it the connection uses the Dask configuration
+        (``distributed.comm.tls.*``), which by default means plain TCP: no encryption
+        and no authentication.
 
     Raises
     ------
@@ -302,7 +306,7 @@ def connect(address: str, timeout: float | None = None):
         raise InputError(f"--scheduler: {address!r} is not a scheduler address such as "
                          f"tcp://HOST:8786 ({str(exc)[:120]})") from None
     try:
-        return Client(address, timeout=timeout, set_as_default=False)
+        return Client(address, timeout=timeout, set_as_default=False, security=security)
     except Exception as exc:  # distributed raises OSError, TimeoutError, ValueError, TypeError...
         reason = (str(exc).strip().splitlines() or [type(exc).__name__])[0][:200]
         raise ClusterError(f"--scheduler: cannot connect to {address!r} within {timeout:g} s ({reason})") from None

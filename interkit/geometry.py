@@ -14,7 +14,7 @@ import numpy as np
 from pyscf.data import elements as _elements
 from pyscf.data import radii as _radii
 
-from .errors import InputError
+from .errors import InputError, excerpt
 from .units import BOHR_TO_ANGSTROM
 
 #: closest allowed distance between any two atoms, angstrom
@@ -31,7 +31,7 @@ def normalise_symbol(symbol: str, where: str = "symbol") -> str:
     text = str(symbol).strip()
     canonical = _SYMBOLS.get(text.lower())
     if canonical is None or canonical in ("X",):
-        raise InputError(f"{where}: unknown element {text!r}")
+        raise InputError(f"{where}: unknown element {excerpt(text)}")
     return canonical
 
 
@@ -106,7 +106,7 @@ def parse_xyz(text: str, source: str = "<string>") -> list[XYZFrame]:
     -------
     list of XYZFrame
     """
-    lines = text.splitlines()
+    lines = text.removeprefix("\ufeff").splitlines()
     frames: list[XYZFrame] = []
     pos = 0
     while pos < len(lines):
@@ -118,7 +118,7 @@ def parse_xyz(text: str, source: str = "<string>") -> list[XYZFrame]:
             natoms = int(head.split()[0])
         except ValueError:
             raise InputError(
-                f"{source}: line {pos + 1}: expected an atom count, found {head!r}"
+                f"{source}: line {pos + 1}: expected an atom count, found {excerpt(head)}"
             ) from None
         if natoms <= 0:
             raise InputError(f"{source}: line {pos + 1}: atom count {natoms} is not positive")
@@ -135,14 +135,14 @@ def parse_xyz(text: str, source: str = "<string>") -> list[XYZFrame]:
             if len(parts) < 4:
                 raise InputError(
                     f"{source}: line {lineno + 1}: expected 'element x y z', found "
-                    f"{lines[lineno].strip()!r}"
+                    f"{excerpt(lines[lineno].strip())}"
                 )
             symbols.append(normalise_symbol(parts[0], f"{source}: line {lineno + 1}"))
             try:
                 xyz = [float(v) for v in parts[1:4]]
             except ValueError:
                 raise InputError(
-                    f"{source}: line {lineno + 1}: coordinates {' '.join(parts[1:4])!r} "
+                    f"{source}: line {lineno + 1}: coordinates {excerpt(' '.join(parts[1:4]))} "
                     "are not numbers"
                 ) from None
             if not all(math.isfinite(v) for v in xyz):
@@ -164,10 +164,12 @@ def read_xyz(path: str | os.PathLike) -> list[XYZFrame]:
     if not os.path.isfile(path):
         raise InputError(f"geometry file: {path!r} does not exist")
     try:
-        with open(path, encoding="utf-8") as fh:
+        with open(path, encoding="utf-8-sig") as fh:   # a byte-order mark is allowed
             text = fh.read()
     except UnicodeDecodeError:
         raise InputError(f"geometry file: {path!r} is not a UTF-8 text file") from None
+    if "\x00" in text:
+        raise InputError(f"geometry file: {path!r} is not a text file (it contains NUL bytes)")
     return parse_xyz(text, source=os.path.basename(path))
 
 
@@ -274,10 +276,16 @@ class Dimer:
 
     @staticmethod
     def _checked_fragment(fragment_a, natoms: int) -> tuple[int, ...]:
+        if isinstance(fragment_a, (str, bytes)):
+            raise InputError(f"fragment_a: {fragment_a!r} is not a list of atom indices")
         try:
-            items = [int(i) for i in fragment_a]
-        except (TypeError, ValueError):
+            raw = list(fragment_a)
+        except TypeError:
             raise InputError(f"fragment_a: {fragment_a!r} is not a list of atom indices") from None
+        for i in raw:
+            if isinstance(i, bool) or not isinstance(i, (int, np.integer)):
+                raise InputError(f"fragment_a: {i!r} is not an atom index (a whole number)")
+        items = [int(i) for i in raw]
         for i in items:
             if not 0 <= i < natoms:
                 raise InputError(f"fragment_a: atom index {i} is outside 0..{natoms - 1}")
@@ -344,6 +352,8 @@ class Dimer:
                     "fragments, not 2; give fragment_a explicitly"
                 )
             fragment_a = groups[0]
+        elif isinstance(fragment_a, (str, bytes)) or not hasattr(fragment_a, "__iter__"):
+            raise InputError(f"fragment_a: {fragment_a!r} is not a list of atom indices")
         return cls(symbols, coordinates, tuple(fragment_a), tuple(charges), tuple(multiplicities), name,
                    dimer_multiplicity)
 

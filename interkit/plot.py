@@ -12,6 +12,12 @@ from .units import convert_energy
 LEVEL_COLOURS = ("#1b6f8a", "#c4581b", "#5b8c2a", "#7a4fa3", "#a8324a", "#3c3c3c")
 
 
+def plain_text(text: object) -> str:
+    """``text`` for a matplotlib label, with ``$`` escaped so that a label such as a level
+    name is drawn as written, never as mathtext."""
+    return str(text).replace("\\$", "$").replace("$", "\\$")
+
+
 def plot_curves(ds: xr.Dataset, ax=None, unit: str = "kcal/mol", show_uncorrected: bool = False,
                 show_bsse: bool = False, selected: float | None = None, levels=None):
     """Interaction energy against the scan coordinate, one curve per level.
@@ -49,15 +55,15 @@ def plot_curves(ds: xr.Dataset, ax=None, unit: str = "kcal/mol", show_uncorrecte
         e = convert_energy(ds["e_int"].sel(level=level).values, "kcal/mol", unit)
         if np.all(np.isnan(e)):
             e = convert_energy(ds["e_int_nocp"].sel(level=level).values, "kcal/mol", unit)
-        ax.plot(r, e, "o-", color=colour, lw=1.8, ms=4, label=f"{level}")
+        ax.plot(r, e, "o-", color=colour, lw=1.8, ms=4, label=plain_text(f"{level}"))
         drawn.append(e)
         if show_uncorrected:
             e2 = convert_energy(ds["e_int_nocp"].sel(level=level).values, "kcal/mol", unit)
-            ax.plot(r, e2, "--", color=colour, lw=1.2, label=f"{level}, uncorrected")
+            ax.plot(r, e2, "--", color=colour, lw=1.2, label=plain_text(f"{level}, uncorrected"))
             drawn.append(e2)
         if show_bsse:
             b = convert_energy(ds["bsse"].sel(level=level).values, "kcal/mol", unit)
-            ax.plot(r, b, ":", color=colour, lw=1.2, label=f"{level}, BSSE")
+            ax.plot(r, b, ":", color=colour, lw=1.2, label=plain_text(f"{level}, BSSE"))
         failed = ds["status"].sel(level=level).values == "failed"
         for x in r[failed]:
             ax.axvline(x, color=colour, alpha=0.25, lw=6)
@@ -110,7 +116,7 @@ def plot_forces(ds: xr.Dataset, ax=None, levels=None, show_fit: bool = True, sho
     for k, level in enumerate(chosen):
         colour = LEVEL_COLOURS[k % len(LEVEL_COLOURS)]
         f = ds["force_along"].sel(level=level).values
-        ax.plot(r, f, "o-", color=colour, lw=1.8, ms=4, label=f"{level}")
+        ax.plot(r, f, "o-", color=colour, lw=1.8, ms=4, label=plain_text(f"{level}"))
         zero = force_zero_crossing(r, f)
         if np.isfinite(zero):
             ax.plot([zero], [0.0], marker="|", ms=16, mew=2.5, color=colour)
@@ -118,12 +124,12 @@ def plot_forces(ds: xr.Dataset, ax=None, levels=None, show_fit: bool = True, sho
                         color=colour, fontsize=8)
         if show_fit:
             ax.plot(r, derivative_force(r, ds["e_int"].sel(level=level).values), "--", color=colour,
-                    lw=1.1, label=f"{level}, −dE/dR of a spline fit")
+                    lw=1.1, label=plain_text(f"{level}, −dE/dR of a spline fit"))
         if show_split and "force_hf_along" in ds.variables:
             ax.plot(r, ds["force_hf_along"].sel(level=level).values, ":", color=colour, lw=1.4,
-                    label=f"{level}, electrostatic (Hellmann–Feynman)")
+                    label=plain_text(f"{level}, electrostatic (Hellmann–Feynman)"))
             ax.plot(r, ds["force_pulay_along"].sel(level=level).values, "-.", color=colour, lw=1.1,
-                    label=f"{level}, Pulay")
+                    label=plain_text(f"{level}, Pulay"))
     ax.axhline(0.0, color="#888888", lw=0.8)
     ax.set_xlabel(f"{ds['distance'].attrs.get('long_name', 'distance')} / Å")
     ax.set_ylabel("force on B along the coordinate / kcal/mol/Å  (+ repulsive)")

@@ -7,7 +7,7 @@ import xarray as xr
 
 from .comparison import resolve_reference
 from .corrections import flatten_dispersion
-from .plot import LEVEL_COLOURS
+from .plot import LEVEL_COLOURS, plain_text
 from .units import convert_energy
 
 REFERENCE_COLOUR = "#1c1c1c"
@@ -84,11 +84,11 @@ def plot_comparison(ds: xr.Dataset, reference_level: str | None = None, referenc
             heads.append(base)
         colour = LEVEL_COLOURS[heads.index(base) % len(LEVEL_COLOURS)]
         shown = convert_energy(values, "kcal/mol", unit)
-        ax_curve.plot(r, shown, color=colour, ls=style, lw=1.6, marker="o", ms=3, label=label)
+        ax_curve.plot(r, shown, color=colour, ls=style, lw=1.6, marker="o", ms=3, label=plain_text(label))
         err = convert_energy(values - ref, "kcal/mol", unit)
-        ax_err.plot(r, err, color=colour, ls=style, lw=1.6, marker="o", ms=3, label=label)
+        ax_err.plot(r, err, color=colour, ls=style, lw=1.6, marker="o", ms=3, label=plain_text(label))
     ax_curve.plot(r, convert_energy(ref, "kcal/mol", unit), color=REFERENCE_COLOUR, lw=2.4, ls="solid",
-                  marker="s", ms=3.5, label=f"reference: {ref_label}", zorder=5)
+                  marker="s", ms=3.5, label=plain_text(f"reference: {ref_label}"), zorder=5)
     ax_curve.axhline(0.0, color="#8a8a8a", lw=0.8)
     ax_err.axhline(0.0, color=REFERENCE_COLOUR, lw=1.2)
     xlabel = f"{ds['distance'].attrs.get('long_name', 'distance')} / Å"

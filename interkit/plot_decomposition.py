@@ -8,6 +8,7 @@ import xarray as xr
 from .corrections import flatten_dispersion
 from .decomposition import COMPONENT_NAMES, COMPONENTS, has_decomposition
 from .errors import InputError
+from .plot import plain_text
 from .units import convert_energy
 
 #: our own colours of the four components and the total
@@ -64,7 +65,7 @@ def plot_components(ds: xr.Dataset, ax=None, unit: str = "kcal/mol", show_total:
         if level not in [str(x) for x in ds["level"].values]:
             raise InputError(f"level: {level!r} is not a level of this scan")
         e = convert_energy(ds["e_int"].sel(level=level).values, "kcal/mol", unit)
-        ax.plot(r, e, "--", color="#8c8c8c", lw=1.4, label=f"{level} (CP)")
+        ax.plot(r, e, "--", color="#8c8c8c", lw=1.4, label=plain_text(f"{level} (CP)"))
     if "sapt_status" in ds.variables:
         for x in r[ds["sapt_status"].values == "failed"]:
             ax.axvline(x, color="#c2492d", alpha=0.18, lw=6)

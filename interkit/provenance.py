@@ -286,6 +286,8 @@ def subset_spec(spec, indices):
         data["coordinate"] = dict(data["coordinate"],
                                   frames_angstrom=[coord.frames[k].tolist() for k in frames],
                                   values=[coord.values[k] for k in frames] if coord.values is not None else None)
+        if "symbols" in data["coordinate"]:
+            data["coordinate"]["symbols"] = [coord.to_dict()["symbols"][k] for k in frames]
     elif spec.distances is not None:
         data["distances"] = [p.distance for p in points]
     else:

@@ -410,13 +410,6 @@ def write_report(ds, path: str | os.PathLike, reference: str | None = None) -> s
 
         ds = load_saved(ds)[0]
     text = render_report(ds, reference)
-    tmp = os.path.join(folder, f".tmp-{os.getpid()}-{os.path.basename(path)}")
-    try:
-        with open(tmp, "w", encoding="utf-8") as fh:
-            fh.write(text)
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
-    return path
+    from .fileio import atomic_write_text
+
+    return atomic_write_text(path, text)

@@ -39,7 +39,6 @@ from __future__ import annotations
 
 import json
 import os
-import tempfile
 from datetime import datetime, timezone
 
 import numpy as np
@@ -301,6 +300,9 @@ def validate(ds: xr.Dataset) -> None:
     for name in REQUIRED_VARIABLES:
         if name not in ds.variables:
             raise InputError(f"dataset: variable {name!r} is missing")
+    for name in ("e_int", "e_int_nocp", "bsse", "distance", "coordinates"):
+        if not np.issubdtype(ds[name].dtype, np.number) or np.issubdtype(ds[name].dtype, np.complexfloating):
+            raise InputError(f"dataset variable {name}: values of type {str(ds[name].dtype)!r} are not real numbers")
     for name in ("e_int", "e_int_nocp", "bsse"):
         if ds[name].attrs.get("units") != "kcal/mol":
             raise InputError(f"dataset variable {name}: units {ds[name].attrs.get('units')!r} is not 'kcal/mol'")
@@ -340,7 +342,9 @@ def save_scan(ds: xr.Dataset, path: str | os.PathLike) -> None:
     folder = os.path.dirname(os.path.abspath(path))
     if not os.path.isdir(folder):
         raise InputError(f"output: folder {folder!r} does not exist")
-    fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=".nc", dir=folder)
+    from .fileio import exclusive_temp
+
+    fd, tmp = exclusive_temp(folder, ".tmp-", ".nc")   # mode follows the umask
     os.close(fd)
     try:
         ds.to_netcdf(tmp, engine="h5netcdf", invalid_netcdf=False)

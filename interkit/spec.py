@@ -16,7 +16,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .coordinates import AtomPair, CentreOfMass, Frames, ScanCoordinate, Vector, coordinate_from_dict
-from .errors import InputError, NotAvailableError, ResourceError
+from .errors import InputError, NotAvailableError, ResourceError, excerpt
 from .geometry import Dimer, covalent_radius_angstrom
 from .levels import DISPERSION_SCHEMES, LevelOfTheory, check_basis, parse_level
 
@@ -220,7 +220,9 @@ class ScanSpec:
         if not (0 < tol <= 1e-6):
             raise InputError(f"conv_tol: {self.conv_tol!r} must lie in (0, 1e-6] hartree")
         object.__setattr__(self, "conv_tol", tol)
-        object.__setattr__(self, "name", str(self.name or self.dimer.name))
+        if self.name is not None and not isinstance(self.name, str):
+            raise InputError(f"name: {self.name!r} is not a string")
+        object.__setattr__(self, "name", self.name or self.dimer.name)
         object.__setattr__(self, "_points", self._build_points())
 
     def _check_decomposition(self) -> None:
@@ -434,6 +436,10 @@ def spec_from_mapping(data: dict, base_dir: str | os.PathLike = ".") -> ScanSpec
               if k in system}
     if ("geometry" in system) == ("demo" in system):
         raise InputError("system: give exactly one of system.geometry (an XYZ file) or system.demo")
+    for key in ("geometry", "demo"):
+        if key in system and not isinstance(system[key], str):
+            raise InputError(f"system.{key}: {system[key]!r} is not a "
+                             f"{'file name' if key == 'geometry' else 'demo system name'}")
     if "geometry" in system:
         path = os.path.join(os.fspath(base_dir), str(system["geometry"]))
         dimer = Dimer.from_xyz(path, **kwargs)
@@ -450,10 +456,17 @@ def spec_from_mapping(data: dict, base_dir: str | os.PathLike = ".") -> ScanSpec
             raise InputError(f"scan.atoms: {atoms!r} is not a pair of atom indices")
         coordinate = AtomPair(*atoms)
     elif kind == "vector":
-        coordinate = Vector(tuple(scan.get("vector", ())))
+        vector = scan.get("vector", ())
+        if not isinstance(vector, list):
+            raise InputError(f"scan.vector: {vector!r} is not a list of three numbers")
+        coordinate = Vector(tuple(vector))
     elif kind == "frames":
         if "frames" not in scan:
             raise InputError("scan.frames: a frames scan needs a multi-frame XYZ file")
+        if not isinstance(scan["frames"], str):
+            raise InputError(f"scan.frames: {scan['frames']!r} is not the name of an XYZ file")
+        if "atoms" in scan and (not isinstance(scan["atoms"], list) or len(scan["atoms"]) != 2):
+            raise InputError(f"scan.atoms: {scan['atoms']!r} is not a pair of atom indices")
         measure = AtomPair(*scan["atoms"]) if "atoms" in scan else CentreOfMass()
         coordinate = Frames(os.path.join(os.fspath(base_dir), str(scan["frames"])), measure,
                             scan.get("values"))
@@ -479,7 +492,7 @@ def spec_from_mapping(data: dict, base_dir: str | os.PathLike = ".") -> ScanSpec
         sapt_memory_limit_mb=calc.get("sapt_memory_limit_mb", DEFAULT_SAPT_MEMORY_LIMIT_MB),
         dispersion=calc.get("dispersion"),
         conv_tol=calc.get("conv_tol", DEFAULT_CONV_TOL_HARTREE),
-        name=str(data.get("name", "")),
+        name=data.get("name", ""),
     )
 
 
@@ -512,7 +525,9 @@ def load_spec_toml(path: str | os.PathLike) -> ScanSpec:
         raise InputError(f"spec file: {path!r} does not exist")
     try:
         with open(path, "rb") as fh:
-            data = tomllib.load(fh)
+            data = tomllib.loads(fh.read().decode("utf-8-sig"))   # a byte-order mark is allowed
+    except UnicodeDecodeError:
+        raise InputError(f"spec file {path!r}: not a UTF-8 text file (TOML)") from None
     except tomllib.TOMLDecodeError as exc:
-        raise InputError(f"spec file {path!r}: not valid TOML ({exc})") from None
+        raise InputError(f"spec file {path!r}: not valid TOML ({excerpt(exc, 80)})") from None
     return spec_from_mapping(data, os.path.dirname(os.path.abspath(path)))
