@@ -234,10 +234,34 @@ def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: s
             "created_utc": datetime.now(timezone.utc).isoformat(timespec="seconds"),
             "caution": CAUTION,
             **decomposition_attrs,
+            "level_settings_json": json.dumps(level_settings(spec), sort_keys=True),
             **_versions(),
         },
     )
     return ds
+
+
+def level_settings(spec) -> dict[str, dict]:
+    """Numerical settings used by each level (by label): SCF and correlation fitting,
+    frozen core, DFT grid, fitting bases (the names pyscf's defaults resolved to),
+    effective core potentials, and the size estimate of its dimer calculation."""
+    from .engine.cost import scan_cost
+
+    try:
+        costs = scan_cost(spec)
+    except Exception as exc:  # the record must not cost the computed scan
+        costs = {lv.label: {"error": f"{type(exc).__name__}: {exc}"} for lv in spec.levels}
+    out = {}
+    for lv in spec.levels:
+        cost = costs.get(lv.label, {})
+        entry = dict(lv.settings())
+        entry["jk_auxbasis_used"] = cost.get("jk_auxbasis", "")
+        entry["ri_auxbasis_used"] = cost.get("ri_auxbasis", "")
+        entry["ecp"] = cost.get("ecp", {})
+        entry["estimated_peak_memory_mb"] = cost.get("peak_memory_mb")
+        entry["nbasis"] = cost.get("nbasis")
+        out[lv.label] = entry
+    return out
 
 
 def validate(ds: xr.Dataset) -> None:
