@@ -240,6 +240,8 @@ def apply_settings(level: LevelOfTheory, settings: dict | None) -> LevelOfTheory
         if key not in LEVEL_SETTINGS:
             raise InputError(f"level setting {key!r} is not recognised (allowed: {', '.join(LEVEL_SETTINGS)})")
         _check_setting(key, value)
+    if level.method == "ccsd(t)":  # always exact integrals (and so labelled)
+        settings = {k: v for k, v in settings.items() if k != "correlation_fitting"}
     return dataclasses.replace(level, **settings)
 
 

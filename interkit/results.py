@@ -22,6 +22,10 @@ symbol, fragment            atom                        -
 factor                      distance                    1
 ==========================  ==========================  ===========
 
+The attribute ``level_settings_json`` records, per level label, the numerical settings
+used (SCF and correlation fitting, frozen core, DFT grid, the fitting bases pyscf's
+defaults resolved to, the ECPs) and the size estimate of its dimer calculation.
+
 Sign convention: interaction energies are negative when the dimer is bound. Every
 later variable (forces, components, dispersion corrections) is added to this layout:
 forces see :mod:`interkit.forces`, the SAPT0 components (dimension ``distance`` only)

@@ -134,13 +134,15 @@ class ScanSpec:
         Multiples of the starting value (exactly one of ``distances``/``factors``
         unless the coordinate is :class:`Frames`).
     levels : sequence of str or LevelOfTheory
-        Levels of theory, e.g. ``["hf/def2-svp", "b3lyp-d3bj/def2-svp"]``.
+        Levels of theory, e.g. ``["hf/def2-svp", "b3lyp-d3bj/def2-svp"]``; numerical
+        settings (frozen core, fitting, DFT grid, fitting bases) through
+        ``ik.parse_level("mp2/cc-pvdz", frozen_core=False)`` or :class:`LevelOfTheory`.
     counterpoise : bool
         Boys–Bernardi counterpoise correction (dimer-basis monomers at every point).
     forces : bool
         Counterpoise-corrected forces at every point: analytic gradients for HF, DFT
-        (with the dispersion correction's gradient) and MP2 (DF-MP2; conventional for
-        open shells), central differences along the coordinate for SCS-MP2 and CCSD(T);
+        (with the dispersion correction's gradient) and MP2 (DF-MP2; an MP2 level of
+        open-shell fragments runs with exact integrals in all its calculations), central differences along the coordinate for SCS-MP2 and CCSD(T);
         plus the Hellmann–Feynman (electrostatic) split for HF, DFT and closed-shell
         DF-MP2 (the electrostatic force of the relaxed MP2 density).
     decomposition : {None, 'sapt0'}

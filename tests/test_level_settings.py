@@ -101,12 +101,7 @@ def test_open_shell_mp2_forces_use_one_integral_treatment():
 
     d = ik.Dimer.from_xyz_string(H_HF, fragment_a=[0], multiplicities=(2, 1))
     spec = ik.ScanSpec(dimer=d, factors=[1.0], levels=["mp2/6-31g"], forces=True, conv_tol=1e-10)
-    level = spec.levels[0]
-    assert not level.scf_fitted and level.correlation_fitting is False
-    assert "exact correlation" in level.label
     plan = plan_scan(spec)
-    treatments = {(j.level.scf_fitted, j.level.correlation_fitting) for j in plan.jobs.values()}
-    assert treatments == {(False, False)}
     ds = ik.run_scan(spec, executor="serial", progress=False)
     # source: conventional UMP2/MP2 counterpoise calculation written out here with pyscf
     entry = plan.table[(0, 0)]
@@ -125,6 +120,11 @@ def test_open_shell_mp2_forces_use_one_integral_treatment():
         total[role] = mf.e_tot + solver.e_corr
     e_int = (total["dimer"] - total["a_dimer_basis"] - total["b_dimer_basis"]) * 627.5094740631
     assert float(ds["e_int"].values[0, 0]) == pytest.approx(e_int, abs=1e-5)
+    level = spec.levels[0]
+    assert not level.scf_fitted and level.correlation_fitting is False
+    assert "exact correlation" in level.label
+    treatments = {(j.level.scf_fitted, j.level.correlation_fitting) for j in plan.jobs.values()}
+    assert treatments == {(False, False)}
     settings = json.loads(ds.attrs["level_settings_json"])[level.label]
     assert settings["scf_fitting"] is False and settings["correlation_fitting"] is False
 
