@@ -127,14 +127,20 @@ def _frozen_core(mol, level: LevelOfTheory | None = None) -> int:
 def mp2_solver(mf, level: LevelOfTheory):
     """pyscf MP2 object of the level: fitted (on ``ri_auxbasis``, else the SCF's own
     fitting basis or pyscf's RI basis) or with exact integrals."""
+    from pyscf import df
+    from pyscf.mp import dfmp2, dfump2
+
     unrestricted = mf.mol.spin != 0
     if not level.correlation_fitting:
-        # mp.MP2 of a fitted SCF would return a fitted solver: name the exact classes
-        return mp.ump2.UMP2(mf) if unrestricted else mp.mp2.RMP2(mf)
-    solver = mp.UMP2(mf) if unrestricted else mp.MP2(mf)
+        # pyscf's MP2 classes take (ia|jb) from a fitted SCF's fitting tensor: hand them
+        # the same orbitals on an SCF object without it, so the integrals are exact
+        base = mf.undo_df() if getattr(mf, "with_df", None) is not None else mf
+        return mp.ump2.UMP2(base) if unrestricted else mp.mp2.RMP2(base)
+    # the fitted classes use the SCF's own fitting tensor, or pyscf's RI basis
+    solver = dfump2.DFUMP2(mf) if unrestricted else dfmp2.DFMP2(mf)
     if level.ri_auxbasis:
-        return solver.density_fit(auxbasis=level.ri_auxbasis)
-    return solver.density_fit()
+        solver.with_df = df.DF(mf.mol, auxbasis=level.ri_auxbasis)
+    return solver
 
 
 def correlation_energy(mf, level: LevelOfTheory) -> float:
