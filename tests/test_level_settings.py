@@ -164,6 +164,11 @@ def test_key_changes_with_dispersion_library_versions(monkeypatch):
     monkeypatch.setattr(plan_module, "_distribution_version",
                         lambda name: "0.0.test" if name == "dftd3" else real(name))
     assert _job(level).key != before
+    monkeypatch.setattr(plan_module, "_distribution_version", real)
+    d4_before = _job("b3lyp-d4/sto-3g").key
+    monkeypatch.setattr(plan_module, "_distribution_version",
+                        lambda name: "0.0.test" if name == "dftd4" else real(name))
+    assert _job("b3lyp-d4/sto-3g").key != d4_before
 
 
 def test_key_changes_with_numerics_version(monkeypatch):

@@ -192,12 +192,16 @@ def _cached(level, symbols, coordinates, charge, spin, forces) -> dict:
 def scan_cost(spec) -> dict[str, dict]:
     """Estimate of every level of a spec (by level label), for the starting dimer (every
     point has the same atoms, so the same sizes)."""
+    from ..plan import force_method
+
     d = spec.dimer
     coords = tuple(tuple(float(x) for x in row) for row in d.coordinates)
     out = {}
     for lv in spec.levels:
+        # numerical forces are energies at displaced geometries: no gradient tensors
+        analytic = bool(spec.forces) and force_method(lv).startswith("analytic")
         out[lv.label] = dict(_cached(lv, tuple(d.symbols), coords, int(sum(d.charges)),
-                                     int(sum(d.spins)), bool(spec.forces)))
+                                     int(sum(d.spins)), analytic))
     return out
 
 
