@@ -60,7 +60,9 @@ class LevelOfTheory:
         ``'treutler'`` or ``'none'``. None for non-DFT levels.
     jk_auxbasis : str, optional
         Fitting basis of the SCF's Coulomb and exchange (with ``density_fitting``);
-        None: pyscf's JK-fitting basis matching ``basis`` (even-tempered if none).
+        None: pyscf's choice for ``basis`` (its JK-fitting partner, def2 JK fitting for
+        small bases, or an even-tempered set generated from the basis); the name used
+        is recorded in the Dataset.
     ri_auxbasis : str, optional
         Fitting basis of a fitted MP2/SCS-MP2 correlation step; None: the SCF's own
         fitting basis when the SCF is fitted (pyscf's behaviour), else pyscf's RI
@@ -166,7 +168,7 @@ class LevelOfTheory:
         head = self.functional if self.method == "dft" else self.method
         if self.dispersion:
             head = f"{head}-{self.dispersion}"
-        notes = [] if self.density_fitting or self.method == "ccsd(t)" else ["no-ri"]
+        notes = [] if self.density_fitting else ["no-ri"]
         if self.frozen_core is False:
             notes.append("all-electron")
         if self.correlation_fitting is False and self.method != "ccsd(t)":

@@ -142,7 +142,8 @@ class ScanSpec:
     forces : bool
         Counterpoise-corrected forces at every point: analytic gradients for HF, DFT
         (with the dispersion correction's gradient) and MP2 (DF-MP2; an MP2 level of
-        open-shell fragments runs with exact integrals in all its calculations), central differences along the coordinate for SCS-MP2 and CCSD(T);
+        open-shell fragments runs with exact integrals in all its calculations),
+        central differences along the coordinate for SCS-MP2 and CCSD(T);
         plus the Hellmann–Feynman (electrostatic) split for HF, DFT and closed-shell
         DF-MP2 (the electrostatic force of the relaxed MP2 density).
     decomposition : {None, 'sapt0'}
