@@ -214,10 +214,10 @@ def check_resources(spec) -> dict[str, dict]:
     for label, cost in costs.items():
         if cost["peak_memory_mb"] > spec.memory_limit_mb:
             raise ResourceError(
-                f"memory_limit_mb: level {label} needs about {cost['peak_memory_mb']:.0f} MB per calculation "
+                f"memory_limit_mb: level {label} needs about {cost['peak_memory_mb']:.3g} MB per calculation "
                 f"({cost['nbasis']} basis functions, {cost['naux_jk'] or cost['naux_ri']} fitting functions, "
                 f"{cost['nocc']} occupied / {cost['nvir']} virtual orbitals; largest: "
-                f"{cost['largest_tensor']}, {cost['tensor_mb'][cost['largest_tensor']]:.0f} MB), above the limit of "
+                f"{cost['largest_tensor']}, {cost['tensor_mb'][cost['largest_tensor']]:.3g} MB), above the limit of "
                 f"{spec.memory_limit_mb:g} MB; raise memory_limit_mb (ScanSpec argument, or "
                 "memory_limit_mb under [calculation] in the spec file)")
     return costs
