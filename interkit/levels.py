@@ -10,6 +10,8 @@ from collections.abc import Sequence
 from dataclasses import asdict, dataclass
 from functools import lru_cache
 
+import numpy as np
+
 from .errors import InputError
 
 WAVEFUNCTION_METHODS = ("hf", "mp2", "scs-mp2", "ccsd(t)")
@@ -42,8 +44,32 @@ class LevelOfTheory:
         Post-hoc dispersion correction for DFT: ``'d3zero'``, ``'d3bj'`` or ``'d4'``,
         optionally with the three-body term (``'d3bj-atm'`` etc.).
     density_fitting : bool
-        Density-fit the Coulomb and exchange matrices of the SCF (RI-JK). MP2 always
-        uses density fitting with the RI auxiliary basis matching ``basis``.
+        Density-fit the Coulomb and exchange matrices of the SCF (default True). CCSD(T)
+        always runs on an SCF with exact integrals.
+    frozen_core : bool
+        Correlated methods (MP2, SCS-MP2, CCSD(T)) leave the chemical core uncorrelated
+        (default True; pyscf's ``chemcore`` counts, ECP cores excluded). None for HF/DFT.
+    correlation_fitting : bool
+        Density-fit the MP2/SCS-MP2 correlation step (default True); False uses exact
+        four-index integrals. Always False for CCSD(T), None for HF/DFT.
+    grid_level : int
+        DFT integration grid level, 0 (coarse) to 9 (fine), pyscf's radial/angular
+        tables (default 3). None for non-DFT levels.
+    grid_pruning : str
+        Angular pruning of the DFT grid: ``'nwchem'`` (default), ``'sg1'``,
+        ``'treutler'`` or ``'none'``. None for non-DFT levels.
+    jk_auxbasis : str, optional
+        Fitting basis of the SCF's Coulomb and exchange (with ``density_fitting``);
+        None: pyscf's choice for ``basis`` (its JK-fitting partner, def2 JK fitting for
+        small bases, or an even-tempered set generated from the basis); the name used
+        is recorded in the Dataset.
+    ri_auxbasis : str, optional
+        Fitting basis of a fitted MP2/SCS-MP2 correlation step; None: the SCF's own
+        fitting basis when the SCF is fitted (pyscf's behaviour), else pyscf's RI
+        basis matching ``basis``.
+
+    Settings that do not apply to the method are stored as None. Non-default values
+    appear in :attr:`label`.
     """
 
     method: str
@@ -51,6 +77,12 @@ class LevelOfTheory:
     functional: str | None = None
     dispersion: str | None = None
     density_fitting: bool = True
+    frozen_core: bool | None = True
+    correlation_fitting: bool | None = None
+    grid_level: int | None = None
+    grid_pruning: str | None = None
+    jk_auxbasis: str | None = None
+    ri_auxbasis: str | None = None
 
     def __post_init__(self):
         method = str(self.method).strip().lower()
@@ -80,7 +112,55 @@ class LevelOfTheory:
         object.__setattr__(self, "method", method)
         object.__setattr__(self, "functional", functional)
         object.__setattr__(self, "dispersion", dispersion)
-        object.__setattr__(self, "density_fitting", bool(self.density_fitting))
+        object.__setattr__(self, "density_fitting", _flag(self.density_fitting, "density_fitting", True))
+        self._resolve_settings()
+
+    def _resolve_settings(self) -> None:
+        """Validate the numerical settings; store None where a setting does not apply."""
+        method = self.method
+        correlated = method in ("mp2", "scs-mp2", "ccsd(t)")
+        frozen = _flag(self.frozen_core, "frozen_core", True) if correlated else None
+        if method in ("mp2", "scs-mp2"):
+            corr_fit = _flag(self.correlation_fitting, "correlation_fitting", True)
+        elif method == "ccsd(t)":
+            if _flag(self.correlation_fitting, "correlation_fitting", False):
+                raise InputError("level correlation_fitting: True is not available for CCSD(T) "
+                                 "(it runs with exact integrals)")
+            corr_fit = False
+        else:
+            corr_fit = None
+        grid_level = grid_pruning = None
+        if method == "dft":
+            grid_level = DEFAULT_GRID_LEVEL if self.grid_level is None else self.grid_level
+            if isinstance(grid_level, bool) or not isinstance(grid_level, (int, np.integer)) \
+                    or not 0 <= int(grid_level) <= 9:
+                raise InputError(f"level grid_level: {self.grid_level!r} is not an integer from 0 to 9")
+            grid_level = int(grid_level)
+            grid_pruning = DEFAULT_GRID_PRUNING if self.grid_pruning is None else self.grid_pruning
+            if not isinstance(grid_pruning, str) or grid_pruning.strip().lower() not in GRID_PRUNINGS:
+                raise InputError(f"level grid_pruning: {self.grid_pruning!r} is not one of "
+                                 f"{', '.join(GRID_PRUNINGS)}")
+            grid_pruning = grid_pruning.strip().lower()
+        scf_fitted = self.density_fitting and method != "ccsd(t)"
+        jk = _aux_name(self.jk_auxbasis, "jk_auxbasis") if scf_fitted else None
+        ri = _aux_name(self.ri_auxbasis, "ri_auxbasis") if corr_fit else None
+        for name, value in (("frozen_core", frozen), ("correlation_fitting", corr_fit),
+                            ("grid_level", grid_level), ("grid_pruning", grid_pruning),
+                            ("jk_auxbasis", jk), ("ri_auxbasis", ri)):
+            object.__setattr__(self, name, value)
+
+    @property
+    def scf_fitted(self) -> bool:
+        """True when the SCF's Coulomb and exchange are density-fitted."""
+        return self.density_fitting and self.method != "ccsd(t)"
+
+    def with_exact_integrals(self) -> LevelOfTheory:
+        """The same level with exact integrals in the SCF and the correlation step."""
+        import dataclasses
+
+        return dataclasses.replace(self, density_fitting=False, jk_auxbasis=None, ri_auxbasis=None,
+                                   correlation_fitting=False if self.method != "hf" and
+                                   self.method != "dft" else None)
 
     @property
     def label(self) -> str:
@@ -88,8 +168,28 @@ class LevelOfTheory:
         head = self.functional if self.method == "dft" else self.method
         if self.dispersion:
             head = f"{head}-{self.dispersion}"
-        tail = "" if self.density_fitting else " (no-ri)"
+        notes = [] if self.density_fitting else ["no-ri"]
+        if self.frozen_core is False:
+            notes.append("all-electron")
+        if self.correlation_fitting is False and self.method != "ccsd(t)":
+            notes.append("exact correlation")
+        if self.grid_level is not None and self.grid_level != DEFAULT_GRID_LEVEL:
+            notes.append(f"grid {self.grid_level}")
+        if self.grid_pruning is not None and self.grid_pruning != DEFAULT_GRID_PRUNING:
+            notes.append(f"pruning {self.grid_pruning}")
+        if self.jk_auxbasis:
+            notes.append(f"jk-fit {self.jk_auxbasis}")
+        if self.ri_auxbasis:
+            notes.append(f"ri-fit {self.ri_auxbasis}")
+        tail = f" ({', '.join(notes)})" if notes else ""
         return f"{head}/{self.basis}{tail}"
+
+    def settings(self) -> dict:
+        """The numerical settings of the level (None where one does not apply)."""
+        return {"scf_fitting": self.scf_fitted, "frozen_core": self.frozen_core,
+                "correlation_fitting": self.correlation_fitting, "grid_level": self.grid_level,
+                "grid_pruning": self.grid_pruning, "jk_auxbasis": self.jk_auxbasis,
+                "ri_auxbasis": self.ri_auxbasis}
 
     @property
     def is_scf_only(self) -> bool:
@@ -106,11 +206,69 @@ class LevelOfTheory:
         return cls(**data)
 
 
-def parse_level(text: str | LevelOfTheory) -> LevelOfTheory:
+#: DFT grid defaults (pyscf's): level 3 with NWChem-style angular pruning
+DEFAULT_GRID_LEVEL = 3
+DEFAULT_GRID_PRUNING = "nwchem"
+GRID_PRUNINGS = ("nwchem", "sg1", "treutler", "none")
+#: level settings that can be given for every level at once (TOML ``[calculation.settings]``)
+LEVEL_SETTINGS = ("density_fitting", "frozen_core", "correlation_fitting", "grid_level", "grid_pruning",
+                  "jk_auxbasis", "ri_auxbasis")
+
+
+def _flag(value, name: str, default: bool) -> bool:
+    if value is None:
+        return default
+    if not isinstance(value, (bool, np.bool_)):
+        raise InputError(f"level {name}: {value!r} is not true or false")
+    return bool(value)
+
+
+def _aux_name(value, name: str) -> str | None:
+    if value is None:
+        return None
+    if not isinstance(value, str) or not value.strip():
+        raise InputError(f"level {name}: {value!r} is not a basis-set name")
+    return value.strip().lower()
+
+
+def apply_settings(level: LevelOfTheory, settings: dict | None) -> LevelOfTheory:
+    """``level`` with the given settings (keys of ``LEVEL_SETTINGS``) replaced; settings
+    that do not apply to the level's method are ignored."""
+    import dataclasses
+
+    if not settings:
+        return level
+    for key, value in settings.items():
+        if key not in LEVEL_SETTINGS:
+            raise InputError(f"level setting {key!r} is not recognised (allowed: {', '.join(LEVEL_SETTINGS)})")
+        _check_setting(key, value)
+    if level.method == "ccsd(t)":  # always exact integrals (and so labelled)
+        settings = {k: v for k, v in settings.items() if k != "correlation_fitting"}
+    return dataclasses.replace(level, **settings)
+
+
+def _check_setting(name: str, value) -> None:
+    """Validate one setting's value whatever the method (so a bad value given for every
+    level is refused even where it does not apply)."""
+    if name in ("density_fitting", "frozen_core", "correlation_fitting"):
+        _flag(value, name, True)
+    elif name in ("jk_auxbasis", "ri_auxbasis"):
+        _aux_name(value, name)
+    elif name == "grid_level":
+        LevelOfTheory("dft", "sto-3g", "lda,vwn", grid_level=value)
+    elif name == "grid_pruning":
+        LevelOfTheory("dft", "sto-3g", "lda,vwn", grid_pruning=value)
+
+
+def parse_level(text: str | LevelOfTheory, **settings) -> LevelOfTheory:
     """Parse ``'method/basis'`` (e.g. ``'b3lyp-d3bj/def2-svp'``, ``'mp2/aug-cc-pvdz'``).
 
-    A trailing ``' (no-ri)'`` switches off SCF density fitting.
+    A trailing ``' (no-ri)'`` switches off SCF density fitting. Keyword arguments set
+    the level's numerical settings (``frozen_core=False``, ``grid_level=4``, ...; see
+    :class:`LevelOfTheory`).
     """
+    if settings:
+        return apply_settings(parse_level(text), settings)
     if isinstance(text, LevelOfTheory):
         return text
     if not isinstance(text, str):
@@ -191,3 +349,68 @@ def check_basis(level: LevelOfTheory, symbols: Sequence[str]) -> None:
         raise InputError(f"level basis: {level.basis!r} is unknown to pyscf")
     if missing:
         raise InputError(f"level basis: {level.basis!r} has no functions for {', '.join(missing)}")
+    for s in sorted(set(symbols)):
+        if basis_ecp(level.basis, s) is None and _valence_only(level.basis, s):
+            raise InputError(f"level basis: {level.basis!r} is a valence basis for {s} but pyscf has "
+                             f"no effective core potential of it for {s}")
+    for name in ("jk_auxbasis", "ri_auxbasis"):
+        aux = getattr(level, name)
+        if aux is None:
+            continue
+        lacking = sorted({s for s in symbols if not _basis_has_element(aux, s)})
+        if lacking:
+            raise InputError(f"level {name}: {aux!r} has no functions for {', '.join(lacking)}")
+
+
+def _quiet(call, *args):
+    """Run a pyscf basis-library call without its prints and warnings."""
+    import contextlib
+    import io
+    import warnings
+
+    with warnings.catch_warnings(), contextlib.redirect_stdout(io.StringIO()), \
+            contextlib.redirect_stderr(io.StringIO()):
+        warnings.simplefilter("ignore")
+        return call(*args)
+
+
+@lru_cache(maxsize=1024)
+def basis_ecp(basis: str, symbol: str) -> str | None:
+    """Name of the effective core potential the definition of ``basis`` carries for
+    ``symbol`` in pyscf's library (the basis name itself), or None if it carries none."""
+    from pyscf import gto
+
+    try:
+        ecp = _quiet(gto.basis.load_ecp, basis, symbol)
+    except Exception:  # pyscf raises several types for "no ECP here"
+        return None
+    return basis if ecp and ecp[0] > 0 else None
+
+
+def ecp_assignment(basis: str, symbols: Sequence[str]) -> dict[str, str]:
+    """ECP of every element in ``symbols`` (real atoms) whose basis definition carries one."""
+    out = {}
+    for s in sorted(set(symbols)):
+        name = basis_ecp(basis, s)
+        if name:
+            out[s] = name
+    return out
+
+
+@lru_cache(maxsize=1024)
+def _valence_only(basis: str, symbol: str) -> bool:
+    """True when ``basis`` has fewer contracted functions of some angular momentum than
+    the neutral atom has occupied shells of it: the basis was made for an ECP core."""
+    from pyscf import gto
+    from pyscf.data import elements
+
+    shells = _quiet(gto.basis.load, basis, symbol)
+    counts = [0, 0, 0, 0]
+    for sh in shells:
+        ang = sh[0]
+        prims = [p for p in sh[1:] if isinstance(p, (list, tuple))]
+        if ang < 4 and prims:
+            counts[ang] += len(prims[0]) - 1
+    config = elements.CONFIGURATION[elements.charge(symbol)]
+    capacity = (2, 6, 10, 14)
+    return any(counts[ang] < -(-config[ang] // capacity[ang]) for ang in range(4))

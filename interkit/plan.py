@@ -18,7 +18,7 @@ from .levels import LevelOfTheory
 from .spec import ScanSpec
 
 #: bump when a change in interkit alters the numbers a job produces
-NUMERICS_VERSION = 3
+NUMERICS_VERSION = 4
 #: coordinates in job descriptions are rounded to this many decimals of an angstrom
 COORDINATE_DECIMALS = 10
 
@@ -53,8 +53,8 @@ def force_method(level: LevelOfTheory) -> str:
     if level.method in ("hf", "dft"):
         return "analytic"
     if level.method == "mp2":
-        # open-shell fragments fall back to the conventional MP2 gradient (engine.energy)
-        return "analytic (DF-MP2)" if level.density_fitting else "analytic (conventional MP2)"
+        # open-shell dimers get exact integrals for the whole level (spec.ScanSpec)
+        return "analytic (DF-MP2)" if level.correlation_fitting else "analytic (conventional MP2)"
     return "numerical"
 
 
@@ -100,6 +100,9 @@ class Job:
     memory_limit_mb : float
         Largest tensor the calculation may build (MB); a resource limit that does not
         change the numbers, so it is not part of :meth:`describe` or the key.
+    ecp : tuple of (str, str)
+        Effective core potential of each real element whose basis definition carries
+        one, as (symbol, ECP name); filled from pyscf's basis library when not given.
     """
 
     symbols: tuple[str, ...]
@@ -116,8 +119,14 @@ class Job:
     guess: str = ""
     memory_limit_mb: float = field(default=4000.0, compare=False)
     key: str = field(default="", compare=False)
+    ecp: tuple[tuple[str, str], ...] | None = None
 
     def __post_init__(self):
+        if self.ecp is None:
+            from .levels import ecp_assignment
+
+            real = [s for s, g in zip(self.symbols, self.ghost) if not g]
+            object.__setattr__(self, "ecp", tuple(sorted(ecp_assignment(self.level.basis, real).items())))
         if not self.key:
             object.__setattr__(self, "key", job_key(self.describe()))
 
@@ -132,6 +141,7 @@ class Job:
             "level": self.level.to_dict(),
             "conv_tol": self.conv_tol,
             "outputs": list(self.outputs),
+            "ecp": {s: name for s, name in self.ecp},
         }
         # only jobs that split the atoms into fragments carry these (older keys unchanged)
         if self.fragment_a:
@@ -148,12 +158,43 @@ class Job:
         return [i for i, g in enumerate(self.ghost) if not g]
 
 
+def _distribution_version(name: str) -> str:
+    from importlib import metadata
+
+    try:
+        return metadata.version(name)
+    except metadata.PackageNotFoundError:
+        return "not installed"
+
+
+def _libxc_version() -> str:
+    from pyscf.dft import libxc
+
+    return str(libxc.__version__)
+
+
+def library_versions(level: dict) -> dict[str, str]:
+    """Versions of the libraries whose numbers enter a job of ``level`` (its plain-data
+    form): pyscf always, libxc for DFT, pyscf-dispersion and the D3 or D4 library for a
+    post-hoc dispersion correction."""
+    out = {"pyscf": _pyscf_version()}
+    if level.get("method") == "dft":
+        out["libxc"] = _libxc_version()
+    scheme = level.get("dispersion")
+    if scheme:
+        out["pyscf-dispersion"] = _distribution_version("pyscf-dispersion")
+        lib_name = "dftd4" if scheme.startswith("d4") else "dftd3"
+        out[lib_name] = _distribution_version(lib_name)
+    return out
+
+
 def job_key(description: dict) -> str:
-    """SHA-256 of the job description plus the versions that change its numbers."""
+    """SHA-256 of the job description plus the versions that change its numbers
+    (``NUMERICS_VERSION`` and :func:`library_versions`)."""
     payload = {
         "job": description,
         "numerics_version": NUMERICS_VERSION,
-        "pyscf": _pyscf_version(),
+        "versions": library_versions(description.get("level", {})),
     }
     text = json.dumps(payload, sort_keys=True, separators=(",", ":"))
     return hashlib.sha256(text.encode()).hexdigest()

@@ -29,6 +29,10 @@ A point with counterpoise whose monomer in its own basis failed keeps ``e_int`` 
 not use it) and its status (``ok``/``retried``); only ``e_int_nocp`` and ``bsse`` are NaN,
 and ``status_detail`` says which calculation failed and why.
 
+The attribute ``level_settings_json`` records, per level label, the numerical settings
+used (SCF and correlation fitting, frozen core, DFT grid, the fitting bases pyscf's
+defaults resolved to, the ECPs) and the size estimate of its dimer calculation.
+
 Sign convention: interaction energies are negative when the dimer is bound. Every
 later variable (forces, components, dispersion corrections) is added to this layout:
 forces see :mod:`interkit.forces`, the SAPT0 components (dimension ``distance`` only)
@@ -279,6 +283,7 @@ def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: s
             "created_utc": datetime.now(timezone.utc).isoformat(timespec="seconds"),
             "caution": CAUTION,
             **decomposition_attrs,
+            "level_settings_json": json.dumps(level_settings(spec), sort_keys=True),
             **_versions(),
         },
     )
@@ -289,6 +294,29 @@ def _flipped(dimer) -> int:
     from .spin import flipped_fragment
 
     return flipped_fragment(dimer.spins)
+
+
+def level_settings(spec) -> dict[str, dict]:
+    """Numerical settings used by each level (by label): SCF and correlation fitting,
+    frozen core, DFT grid, fitting bases (the names pyscf's defaults resolved to),
+    effective core potentials, and the size estimate of its dimer calculation."""
+    from .engine.cost import scan_cost
+
+    try:
+        costs = scan_cost(spec)
+    except Exception as exc:  # the record must not cost the computed scan
+        costs = {lv.label: {"error": f"{type(exc).__name__}: {exc}"} for lv in spec.levels}
+    out = {}
+    for lv in spec.levels:
+        cost = costs.get(lv.label, {})
+        entry = dict(lv.settings())
+        entry["jk_auxbasis_used"] = cost.get("jk_auxbasis", "")
+        entry["ri_auxbasis_used"] = cost.get("ri_auxbasis", "")
+        entry["ecp"] = cost.get("ecp", {})
+        entry["estimated_peak_memory_mb"] = cost.get("peak_memory_mb")
+        entry["nbasis"] = cost.get("nbasis")
+        out[lv.label] = entry
+    return out
 
 
 def validate(ds: xr.Dataset) -> None:

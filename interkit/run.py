@@ -146,6 +146,9 @@ def run_scan(
     if dask_executor is not None:  # the cluster decides; chunks follow its threads
         n_workers = max(1, sum(dask_executor.worker_threads().values()))
     plan = plan_scan(spec)
+    from .engine.cost import check_resources
+
+    check_resources(spec)  # size estimate of every level; refuses before any calculation
     store = ResultStore(cache) if cache is not None else None
     records: dict[str, dict] = {}
     if store is not None:

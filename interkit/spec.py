@@ -18,7 +18,14 @@ import numpy as np
 from .coordinates import AtomPair, CentreOfMass, Frames, ScanCoordinate, Vector, coordinate_from_dict
 from .errors import InputError, NotAvailableError, ResourceError, excerpt
 from .geometry import Dimer, covalent_radius_angstrom
-from .levels import DISPERSION_SCHEMES, LevelOfTheory, check_basis, parse_level
+from .levels import (
+    DISPERSION_SCHEMES,
+    LEVEL_SETTINGS,
+    LevelOfTheory,
+    apply_settings,
+    check_basis,
+    parse_level,
+)
 
 #: inter-fragment atoms may not come closer than this fraction of the sum of their
 #: covalent radii (and never closer than 0.5 Å)
@@ -26,6 +33,9 @@ SAFE_CONTACT_FRACTION = 0.75
 SAFE_CONTACT_FLOOR_ANGSTROM = 0.5
 #: SCF energy convergence threshold in hartree
 DEFAULT_CONV_TOL_HARTREE = 1e-8
+#: a scan is refused when one calculation's estimated peak memory exceeds this (MB);
+#: leaves room for the operating system and a second worker on a 24 GB machine
+DEFAULT_MEMORY_LIMIT_MB = 16000.0
 
 
 @dataclass(frozen=True)
@@ -124,13 +134,16 @@ class ScanSpec:
         Multiples of the starting value (exactly one of ``distances``/``factors``
         unless the coordinate is :class:`Frames`).
     levels : sequence of str or LevelOfTheory
-        Levels of theory, e.g. ``["hf/def2-svp", "b3lyp-d3bj/def2-svp"]``.
+        Levels of theory, e.g. ``["hf/def2-svp", "b3lyp-d3bj/def2-svp"]``; numerical
+        settings (frozen core, fitting, DFT grid, fitting bases) through
+        ``ik.parse_level("mp2/cc-pvdz", frozen_core=False)`` or :class:`LevelOfTheory`.
     counterpoise : bool
         Boys–Bernardi counterpoise correction (dimer-basis monomers at every point).
     forces : bool
         Counterpoise-corrected forces at every point: analytic gradients for HF, DFT
-        (with the dispersion correction's gradient) and MP2 (DF-MP2; conventional for
-        open shells), central differences along the coordinate for SCS-MP2 and CCSD(T);
+        (with the dispersion correction's gradient) and MP2 (DF-MP2; an MP2 level of
+        open-shell fragments runs with exact integrals in all its calculations),
+        central differences along the coordinate for SCS-MP2 and CCSD(T);
         plus the Hellmann–Feynman (electrostatic) split for HF, DFT and closed-shell
         DF-MP2 (the electrostatic force of the relaxed MP2 density).
     decomposition : {None, 'sapt0'}
@@ -155,6 +168,10 @@ class ScanSpec:
         SCF energy convergence threshold in hartree (default 1e-8: the error of an
         interaction energy is second order in the density error, below 1e-5 kcal/mol).
         Calculations with gradients converge to at least 1e-9, SAPT0 to 1e-10.
+    memory_limit_mb : float
+        Refuse the scan (ResourceError, before any calculation) when the estimated
+        peak memory of one calculation (its largest tensors, see
+        :mod:`interkit.engine.cost`) exceeds this many MB (default 16000).
     name : str
         Label of the scan.
     """
@@ -172,6 +189,7 @@ class ScanSpec:
     dispersion: Sequence[str] | None = None
     conv_tol: float = DEFAULT_CONV_TOL_HARTREE
     name: str = ""
+    memory_limit_mb: float = DEFAULT_MEMORY_LIMIT_MB
 
     def __post_init__(self):
         if not isinstance(self.dimer, Dimer):
@@ -197,6 +215,11 @@ class ScanSpec:
         if not levels_in:
             raise InputError("levels: no level of theory given")
         levels = tuple(parse_level(x) for x in levels_in)
+        for key in ("counterpoise", "forces"):
+            if not isinstance(getattr(self, key), (bool, np.bool_)):
+                raise InputError(f"{key}: {getattr(self, key)!r} is not true or false")
+        if self.forces:
+            levels = _levels_for_forces(levels, any(self.dimer.spins))
         labels = [lv.label for lv in levels]
         for lab in labels:
             if labels.count(lab) > 1:
@@ -206,9 +229,6 @@ class ScanSpec:
             if lv.method == "ccsd(t)":
                 _warn_ccsdt_cost(lv, self.dimer)
         object.__setattr__(self, "levels", levels)
-        for key in ("counterpoise", "forces"):
-            if not isinstance(getattr(self, key), (bool, np.bool_)):
-                raise InputError(f"{key}: {getattr(self, key)!r} is not true or false")
         if self.forces and not self.counterpoise:
             raise InputError("forces: forces are counterpoise-corrected; set counterpoise = true")
         self._check_decomposition()
@@ -220,6 +240,11 @@ class ScanSpec:
         if not (0 < tol <= 1e-6):
             raise InputError(f"conv_tol: {self.conv_tol!r} must lie in (0, 1e-6] hartree")
         object.__setattr__(self, "conv_tol", tol)
+        limit = self.memory_limit_mb
+        if isinstance(limit, bool) or not isinstance(limit, (int, float, np.integer, np.floating)) \
+                or not math.isfinite(float(limit)) or float(limit) <= 0:
+            raise InputError(f"memory_limit_mb: {limit!r} is not a positive number of MB")
+        object.__setattr__(self, "memory_limit_mb", float(limit))
         if self.name is not None and not isinstance(self.name, str):
             raise InputError(f"name: {self.name!r} is not a string")
         object.__setattr__(self, "name", self.name or self.dimer.name)
@@ -343,6 +368,7 @@ class ScanSpec:
             "sapt_memory_limit_mb": self.sapt_memory_limit_mb,
             "dispersion": self.dispersion,
             "conv_tol": self.conv_tol,
+            "memory_limit_mb": self.memory_limit_mb,
         }
 
     def to_json(self) -> str:
@@ -366,6 +392,7 @@ class ScanSpec:
             dispersion=data.get("dispersion"),
             conv_tol=data.get("conv_tol", DEFAULT_CONV_TOL_HARTREE),
             name=data.get("name", ""),
+            memory_limit_mb=data.get("memory_limit_mb", DEFAULT_MEMORY_LIMIT_MB),
         )
 
     @classmethod
@@ -380,8 +407,37 @@ _TOML_KEYS = {
     "system": {"geometry", "demo", "fragment_a", "charges", "multiplicities", "dimer_multiplicity"},
     "scan": {"coordinate", "atoms", "vector", "distances", "factors", "frames", "values"},
     "calculation": {"levels", "counterpoise", "forces", "decomposition", "decomposition_basis",
-                    "sapt_memory_limit_mb", "dispersion", "conv_tol"},
+                    "sapt_memory_limit_mb", "dispersion", "conv_tol", "memory_limit_mb", "settings"},
+    "calculation.settings": set(LEVEL_SETTINGS),
 }
+
+
+def _levels_for_forces(levels, open_shell: bool) -> tuple[LevelOfTheory, ...]:
+    """Levels as computed with forces. Every calculation of one interaction energy uses
+    the same integral treatment: analytic MP2 forces exist for fitted closed shells
+    (SCF and correlation on one fitting basis) and with exact integrals, so an MP2 level
+    of an open-shell dimer runs with exact integrals throughout (its label says so)."""
+    from .errors import NotAvailableError
+
+    out = []
+    for lv in levels:
+        if lv.method == "mp2":
+            if open_shell and (lv.scf_fitted or lv.correlation_fitting):
+                if lv.jk_auxbasis or lv.ri_auxbasis:
+                    raise NotAvailableError(
+                        f"levels: {lv.label!r}: MP2 forces of open-shell fragments use exact integrals; "
+                        "drop jk_auxbasis/ri_auxbasis")
+                lv = lv.with_exact_integrals()
+            elif lv.scf_fitted != bool(lv.correlation_fitting):
+                raise NotAvailableError(
+                    f"levels: {lv.label!r}: MP2 forces need density_fitting and correlation_fitting "
+                    "both true or both false")
+            elif lv.ri_auxbasis:
+                raise NotAvailableError(
+                    f"levels: {lv.label!r}: the DF-MP2 gradient fits the correlation on the SCF's "
+                    "fitting basis; drop ri_auxbasis (or set jk_auxbasis)")
+        out.append(lv)
+    return tuple(out)
 
 
 def _check_dispersion_list(schemes, levels) -> tuple[str, ...] | None:
@@ -479,6 +535,7 @@ def spec_from_mapping(data: dict, base_dir: str | os.PathLike = ".") -> ScanSpec
         raise InputError("calculation.levels: missing; give e.g. [\"hf/def2-svp\"]")
     if not isinstance(levels, list):
         raise InputError(f"calculation.levels: {levels!r} is not a list of 'method/basis' strings")
+    levels = _levels_with_settings(levels, calc.get("settings", {}))
     return ScanSpec(
         dimer=dimer,
         coordinate=coordinate,
@@ -493,7 +550,36 @@ def spec_from_mapping(data: dict, base_dir: str | os.PathLike = ".") -> ScanSpec
         dispersion=calc.get("dispersion"),
         conv_tol=calc.get("conv_tol", DEFAULT_CONV_TOL_HARTREE),
         name=data.get("name", ""),
+        memory_limit_mb=calc.get("memory_limit_mb", DEFAULT_MEMORY_LIMIT_MB),
     )
+
+
+def _levels_with_settings(items: list, common) -> list[LevelOfTheory]:
+    """Levels of a TOML ``levels`` list: strings, or inline tables ``{level = "...",
+    <setting> = ...}``; the ``[calculation.settings]`` table applies to every level,
+    an inline table's own settings override it."""
+    if not isinstance(common, dict):
+        raise InputError(f"calculation.settings: {common!r} must be a table")
+    _check_keys(common, "calculation.settings")
+    out = []
+    for k, item in enumerate(items):
+        own = {}
+        if isinstance(item, dict):
+            own = dict(item)
+            text = own.pop("level", None)
+            if not isinstance(text, str):
+                raise InputError(f"calculation.levels[{k}]: an inline table needs level = \"method/basis\"")
+            for key in own:
+                if key not in LEVEL_SETTINGS:
+                    raise InputError(f"calculation.levels[{k}].{key}: not a level setting "
+                                     f"(allowed: {', '.join(LEVEL_SETTINGS)})")
+        elif isinstance(item, str):
+            text = item
+        else:
+            raise InputError(f"calculation.levels[{k}]: {item!r} is not a 'method/basis' string")
+        level = parse_level(text)
+        out.append(apply_settings(level, {**common, **own}))
+    return out
 
 
 def load_spec_toml(path: str | os.PathLike) -> ScanSpec:
@@ -514,11 +600,24 @@ def load_spec_toml(path: str | os.PathLike) -> ScanSpec:
         atoms = [1, 5]
         factors = [0.9, 1.0, 1.2, 1.5, 2.0] # or distances = [...] in angstrom
         [calculation]
-        levels = ["hf/def2-svp"]
+        levels = ["hf/def2-svp", { level = "mp2/cc-pvdz", frozen_core = false }]
         counterpoise = true
         decomposition = "sapt0"             # optional: SAPT0 components at every point
         decomposition_basis = "jun-cc-pvdz" # optional
         sapt_memory_limit_mb = 8000         # optional
+        memory_limit_mb = 16000             # optional: refuse calculations estimated above it
+        [calculation.settings]              # optional: numerical settings of every level
+        density_fitting = true              # fitted SCF Coulomb/exchange
+        frozen_core = true                  # MP2, SCS-MP2, CCSD(T)
+        correlation_fitting = true          # fitted MP2/SCS-MP2 (CCSD(T) is always exact)
+        grid_level = 3                      # DFT grid, 0-9
+        grid_pruning = "nwchem"             # nwchem | sg1 | treutler | none
+        jk_auxbasis = "def2-universal-jkfit"  # SCF fitting basis (omit: pyscf's match)
+        ri_auxbasis = "cc-pvdz-ri"          # MP2 fitting basis (omit: the SCF's)
+
+    A level in ``levels`` is a ``"method/basis"`` string or an inline table with
+    ``level`` and its own settings, which override ``[calculation.settings]``.
+    Settings that do not apply to a level's method are ignored for it.
     """
     path = os.fspath(path)
     if not os.path.isfile(path):

@@ -138,7 +138,7 @@ ROWS = [
     spec("unknown functional", "'b3lypp' is unknown", calculation='levels = ["b3lypp/def2-svp"]'),
     spec("unknown basis", "'def2-nonsense' is unknown", calculation='levels = ["hf/def2-nonsense"]'),
     spec("level without basis", "'hf' is not of the form", calculation='levels = ["hf"]'),
-    spec("level not a string", "levels: 5 is not a 'method/basis' string", calculation="levels = [5]"),
+    spec("level not a string", "calculation.levels[0]: 5 is not a 'method/basis' string", calculation="levels = [5]"),
     spec("no level", "levels: no level of theory given", calculation="levels = []"),
     spec("level twice", "levels: 'hf/sto-3g' appears twice", calculation='levels = ["hf/sto-3g", "hf/sto-3g"]'),
     spec("dispersion on HF", "applies to DFT levels only", calculation='levels = ["hf-d3bj/def2-svp"]'),

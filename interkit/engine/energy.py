@@ -7,7 +7,6 @@ separately so a worker can seed the next point's SCF with it.
 
 from __future__ import annotations
 
-import dataclasses
 import time
 import traceback
 from collections import OrderedDict
@@ -52,6 +51,11 @@ def _share_grids(mf, job: Job) -> None:
         mf.grids = grids
 
 
+#: angular pruning schemes of the DFT grid by their level-setting name
+GRID_PRUNE_FUNCTIONS = {"nwchem": dft.gen_grid.nwchem_prune, "sg1": dft.gen_grid.sg1_prune,
+                        "treutler": dft.gen_grid.treutler_prune, "none": None}
+
+
 def _make_scf(mol, level: LevelOfTheory, conv_tol: float, unrestricted: bool | None = None):
     if unrestricted is None:
         unrestricted = mol.spin != 0
@@ -59,11 +63,13 @@ def _make_scf(mol, level: LevelOfTheory, conv_tol: float, unrestricted: bool | N
         mf = dft.UKS(mol) if unrestricted else dft.RKS(mol)
         mf.xc = level.functional
         mf._numint = CachingNumInt()
+        mf.grids.level = level.grid_level
+        mf.grids.prune = GRID_PRUNE_FUNCTIONS[level.grid_pruning]
     else:
         mf = scf.UHF(mol) if unrestricted else scf.RHF(mol)
     # CCSD(T) runs on a conventional reference so the correlation step is not fitted
-    if level.density_fitting and level.method != "ccsd(t)":
-        mf = mf.density_fit()
+    if level.scf_fitted:
+        mf = mf.density_fit(auxbasis=level.jk_auxbasis)
     mf.conv_tol = conv_tol
     mf.max_cycle = MAX_SCF_CYCLES
     mf.verbose = 0
@@ -119,18 +125,39 @@ def converge_scf(mf, guess=None) -> tuple[str, str]:
     return "failed", "SCF did not converge (DIIS, level shift with damping, second-order solver)"
 
 
-def _frozen_core(mol) -> int:
+def _frozen_core(mol, level: LevelOfTheory | None = None) -> int:
     # chemcore counts real atoms only (ghosts have no electrons) and respects ECPs
+    if level is not None and not level.frozen_core:
+        return 0
     return int(elements.chemcore(mol))
 
 
+def mp2_solver(mf, level: LevelOfTheory):
+    """pyscf MP2 object of the level: fitted (on ``ri_auxbasis``, else the SCF's own
+    fitting basis or pyscf's RI basis) or with exact integrals."""
+    from pyscf import df
+    from pyscf.mp import dfmp2, dfump2
+
+    unrestricted = is_unrestricted(mf)
+    if not level.correlation_fitting:
+        # pyscf's MP2 classes take (ia|jb) from a fitted SCF's fitting tensor: hand them
+        # the same orbitals on an SCF object without it, so the integrals are exact
+        base = mf.undo_df() if getattr(mf, "with_df", None) is not None else mf
+        return mp.ump2.UMP2(base) if unrestricted else mp.mp2.RMP2(base)
+    # the fitted classes use the SCF's own fitting tensor, or pyscf's RI basis
+    solver = dfump2.DFUMP2(mf) if unrestricted else dfmp2.DFMP2(mf)
+    if level.ri_auxbasis:
+        solver.with_df = df.DF(mf.mol, auxbasis=level.ri_auxbasis)
+    return solver
+
+
 def correlation_energy(mf, level: LevelOfTheory) -> float:
-    """Frozen-core correlation energy (hartree) of a converged SCF for MP2-type or
-    CCSD(T) levels."""
+    """Correlation energy (hartree; frozen core unless the level says otherwise) of a
+    converged SCF for MP2-type or CCSD(T) levels."""
     mol = mf.mol
-    ncore = _frozen_core(mol)
+    ncore = _frozen_core(mol, level)
     if level.method in ("mp2", "scs-mp2"):
-        solver = (mp.UMP2(mf) if is_unrestricted(mf) else mp.MP2(mf)).density_fit()
+        solver = mp2_solver(mf, level)
         solver.frozen = ncore or None
         solver.verbose = 0
         solver.kernel()
@@ -190,10 +217,9 @@ def run_energy_job(job: Job, guess=None) -> tuple[dict, object]:
         mol = build_molecule(job)
         record["nao"] = int(mol.nao)
         level = job.level
-        if want_gradient and level.method == "mp2" and unrestricted:
-            # open shells: pyscf's conventional UMP2 gradient (conventional reference);
-            # closed shells use the DF-MP2 gradient of .mp2_gradient
-            level = dataclasses.replace(level, density_fitting=False)
+        if want_gradient and level.method == "mp2" and unrestricted and level.correlation_fitting:
+            # the plan gives open-shell MP2 force levels exact integrals throughout
+            raise ValueError("no DF-MP2 gradient for open shells; the level needs exact integrals")
         # forces are first order in the density error, energies second order: gradient
         # jobs converge at least to GRADIENT_CONV_TOL_HARTREE
         conv_tol = min(job.conv_tol, GRADIENT_CONV_TOL_HARTREE) if want_gradient else job.conv_tol
@@ -257,15 +283,15 @@ def _gradient_outputs(job: Job, mf, level: LevelOfTheory, density, record: dict)
         if es is None:
             es = electrostatic_forces(mol, density)
         record["electrostatic_force_hartree_per_bohr"] = es.tolist()
-    elif level.method == "mp2" and level.density_fitting:
+    elif level.method == "mp2" and level.correlation_fitting:
         from .mp2_gradient import fitted_mp2_gradient
 
-        e_corr, grad, _, es = fitted_mp2_gradient(mf, _frozen_core(mol), relaxed_density=True)
+        e_corr, grad, _, es = fitted_mp2_gradient(mf, _frozen_core(mol, level), relaxed_density=True)
         e_disp = 0.0
         # Hellmann–Feynman part: the electrostatic force of the relaxed MP2 density
         record["electrostatic_force_hartree_per_bohr"] = es.tolist()
     elif level.method == "mp2":
-        e_corr, grad = mp2_gradient(mf, _frozen_core(mol))
+        e_corr, grad = mp2_gradient(mf, _frozen_core(mol, level))
         e_disp = 0.0
         record["electrostatic_force_hartree_per_bohr"] = None  # needs the relaxed density
     else:

@@ -359,7 +359,7 @@ def xc_gradient(ni, mol, grids, xc: str, dm: np.ndarray) -> np.ndarray:
 
 def mp2_gradient(mf, frozen: int | None) -> tuple[float, np.ndarray]:
     """Conventional (not density-fitted) MP2 correlation energy and total gradient."""
-    solver = mp.UMP2(mf) if np.ndim(mf.mo_coeff) == 3 else mp.MP2(mf)  # UHF also at 2S = 0
+    solver = mp.ump2.UMP2(mf) if np.ndim(mf.mo_coeff) == 3 else mp.mp2.RMP2(mf)  # UHF also at 2S = 0
     solver.frozen = frozen or None
     solver.verbose = 0
     solver.kernel()

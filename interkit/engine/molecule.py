@@ -1,22 +1,19 @@
-"""Build a pyscf Mole from a job: ghost atoms, basis and def2 effective core potentials."""
+"""Build a pyscf Mole from a job: ghost atoms, basis and effective core potentials."""
 
 from __future__ import annotations
 
 from pyscf import gto
 
-from ..geometry import atomic_number
+from ..levels import ecp_assignment
 from ..plan import Job
 from ..units import ANGSTROM_TO_BOHR
 
-#: def2 basis sets use effective core potentials from rubidium (Z = 37) onwards
-DEF2_ECP_FIRST_Z = 37
-
 
 def ecp_for(basis: str, symbols) -> dict[str, str]:
-    """ECP assignment a def2 basis needs for the given real-atom symbols."""
-    if not basis.lower().startswith("def2-"):
-        return {}
-    return {s: basis for s in set(symbols) if atomic_number(s) >= DEF2_ECP_FIRST_Z}
+    """ECP assignment of the given real-atom symbols: every element whose definition of
+    ``basis`` in pyscf's library carries an effective core potential (LANL2DZ, SBKJC,
+    CRENBL, cc-pVXZ-PP, def2 from Rb on, ...)."""
+    return ecp_assignment(basis, list(symbols))
 
 
 def build_molecule(job: Job, max_memory_mb: int = 4000) -> gto.Mole:
@@ -34,8 +31,8 @@ def build_molecule(job: Job, max_memory_mb: int = 4000) -> gto.Mole:
     mol.atom = atoms
     mol.unit = "Bohr"
     mol.basis = job.level.basis
-    real = [s for s, g in zip(job.symbols, job.ghost) if not g]
-    ecp = ecp_for(job.level.basis, real)
+    # keyed by element symbol: ghost atoms ("ghost-I") get basis functions and no ECP
+    ecp = dict(job.ecp)
     if ecp:
         mol.ecp = ecp
     mol.charge = job.charge

@@ -20,7 +20,8 @@ from ..coordinates import AtomPair, CentreOfMass
 from ..demo import demo_catalog, list_demos, load_demo
 from ..errors import InputError, InterkitError
 from ..geometry import Dimer
-from ..spec import ScanSpec
+from ..levels import parse_level
+from ..spec import DEFAULT_MEMORY_LIMIT_MB, ScanSpec
 from .curves import CurvePanel
 from .explorer import ScanExplorer
 from .runner import BackgroundScan, count_calculations
@@ -171,6 +172,24 @@ class ScanLauncher(widgets.VBox):
                                                "d3zero, d3bj, d4, their -atm variants, none",
                                        layout=lay(width="440px"))
         self.dispersion.add_class("interkit-dispersion")
+        # numerical settings applied to every level (see LevelOfTheory; defaults = pyscf's)
+        self.scf_fitting = widgets.Checkbox(value=True, description="fitted SCF", indent=False,
+                                            layout=lay(width="110px"))
+        self.frozen_core = widgets.Checkbox(value=True, description="frozen core", indent=False,
+                                            layout=lay(width="110px"))
+        self.correlation_fitting = widgets.Checkbox(value=True, description="fitted MP2", indent=False,
+                                                    layout=lay(width="110px"))
+        self.grid_level = widgets.BoundedIntText(value=3, min=0, max=9, description="DFT grid",
+                                                 layout=lay(width="150px"))
+        self.grid_pruning = widgets.Dropdown(options=["nwchem", "sg1", "treutler", "none"], value="nwchem",
+                                             description="pruning", layout=lay(width="200px"))
+        self.jk_auxbasis = widgets.Text(description="JK fit", placeholder="default: matches basis",
+                                        layout=lay(width="215px"))
+        self.ri_auxbasis = widgets.Text(description="MP2 fit", placeholder="default: the SCF's",
+                                        layout=lay(width="215px"))
+        self.memory_limit = widgets.BoundedFloatText(value=DEFAULT_MEMORY_LIMIT_MB, min=1, max=1e7,
+                                                     description="memory MB", layout=lay(width="200px"),
+                                                     tooltip="refuse calculations estimated above this")
         self.cache = widgets.Text(value=os.fspath(cache) if cache else "", description="store",
                                   placeholder="optional folder that keeps finished calculations",
                                   layout=lay(width="440px"))
@@ -207,7 +226,9 @@ class ScanLauncher(widgets.VBox):
         self.coordinate.observe(self._on_coordinate, "value")
         self.grid_mode.observe(self._on_grid_mode, "value")
         for w in (self.grid, self.levels, self.counterpoise, self.workers, self.seconds_per_calc, self.forces,
-                  self.decomposition, self.dispersion):
+                  self.decomposition, self.dispersion, self.scf_fitting, self.frozen_core,
+                  self.correlation_fitting, self.grid_level, self.grid_pruning, self.jk_auxbasis,
+                  self.ri_auxbasis, self.memory_limit):
             w.observe(lambda _c: self.update_estimate(), "value")
         self.levels.observe(lambda _c: self._guess_seconds(), "value")
         self.run_button.on_click(lambda _b: self.run())
@@ -223,7 +244,10 @@ class ScanLauncher(widgets.VBox):
             h("<b>2 · Scan coordinate and grid</b>"), self.coordinate, widgets.HBox([self.atom_a, self.atom_b]),
             self.grid_mode, self.grid,
             h("<b>3 · Calculation</b>"), self.levels, self.counterpoise, self.workers,
-            self.dispersion, widgets.HBox([self.forces, self.decomposition]), self.cache,
+            self.dispersion, widgets.HBox([self.forces, self.decomposition]),
+            widgets.HBox([self.scf_fitting, self.frozen_core, self.correlation_fitting]),
+            widgets.HBox([self.grid_level, self.grid_pruning]), widgets.HBox([self.jk_auxbasis, self.ri_auxbasis]),
+            self.memory_limit, self.cache,
             widgets.HBox([self.seconds_per_calc, self.estimate]),
         ], layout=lay(width="470px"))
         super().__init__(children=[
@@ -417,11 +441,22 @@ class ScanLauncher(widgets.VBox):
         if self.dispersion.value.strip():
             extras.append("every dispersion scheme on the same SCFs")
         detail = f" ({', '.join(extras)})" if extras else ""
+        memory = ""
+        if self.dimer is not None:
+            try:
+                from ..engine.cost import check_resources
+
+                spec = self.build_spec()
+                peak = max(c["peak_memory_mb"] for c in check_resources(spec).values())
+                memory = f"<br>largest calculation about {peak:.0f} MB (limit {spec.memory_limit_mb:g} MB)"
+            except InterkitError as exc:
+                self.estimate.value = error_html(str(exc))
+                return
         self.estimate.value = (
             f'<div><b>{n}</b> calculations{detail} = {n_levels} level(s) × {n_points} points × {per} '
             "+ 2 per level"
             f"<br>about {_duration(wall)} with {self.workers.value} worker(s) "
-            f"(rough: {self.seconds_per_calc.value:g} s per calculation)</div>")
+            f"(rough: {self.seconds_per_calc.value:g} s per calculation){memory}</div>")
 
     def build_spec(self) -> ScanSpec:
         """The ScanSpec the form describes (raises InterkitError on bad input)."""
@@ -429,7 +464,14 @@ class ScanLauncher(widgets.VBox):
             raise InputError("dimer: load a bundled dimer, an XYZ file or pasted XYZ first")
         grid = parse_grid(self.grid.value, self.grid_mode.value.split()[0])
         kwargs = {"factors": grid} if self.grid_mode.value == GRID_MODES[0] else {"distances": grid}
-        return ScanSpec(dimer=self.dimer, coordinate=self.scan_coordinate(), levels=self._level_list(),
+        settings = {"density_fitting": bool(self.scf_fitting.value), "frozen_core": bool(self.frozen_core.value),
+                    "correlation_fitting": bool(self.correlation_fitting.value),
+                    "grid_level": int(self.grid_level.value), "grid_pruning": self.grid_pruning.value,
+                    "jk_auxbasis": self.jk_auxbasis.value.strip() or None,
+                    "ri_auxbasis": self.ri_auxbasis.value.strip() or None}
+        levels = [parse_level(text, **settings) for text in self._level_list()]
+        return ScanSpec(dimer=self.dimer, coordinate=self.scan_coordinate(), levels=levels,
+                        memory_limit_mb=float(self.memory_limit.value),
                         counterpoise=bool(self.counterpoise.value), forces=bool(self.forces.value),
                         decomposition="sapt0" if self.decomposition.value else None,
                         dispersion=[t.strip() for t in self.dispersion.value.split(",") if t.strip()] or None,
