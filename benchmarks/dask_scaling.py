@@ -62,7 +62,7 @@ def main() -> None:
     from pyscf import lib
     from threadpoolctl import threadpool_limits
 
-    from interkit.executors_dask import local_cluster
+    from interkit.run.dask import local_cluster
 
     load = os.getloadavg()
     threadpool_limits(1)

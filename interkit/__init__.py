@@ -21,8 +21,7 @@ from __future__ import annotations
 __version__ = "0.1.0"
 
 from . import analysis
-from .coordinates import AtomPair, CentreOfMass, Frames, ScanCoordinate, Vector
-from .demo import list_demos, load_demo
+from .data.schema import open_scan, save_scan, validate
 from .errors import (
     ConvergenceError,
     InputError,
@@ -32,14 +31,15 @@ from .errors import (
     ResourceError,
     StoreError,
 )
-from .export import export_scan
-from .geometry import Dimer
-from .levels import LevelOfTheory, parse_level
-from .provenance import rerun_scan, verify_scan
-from .report import write_report
-from .results import open_scan, save_scan, validate
-from .run import run_scan
-from .spec import ScanSpec, load_spec_toml
+from .model.coordinates import AtomPair, CentreOfMass, Frames, ScanCoordinate, Vector
+from .model.demo import list_demos, load_demo
+from .model.geometry import Dimer
+from .model.levels import LevelOfTheory, parse_level
+from .model.spec import ScanSpec, load_spec_toml
+from .run.scan import run_scan
+from .share.export import export_scan
+from .share.provenance import rerun_scan, verify_scan
+from .share.report import write_report
 from .units import convert_energy
 
 __all__ = [

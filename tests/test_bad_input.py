@@ -10,7 +10,7 @@ import textwrap
 import pytest
 
 import interkit as ik
-from interkit.cli import main
+from interkit.cli.main import main
 
 WATER_HF = """4
 hydrogen fluoride dimer
@@ -139,12 +139,12 @@ def test_api_errors_are_typed(small_dimer):
 
 
 def test_cli_usage_error_has_no_traceback(tmp_path):
-    out = subprocess.run([sys.executable, "-m", "interkit.cli", "scan", str(tmp_path / "missing.toml"),
+    out = subprocess.run([sys.executable, "-m", "interkit.cli.main", "scan", str(tmp_path / "missing.toml"),
                           "-o", str(tmp_path / "x.nc")], capture_output=True, text=True)
     assert out.returncode == 2
     assert "Traceback" not in out.stderr
     assert out.stderr.strip() == f"interkit: error: spec file: {str(tmp_path / 'missing.toml')!r} does not exist"
-    out = subprocess.run([sys.executable, "-m", "interkit.cli", "frobnicate"], capture_output=True, text=True)
+    out = subprocess.run([sys.executable, "-m", "interkit.cli.main", "frobnicate"], capture_output=True, text=True)
     assert out.returncode == 2 and "Traceback" not in out.stderr
     assert textwrap.dedent(out.stderr).count("\n") == 1
 
@@ -214,9 +214,9 @@ RUN_AND_STORE_CASES = [
 
 @pytest.mark.parametrize("case,args,expected", RUN_AND_STORE_CASES, ids=[c[0] for c in RUN_AND_STORE_CASES])
 def test_scheduler_and_store_commands_refuse_bad_input(tmp_path, capsys, monkeypatch, case, args, expected):
-    import interkit.executors_dask
+    import interkit.run.dask
 
-    monkeypatch.setattr(interkit.executors_dask, "CONNECT_TIMEOUT_S", 1.0)  # nothing listens on port 9
+    monkeypatch.setattr(interkit.run.dask, "CONNECT_TIMEOUT_S", 1.0)  # nothing listens on port 9
     spec_dir = tmp_path / "spec"
     spec_dir.mkdir()
     (spec_dir / "g.xyz").write_text(WATER_HF)

@@ -18,9 +18,9 @@ from conftest import s22_dimer
 from pyscf import lib
 
 import interkit as ik
-from interkit.decomposition import COMPONENTS, TERM_VARIABLES, decomposition_report
+from interkit.data.sapt0 import COMPONENTS, TERM_VARIABLES, decomposition_report
 from interkit.engine.sapt0 import sapt0_terms
-from interkit.plan import DECOMPOSITION_CONV_TOL_HARTREE, plan_scan
+from interkit.run.plan import DECOMPOSITION_CONV_TOL_HARTREE, plan_scan
 from interkit.units import HARTREE_TO_KCAL_PER_MOL
 
 lib.num_threads(1)
@@ -217,7 +217,7 @@ def test_plot_components(water_scan):
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from interkit.plot_decomposition import COMPONENT_COLOURS, plot_components
+    from interkit.plot.components import COMPONENT_COLOURS, plot_components
 
     ax = plot_components(water_scan, unit="kJ/mol", level="hf/sto-3g")
     lines = {ln.get_label(): ln for ln in ax.get_lines()}
@@ -259,12 +259,12 @@ def test_cli_scan_and_show_with_decomposition(tmp_path):
         sapt_memory_limit_mb = 2000
         """))
     env = dict(os.environ, OMP_NUM_THREADS="1", OPENBLAS_NUM_THREADS="1")
-    out = subprocess.run([sys.executable, "-m", "interkit.cli", "scan", str(tmp_path / "spec.toml"), "-o",
+    out = subprocess.run([sys.executable, "-m", "interkit.cli.main", "scan", str(tmp_path / "spec.toml"), "-o",
                           str(tmp_path / "scan.nc"), "--cache", str(tmp_path / "store"), "--quiet",
                           "--workers", "2"], capture_output=True, text=True, env=env, timeout=300)
     assert out.returncode == 0, out.stderr
     assert "SAPT0/cc-pvdz components at" in out.stdout
-    show = subprocess.run([sys.executable, "-m", "interkit.cli", "show", str(tmp_path / "scan.nc")],
+    show = subprocess.run([sys.executable, "-m", "interkit.cli.main", "show", str(tmp_path / "scan.nc")],
                           capture_output=True, text=True, env=env, timeout=120)
     assert show.returncode == 0, show.stderr
     lines = show.stdout.splitlines()

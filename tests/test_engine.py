@@ -9,7 +9,7 @@ from pyscf import dft, scf
 import interkit as ik
 from interkit.engine.energy import _make_scf, converge_scf, run_energy_job
 from interkit.engine.molecule import build_molecule
-from interkit.plan import _job_for
+from interkit.run.plan import _job_for
 
 OH_WATER = """5
 hydroxyl radical and water, test geometry

@@ -1,4 +1,4 @@
-"""Tests of interkit.fits: model fits of E(R) and the long-range C6 estimate.
+"""Tests of interkit.analysis.fits: model fits of E(R) and the long-range C6 estimate.
 
 Synthetic curves are generated from known parameters with a fixed random seed; each
 check names where its numbers come from.
@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 import xarray as xr
 
-from interkit import fits
+from interkit.analysis import fits
 from interkit.errors import ConvergenceError, InputError
 
 # Water-dimer scale: De = 5.0 kcal/mol, R(O...O) = 2.90 A (Halkier et al., Theor. Chem.

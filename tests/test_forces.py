@@ -12,8 +12,8 @@ import pytest
 from conftest import s22_dimer
 
 import interkit as ik
-import interkit.analysis
-import interkit.plan
+import interkit.analysis.minima
+import interkit.run.plan
 from interkit.units import BOHR_TO_ANGSTROM, HARTREE_TO_KCAL_PER_MOL
 
 #: 1 hartree/bohr in kcal/mol/angstrom

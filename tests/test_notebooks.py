@@ -56,7 +56,7 @@ def test_notebook_is_stored_without_outputs(name):
 def saved_scan(tmp_path_factory):
     """A small real scan on disk for 03-reopen (HF/STO-3G, 4 points)."""
     import interkit as ik
-    from interkit.demo import demo_catalog
+    from interkit.model.demo import demo_catalog
 
     i, j = demo_catalog()["water_methanol"]["contact"]
     spec = ik.ScanSpec(dimer=ik.load_demo("water_methanol"), coordinate=ik.AtomPair(i, j),

@@ -11,9 +11,9 @@ import numpy as np
 import pytest
 
 import interkit as ik
-from interkit import provenance
-from interkit.cli import main
-from interkit.plan import plan_scan
+from interkit.cli.main import main
+from interkit.run.plan import plan_scan
+from interkit.share import provenance
 
 
 @pytest.fixture(scope="module")

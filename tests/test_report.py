@@ -16,8 +16,8 @@ import pytest
 from conftest import hf_dimer
 
 import interkit as ik
-from interkit import export, report
-from interkit.cli import main
+from interkit.cli.main import main
+from interkit.share import export, report
 from interkit.units import ANGSTROM_TO_BOHR
 
 HOSTILE = 'HF dimer <script>alert(1)</script> & "friends"'

@@ -17,10 +17,10 @@ import pytest
 from conftest import HF_DIMER_XYZ
 
 import interkit as ik
-from interkit import store as store_module
-from interkit.cli import main
-from interkit.plan import plan_scan
-from interkit.store import ResultStore, parse_size
+from interkit.cli.main import main
+from interkit.run import store as store_module
+from interkit.run.plan import plan_scan
+from interkit.run.store import ResultStore, parse_size
 
 HF_DIMER = HF_DIMER_XYZ
 
@@ -57,7 +57,7 @@ def test_two_processes_with_overlapping_scans_share_one_store(tmp_path):
     store = tmp_path / "store"
     env = dict(os.environ, OMP_NUM_THREADS="1")
     procs = {name: subprocess.Popen(
-        [sys.executable, "-m", "interkit.cli", "scan", str(tmp_path / f"{name}.toml"), "-o",
+        [sys.executable, "-m", "interkit.cli.main", "scan", str(tmp_path / f"{name}.toml"), "-o",
          str(tmp_path / f"{name}.nc"), "--cache", str(store), "--serial", "--quiet"],
         env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True) for name in grids}
     for proc in procs.values():
@@ -79,7 +79,7 @@ def test_two_processes_with_overlapping_scans_share_one_store(tmp_path):
 
 WRITER = """
 import sys, time
-from interkit.store import ResultStore
+from interkit.run.store import ResultStore
 root, tag, rounds = sys.argv[1], sys.argv[2], int(sys.argv[3])
 store = ResultStore(root)
 keys = [f"{i:02d}" + "ab" * 31 for i in range(8)]
@@ -91,7 +91,7 @@ for r in range(rounds):
 
 READER = """
 import sys, warnings
-from interkit.store import ResultStore
+from interkit.run.store import ResultStore
 warnings.simplefilter("error")
 root, rounds = sys.argv[1], int(sys.argv[2])
 store = ResultStore(root)

@@ -25,7 +25,7 @@ def test_molecules_use_our_bohr_not_pyscfs(water_dimer):
     import numpy as np
 
     from interkit.engine.molecule import build_molecule
-    from interkit.plan import _job_for
+    from interkit.run.plan import _job_for
 
     job = _job_for(water_dimer, range(6), (), 0, 0, ik.parse_level("hf/sto-3g"), 1e-10)
     mol = build_molecule(job)

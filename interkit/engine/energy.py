@@ -16,8 +16,8 @@ import numpy as np
 from pyscf import cc, dft, mp, scf
 from pyscf.data import elements
 
-from ..levels import SCS_OPPOSITE_SPIN, SCS_SAME_SPIN, LevelOfTheory
-from ..plan import Job
+from ..model.levels import SCS_OPPOSITE_SPIN, SCS_SAME_SPIN, LevelOfTheory
+from ..run.plan import Job
 from .dispersion import dispersion_energy_and_gradient
 from .molecule import build_molecule
 from .numint_cache import CachingNumInt

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from pyscf import gto
 
-from ..geometry import atomic_number
-from ..plan import Job
+from ..model.geometry import atomic_number
+from ..run.plan import Job
 from ..units import ANGSTROM_TO_BOHR
 
 #: def2 basis sets use effective core potentials from rubidium (Z = 37) onwards

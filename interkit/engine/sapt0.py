@@ -58,7 +58,7 @@ import numpy as np
 from pyscf import df, gto, lib, scf
 
 from ..errors import ConvergenceError, InputError, NotAvailableError, ResourceError
-from ..geometry import Dimer
+from ..model.geometry import Dimer
 from ..units import ANGSTROM_TO_BOHR
 
 #: residual norm at which the coupled-perturbed Hartree–Fock equations count as solved
