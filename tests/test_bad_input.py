@@ -139,12 +139,12 @@ def test_api_errors_are_typed(small_dimer):
 
 
 def test_cli_usage_error_has_no_traceback(tmp_path):
-    out = subprocess.run([sys.executable, "-m", "interkit.cli.main", "scan", str(tmp_path / "missing.toml"),
+    out = subprocess.run([sys.executable, "-m", "interkit.cli", "scan", str(tmp_path / "missing.toml"),
                           "-o", str(tmp_path / "x.nc")], capture_output=True, text=True)
     assert out.returncode == 2
     assert "Traceback" not in out.stderr
     assert out.stderr.strip() == f"interkit: error: spec file: {str(tmp_path / 'missing.toml')!r} does not exist"
-    out = subprocess.run([sys.executable, "-m", "interkit.cli.main", "frobnicate"], capture_output=True, text=True)
+    out = subprocess.run([sys.executable, "-m", "interkit.cli", "frobnicate"], capture_output=True, text=True)
     assert out.returncode == 2 and "Traceback" not in out.stderr
     assert textwrap.dedent(out.stderr).count("\n") == 1
 

@@ -26,7 +26,7 @@ counterpoise = true
 
 
 def _cli(*args, cwd=None):
-    return subprocess.run([sys.executable, "-m", "interkit.cli.main", *args], capture_output=True, text=True,
+    return subprocess.run([sys.executable, "-m", "interkit.cli", *args], capture_output=True, text=True,
                           cwd=cwd, timeout=600)
 
 

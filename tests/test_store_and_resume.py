@@ -48,7 +48,7 @@ def test_killed_scan_resumes_computing_only_what_is_missing(tmp_path, small_dime
     spec_path.write_text(SPEC_TOML)
     store = tmp_path / "store"
     proc = subprocess.Popen(
-        [sys.executable, "-m", "interkit.cli.main", "scan", str(spec_path), "-o", str(tmp_path / "scan.nc"),
+        [sys.executable, "-m", "interkit.cli", "scan", str(spec_path), "-o", str(tmp_path / "scan.nc"),
          "--cache", str(store), "--workers", "2", "--quiet"],
         start_new_session=True, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
     deadline = time.time() + 300

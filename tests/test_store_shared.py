@@ -57,7 +57,7 @@ def test_two_processes_with_overlapping_scans_share_one_store(tmp_path):
     store = tmp_path / "store"
     env = dict(os.environ, OMP_NUM_THREADS="1")
     procs = {name: subprocess.Popen(
-        [sys.executable, "-m", "interkit.cli.main", "scan", str(tmp_path / f"{name}.toml"), "-o",
+        [sys.executable, "-m", "interkit.cli", "scan", str(tmp_path / f"{name}.toml"), "-o",
          str(tmp_path / f"{name}.nc"), "--cache", str(store), "--serial", "--quiet"],
         env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True) for name in grids}
     for proc in procs.values():

@@ -7,15 +7,15 @@ decomposition basis and independent of the levels of theory, gives the variables
 =====================  ==============================================================
 variable               meaning
 =====================  ==============================================================
-sapt_elst10            E(10)elst, electrostatics of the unperturbed monomers
-sapt_exch10            E(10)exch, first-order exchange
-sapt_exch10_s2         E(10)exch in the single-exchange (S^2) approximation
-sapt_ind20r            E(20)ind,resp, induction with orbital response, both directions
-sapt_ind20r_ab/_ba     its parts: A polarised by B / B polarised by A
-sapt_exch_ind20r       E(20)exch-ind,resp (S^2)
-sapt_disp20            E(20)disp
-sapt_exch_disp20       E(20)exch-disp (S^2)
-sapt_dhf               δHF: HF interaction minus the first- and second-order SCF terms
+sapt_e10_elst            E(10)elst, electrostatics of the unperturbed monomers
+sapt_e10_exch            E(10)exch, first-order exchange
+sapt_e10_exch_s2         E(10)exch in the single-exchange (S^2) approximation
+sapt_e20_ind_resp            E(20)ind,resp, induction with orbital response, both directions
+sapt_e20_ind_resp_a/_ba     its parts: A polarised by B / B polarised by A
+sapt_e20_exind_resp       E(20)exch-ind,resp (S^2)
+sapt_e20_disp            E(20)disp
+sapt_e20_exdisp       E(20)exch-disp (S^2)
+sapt_delta_hf               δHF: HF interaction minus the first- and second-order SCF terms
 sapt_e_int_hf          counterpoise-corrected HF interaction energy in the same basis
 e_elst                 electrostatics = elst10
 e_exch                 exchange = exch10
@@ -40,16 +40,16 @@ from ..units import HARTREE_TO_KCAL_PER_MOL
 
 #: Dataset variable -> (term key of the SAPT0 record, description)
 TERM_VARIABLES = {
-    "sapt_elst10": ("elst10", "E(10)elst: electrostatics of the unperturbed monomers"),
-    "sapt_exch10": ("exch10", "E(10)exch: first-order exchange"),
-    "sapt_exch10_s2": ("exch10_s2", "E(10)exch(S^2): first-order exchange, single-exchange approximation"),
-    "sapt_ind20r": ("ind20r", "E(20)ind,resp: induction with orbital response (CPHF), both directions"),
-    "sapt_ind20r_ab": ("ind20r_ab", "E(20)ind,resp of A polarised by the field of B"),
-    "sapt_ind20r_ba": ("ind20r_ba", "E(20)ind,resp of B polarised by the field of A"),
-    "sapt_exch_ind20r": ("exch_ind20r", "E(20)exch-ind,resp (S^2): exchange-induction"),
-    "sapt_disp20": ("disp20", "E(20)disp: dispersion"),
-    "sapt_exch_disp20": ("exch_disp20", "E(20)exch-disp (S^2): exchange-dispersion"),
-    "sapt_dhf": ("dhf", "delta HF: HF interaction minus the first- and second-order SCF terms"),
+    "sapt_e10_elst": ("elst10", "E(10)elst: electrostatics of the unperturbed monomers"),
+    "sapt_e10_exch": ("exch10", "E(10)exch: first-order exchange"),
+    "sapt_e10_exch_s2": ("exch10_s2", "E(10)exch(S^2): first-order exchange, single-exchange approximation"),
+    "sapt_e20_ind_resp": ("ind20r", "E(20)ind,resp: induction with orbital response (CPHF), both directions"),
+    "sapt_e20_ind_resp_a": ("ind20r_ab", "E(20)ind,resp of A polarised by the field of B"),
+    "sapt_e20_ind_resp_b": ("ind20r_ba", "E(20)ind,resp of B polarised by the field of A"),
+    "sapt_e20_exind_resp": ("exch_ind20r", "E(20)exch-ind,resp (S^2): exchange-induction"),
+    "sapt_e20_disp": ("disp20", "E(20)disp: dispersion"),
+    "sapt_e20_exdisp": ("exch_disp20", "E(20)exch-disp (S^2): exchange-dispersion"),
+    "sapt_delta_hf": ("dhf", "delta HF: HF interaction minus the first- and second-order SCF terms"),
     "sapt_e_int_hf": ("e_int_hf", "counterpoise-corrected HF interaction energy in the decomposition basis"),
 }
 #: grouped components: variable -> (term key, description)
@@ -160,22 +160,36 @@ def components_at(ds: xr.Dataset, index: int, unit: str = "kcal/mol", level: str
 
 def decomposition_report(ds: xr.Dataset) -> list[str]:
     """Text lines with the SAPT0 components at the point of lowest SAPT0 energy
-    (empty if the Dataset has no decomposition)."""
+    (empty if the Dataset has no decomposition).
+
+    The components are grouped by what they do at that point: the attractive ones,
+    largest first, each with its share of the total attraction, then the repulsive
+    ones, then the net SAPT0 (and sSAPT0) energy.
+    """
     if not has_decomposition(ds) or "e_sapt0" not in ds.variables or "level" in ds["e_sapt0"].dims:
         return []
     total = np.asarray(ds["e_sapt0"].values, dtype=float)
     basis = ds.attrs.get("decomposition_basis", "?")
     if not np.any(np.isfinite(total)):
-        return [f"SAPT0/{basis}: no point has a decomposition (see sapt_status_detail)"]
+        return [f"SAPT0 decomposition ({basis}): no point has one (see sapt_status_detail)"]
     i = int(np.nanargmin(total))
     r = float(ds["distance"].values[i])
     parts = components_at(ds, i)
-    lines = [f"SAPT0/{basis} components at {r:.3f} Å (lowest SAPT0 energy on the grid), kcal/mol:"]
-    for name in COMPONENTS:
-        lines.append(f"  {COMPONENT_NAMES[name]:<16s} {parts[name]:>10.3f}")
-    lines.append(f"  {'SAPT0 total':<16s} {parts['e_sapt0']:>10.3f}")
+    attractive = sorted((n for n in COMPONENTS if parts[n] < 0), key=lambda n: parts[n])
+    repulsive = [n for n in COMPONENTS if parts[n] >= 0]
+    attraction = sum(parts[n] for n in attractive)
+    lines = [f"SAPT0 decomposition ({basis}) at R = {r:.3f} Å, the grid point of lowest SAPT0 energy; kcal/mol"]
+    for k, name in enumerate(attractive):
+        group = "attraction" if k == 0 else ""
+        share = 100.0 * parts[name] / attraction if attraction else float("nan")
+        lines.append(f"  {group:<11s} {COMPONENT_NAMES[name]:<15s} {parts[name]:+10.3f}   {share:3.0f} % of the attraction")
+    for k, name in enumerate(repulsive):
+        group = "repulsion" if k == 0 else ""
+        lines.append(f"  {group:<11s} {COMPONENT_NAMES[name]:<15s} {parts[name]:+10.3f}")
+    net = f"  {'net':<11s} {'SAPT0':<15s} {parts['e_sapt0']:+10.3f}"
     if "e_ssapt0" in ds.variables:
-        lines.append(f"  {'sSAPT0 total':<16s} {float(ds['e_ssapt0'].values[i]):>10.3f}")
+        net += f"   (sSAPT0 {float(ds['e_ssapt0'].values[i]):+.3f})"
+    lines.append(net)
     n_failed = int((ds["sapt_status"] == "failed").sum()) if "sapt_status" in ds.variables else 0
     if n_failed:
         lines.append(f"  ({n_failed} point(s) without a decomposition)")

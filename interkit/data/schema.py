@@ -42,7 +42,8 @@ from ..errors import InputError
 from ..run.plan import ROLE_LABELS, ScanPlan
 from ..units import CODATA_EDITION, HARTREE_TO_KCAL_PER_MOL
 
-SCHEMA_VERSION = "interkit-scan/1"
+#: version 2 renamed the SAPT0 term variables (files of version 1 are converted on reading)
+SCHEMA_VERSION = "interkit-scan/2"
 
 CAUTION = (
     "Computed interaction energies are model results: they carry the errors of the "
@@ -300,7 +301,12 @@ def save_scan(ds: xr.Dataset, path: str | os.PathLike) -> None:
 
 
 def open_scan(path: str | os.PathLike) -> xr.Dataset:
-    """Read a scan Dataset written by :func:`save_scan` (fully loaded, file closed)."""
+    """Read a scan Dataset written by :func:`save_scan` (fully loaded, file closed).
+
+    A file of an earlier schema version is converted to the current one with an
+    :class:`~interkit.errors.InterkitWarning` that says so (attribute
+    ``converted_from_schema``); see :mod:`interkit.data.upgrade`.
+    """
     path = os.fspath(path)
     if not os.path.isfile(path):
         raise InputError(f"scan file: {path!r} does not exist")
@@ -309,6 +315,15 @@ def open_scan(path: str | os.PathLike) -> xr.Dataset:
             ds = handle.load()
     except (OSError, ValueError) as exc:
         raise InputError(f"scan file {path!r}: not a readable netCDF scan ({exc})") from None
+    from .upgrade import upgrade
+
+    ds, note = upgrade(ds, SCHEMA_VERSION)
+    if note:
+        import warnings
+
+        from ..errors import InterkitWarning
+
+        warnings.warn(f"scan file {path!r}: {note}", InterkitWarning, stacklevel=2)
     validate(ds)
     return ds
 

@@ -16,7 +16,7 @@ DEFAULT_DEMO = "water_methanol"
 
 def demo_directory() -> Path:
     """Folder holding the demo XYZ files and ``catalog.toml``."""
-    here = Path(__file__).resolve().parent
+    here = Path(__file__).resolve().parent.parent  # the interkit package folder
     for candidate in (here / "_demo_systems", here.parent / "demo_systems"):
         if (candidate / "catalog.toml").is_file():
             return candidate
