@@ -18,8 +18,6 @@ validate them before using them in design decisions.
 
 from __future__ import annotations
 
-__version__ = "0.1.0"
-
 from . import analysis
 from .data.schema import open_scan, save_scan, validate
 from .errors import (
@@ -41,6 +39,7 @@ from .share.export import export_scan
 from .share.provenance import rerun_scan, verify_scan
 from .share.report import write_report
 from .units import convert_energy
+from .version import __version__
 
 __all__ = [
     "AtomPair", "CentreOfMass", "analysis", "ConvergenceError", "Dimer", "Frames", "InputError",

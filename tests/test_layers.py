@@ -11,7 +11,7 @@ import interkit as ik
 
 #: stages in data-flow order; a module may import its own stage and stages before it
 STAGES = ("base", "model", "engine", "run", "data", "analysis", "plot", "share", "cli", "widgets")
-BASE_MODULES = {"interkit.errors", "interkit.units"}
+BASE_MODULES = {"interkit.errors", "interkit.units", "interkit.version"}
 PACKAGE_ROOT = Path(ik.__file__).parent
 
 

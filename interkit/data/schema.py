@@ -76,7 +76,7 @@ def _versions() -> dict[str, str]:
 
     import pyscf
 
-    from .. import __version__
+    from ..version import __version__
 
     out = {"interkit_version": __version__, "pyscf_version": pyscf.__version__,
            "xarray_version": xr.__version__, "numpy_version": np.__version__}

@@ -159,7 +159,7 @@ def qcschema_molecule(symbols, coordinates_angstrom, fragment_a, charges, multip
     real : sequence of bool, optional
         Per atom; default all real.
     """
-    from .. import __version__
+    from ..version import __version__
 
     n = len(symbols)
     xyz = np.asarray(coordinates_angstrom, dtype=float).reshape(n, 3) * ANGSTROM_TO_BOHR

@@ -340,8 +340,8 @@ def render_report(ds: xr.Dataset, reference: str | None = None) -> str:
     str
         A complete HTML document without scripts or external resources.
     """
-    from .. import __version__
     from ..data.schema import CAUTION, validate
+    from ..version import __version__
 
     validate(ds)
     view = levels_view(ds)
