@@ -36,7 +36,7 @@ from .model.levels import LevelOfTheory, parse_level
 from .model.spec import ScanSpec, load_spec_toml
 from .run.scan import run_scan
 from .share.export import export_scan
-from .share.provenance import rerun_scan, verify_scan
+from .share.replay import rerun_scan, verify_scan
 from .share.report import write_report
 from .units import convert_energy
 from .version import __version__

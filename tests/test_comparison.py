@@ -9,7 +9,7 @@ import pytest
 import xarray as xr
 
 from interkit.analysis.comparison import ReferenceCurve, curve_errors, ranking_table, reference_from_csv
-from interkit.analysis.fits import morse_energy
+from interkit.analysis.potentials import morse_energy
 from interkit.errors import InputError
 
 # Water-dimer scale: De = 5.0 kcal/mol, R(O...O) = 2.90 A (Halkier et al., Theor. Chem.

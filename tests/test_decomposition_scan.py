@@ -305,7 +305,8 @@ def test_cli_scan_and_show_with_decomposition(tmp_path):
     assert "cc-pvdz-jkfit" in ds.attrs["decomposition_jk_fitting_basis"]
 
 
-@pytest.mark.parametrize("module", ["engine/decomposition.py", "engine/sapt0.py"])
+@pytest.mark.parametrize("module", ["engine/decomposition.py", "engine/sapt0.py",
+                                    "engine/sapt0_scf.py", "engine/sapt0_setup.py"])
 def test_decomposition_engine_keeps_the_core_layer_contract(module):
     """The SAPT0 engine modules are compute core: same contract as the other engine files."""
     from test_units_and_layers import test_compute_core_layer_contract

@@ -77,7 +77,7 @@ def _finish(table) -> int:
 
 def cmd_rerun(args) -> int:
     from ..data.schema import save_scan
-    from ..share.provenance import rerun_scan
+    from ..share.replay import rerun_scan
     from .main import _check_output
 
     if args.output is not None:
@@ -93,7 +93,7 @@ def cmd_rerun(args) -> int:
 
 
 def cmd_verify(args) -> int:
-    from ..share.provenance import verify_scan
+    from ..share.replay import verify_scan
 
     table = verify_scan(args.scan, sample=args.sample, seed=args.seed,
                         executor="serial" if args.serial else "processes", workers=args.workers,

@@ -253,7 +253,7 @@ class ScanSpec:
         import warnings
 
         from ..engine.molecule import ecp_for
-        from ..engine.sapt0 import estimate_sapt0_cost
+        from ..engine.sapt0_setup import estimate_sapt0_cost
 
         heavy = ecp_for(self.decomposition_basis, self.dimer.symbols)
         if heavy:
@@ -278,7 +278,7 @@ class ScanSpec:
     @property
     def decomposition_cost(self) -> dict | None:
         """Size estimate of one SAPT0 calculation (see
-        :func:`interkit.engine.sapt0.estimate_sapt0_cost`), or None without decomposition."""
+        :func:`interkit.engine.sapt0_setup.estimate_sapt0_cost`), or None without decomposition."""
         return self._decomposition_cost  # type: ignore[attr-defined]
 
     # ------------------------------------------------------------------ points
