@@ -19,7 +19,8 @@ validate them before using them in design decisions.
 from __future__ import annotations
 
 from . import analysis
-from .data.schema import open_scan, save_scan, validate
+from .analysis import comparison, fits
+from .data.schema import open_scan, save_scan, spec_of, validate
 from .errors import (
     ConvergenceError,
     InputError,
@@ -42,18 +43,21 @@ from .units import convert_energy
 from .version import __version__
 
 __all__ = [
-    "AtomPair", "CentreOfMass", "analysis", "ConvergenceError", "Dimer", "Frames", "InputError",
+    "AtomPair", "CentreOfMass", "analysis", "comparison", "ConvergenceError", "fits", "Dimer", "Frames", "InputError",
     "InterkitError", "InterkitWarning", "LevelOfTheory", "NotAvailableError", "ResourceError",
     "ScanCoordinate", "ScanSpec", "StoreError", "Vector", "__version__", "convert_energy",
     "export_scan", "list_demos", "load_demo", "load_spec_toml", "open_scan", "parse_level",
-    "rerun_scan", "run_scan", "save_scan", "validate", "verify_scan", "write_report",
+    "rerun_scan", "run_scan", "save_scan", "spec_of", "validate", "verify_scan", "write_report",
 ]
 
 
+#: stages imported on first use: plotting pulls in matplotlib, the notebook layer ipywidgets
+_ON_FIRST_USE = ("plot", "widgets")
+
+
 def __getattr__(name: str):
-    # the notebook layer pulls in ipywidgets; import it only when asked for
-    if name == "widgets":
+    if name in _ON_FIRST_USE:
         import importlib
 
-        return importlib.import_module(".widgets", __name__)
+        return importlib.import_module(f".{name}", __name__)
     raise AttributeError(f"module 'interkit' has no attribute {name!r}")

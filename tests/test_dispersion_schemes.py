@@ -8,6 +8,7 @@ from conftest import hf_dimer, s22_dimer
 
 import interkit as ik
 from interkit.data.dispersion import flatten_dispersion
+from interkit.run.plan import plan_scan
 from interkit.units import ANGSTROM_TO_BOHR, HARTREE_TO_KCAL_PER_MOL
 
 SCHEMES = ["none", "d3zero", "d3bj", "d4", "d3bj-atm"]
@@ -62,7 +63,7 @@ def test_one_scf_serves_every_scheme_and_matches_a_suffix_level(comparison, tmp_
     # the scan computed exactly the calculations of the scan without schemes
     plain = ik.ScanSpec(dimer=spec.dimer, coordinate=spec.coordinate, factors=spec.factors,
                         levels=spec.levels, forces=True, conv_tol=1e-10)
-    assert ds.attrs["calculations_computed"] == len(ik.plan.plan_scan(plain).jobs)
+    assert ds.attrs["calculations_computed"] == len(plan_scan(plain).jobs)
     # a scheme on the shared SCF equals the same scheme run as a level of its own
     single = ik.run_scan(ik.ScanSpec(dimer=spec.dimer, coordinate=spec.coordinate, factors=spec.factors,
                                      levels=["b3lyp-d3bj/sto-3g"], forces=True, conv_tol=1e-10),
