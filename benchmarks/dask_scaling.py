@@ -28,6 +28,7 @@ from pathlib import Path
 import numpy as np
 
 import interkit as ik
+from interkit.run.plan import plan_scan
 
 FACTORS = (0.85, 0.9, 0.95, 1.0, 1.1, 1.25, 1.5, 1.8)
 
@@ -62,7 +63,7 @@ def main() -> None:
     from pyscf import lib
     from threadpoolctl import threadpool_limits
 
-    from interkit.executors_dask import local_cluster
+    from interkit.run.dask import local_cluster
 
     load = os.getloadavg()
     threadpool_limits(1)
@@ -71,7 +72,7 @@ def main() -> None:
     contact = ik.demo.demo_catalog()[args.system]["contact"]
     spec = ik.ScanSpec(dimer=dimer, coordinate=ik.AtomPair(*contact), factors=FACTORS, levels=[args.level])
     warm = ik.ScanSpec(dimer=dimer, coordinate=ik.AtomPair(*contact), factors=[3.0], levels=[args.level])
-    n_tasks = len(ik.plan.plan_scan(spec).jobs)
+    n_tasks = len(plan_scan(spec).jobs)
 
     t_serial, ref, share_serial = _timed(spec, warm, "serial", args.repeat)
     times, shares, diffs = {}, {}, {}

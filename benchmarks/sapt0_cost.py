@@ -24,7 +24,7 @@ import numpy as np  # noqa: E402
 from pyscf import df, lib  # noqa: E402
 
 import interkit as ik  # noqa: E402
-from interkit.engine import sapt0  # noqa: E402
+from interkit.engine import sapt0, sapt0_scf, sapt0_setup  # noqa: E402
 
 
 def s22_water() -> ik.Dimer:
@@ -37,12 +37,12 @@ def s22_water() -> ik.Dimer:
 
 def cp_hf_seconds(dimer: ik.Dimer, basis: str) -> float:
     start = time.perf_counter()
-    mols = sapt0._build_molecules(dimer, basis, None, None, 8000.0)
+    mols = sapt0_setup._build_molecules(dimer, basis, None, None, 8000.0)
     dfobj = df.DF(mols.dimer, auxbasis=mols.jk_aux)
     dfobj.verbose = 0
     dfobj.build()
     for mol, label in ((mols.dimer, "dimer"), (mols.a, "A"), (mols.b, "B")):
-        sapt0._run_rhf(mol, dfobj, 1e-10, label)
+        sapt0_scf._run_rhf(mol, dfobj, 1e-10, label)
     return time.perf_counter() - start
 
 
@@ -61,7 +61,7 @@ def main() -> None:
     print(f"SAPT0 cost relative to a counterpoise HF point, basis {args.basis}, 1 thread")
     print(f"{'system':22s} {'atoms':>5s} {'nbf':>5s} {'naux(JK/RI)':>12s} {'SAPT0/HF':>9s}")
     for label, dimer in systems:
-        cost = sapt0.estimate_sapt0_cost(dimer, args.basis)
+        cost = sapt0_setup.estimate_sapt0_cost(dimer, args.basis)
         t_hf = cp_hf_seconds(dimer, args.basis)
         start = time.perf_counter()
         sapt0.sapt0_terms(dimer, args.basis, max_memory_mb=8000.0)

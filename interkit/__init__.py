@@ -18,11 +18,9 @@ validate them before using them in design decisions.
 
 from __future__ import annotations
 
-__version__ = "0.1.0"
-
 from . import analysis
-from .coordinates import AtomPair, CentreOfMass, Frames, ScanCoordinate, Vector
-from .demo import list_demos, load_demo
+from .analysis import comparison, fits
+from .data.schema import open_scan, save_scan, spec_of, validate
 from .errors import (
     ConvergenceError,
     InputError,
@@ -32,29 +30,34 @@ from .errors import (
     ResourceError,
     StoreError,
 )
-from .export import export_scan
-from .geometry import Dimer
-from .levels import LevelOfTheory, parse_level
-from .provenance import rerun_scan, verify_scan
-from .report import write_report
-from .results import open_scan, save_scan, validate
-from .run import run_scan
-from .spec import ScanSpec, load_spec_toml
+from .model.coordinates import AtomPair, CentreOfMass, Frames, ScanCoordinate, Vector
+from .model.demo import list_demos, load_demo
+from .model.geometry import Dimer
+from .model.levels import LevelOfTheory, parse_level
+from .model.spec import ScanSpec, load_spec_toml
+from .run.scan import run_scan
+from .share.export import export_scan
+from .share.replay import rerun_scan, verify_scan
+from .share.report import write_report
 from .units import convert_energy
+from .version import __version__
 
 __all__ = [
-    "AtomPair", "CentreOfMass", "analysis", "ConvergenceError", "Dimer", "Frames", "InputError",
+    "AtomPair", "CentreOfMass", "analysis", "comparison", "ConvergenceError", "fits", "Dimer", "Frames", "InputError",
     "InterkitError", "InterkitWarning", "LevelOfTheory", "NotAvailableError", "ResourceError",
     "ScanCoordinate", "ScanSpec", "StoreError", "Vector", "__version__", "convert_energy",
     "export_scan", "list_demos", "load_demo", "load_spec_toml", "open_scan", "parse_level",
-    "rerun_scan", "run_scan", "save_scan", "validate", "verify_scan", "write_report",
+    "rerun_scan", "run_scan", "save_scan", "spec_of", "validate", "verify_scan", "write_report",
 ]
 
 
+#: stages imported on first use: plotting pulls in matplotlib, the notebook layer ipywidgets
+_ON_FIRST_USE = ("plot", "widgets")
+
+
 def __getattr__(name: str):
-    # the notebook layer pulls in ipywidgets; import it only when asked for
-    if name == "widgets":
+    if name in _ON_FIRST_USE:
         import importlib
 
-        return importlib.import_module(".widgets", __name__)
+        return importlib.import_module(f".{name}", __name__)
     raise AttributeError(f"module 'interkit' has no attribute {name!r}")

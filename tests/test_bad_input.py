@@ -18,7 +18,7 @@ import numpy as np
 import pytest
 
 import interkit as ik
-from interkit.cli import main
+from interkit.cli.main import main
 
 WATER_HF = """4
 hydrogen fluoride dimer
@@ -270,9 +270,9 @@ def _snapshot(folder):
 @pytest.mark.parametrize("case,argv,expected,files", ROWS, ids=[r[0] for r in ROWS])
 def test_bad_input_is_one_line_exit_2_and_writes_nothing(saved_scans, tmp_path, capsys, monkeypatch,
                                                          case, argv, expected, files):
-    import interkit.executors_dask
+    import interkit.run.dask
 
-    monkeypatch.setattr(interkit.executors_dask, "CONNECT_TIMEOUT_S", 1.0)  # nothing listens on port 9
+    monkeypatch.setattr(interkit.run.dask, "CONNECT_TIMEOUT_S", 1.0)  # nothing listens on port 9
     inp, out = tmp_path / "in", tmp_path / "out"
     inp.mkdir()
     out.mkdir()
@@ -341,10 +341,10 @@ def test_validate_refuses_energies_that_are_not_numbers(saved_scans):
     ds = ik.open_scan(saved_scans / "scan.nc")
     ds["bsse"] = ds["bsse"].astype(str)
     with pytest.raises(ik.InputError, match="dataset variable bsse: values of type"):
-        ik.validate(ds) if hasattr(ik, "validate") else __import__("interkit.results").results.validate(ds)
+        ik.validate(ds) if hasattr(ik, "validate") else __import__("interkit.data.schema").results.validate(ds)
     ds = ik.open_scan(saved_scans / "scan.nc")
     ds["e_int"] = ds["e_int"].astype(np.complex128)
-    from interkit.results import validate
+    from interkit.data.schema import validate
 
     with pytest.raises(ik.InputError, match="dataset variable e_int"):
         validate(ds)

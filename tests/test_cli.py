@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 import interkit as ik
-import interkit.analysis
+import interkit.analysis.minima
 
 SPEC = """
 name = "water-methanol test"

@@ -1,4 +1,4 @@
-"""Tests of interkit.comparison: method-vs-reference statistics of E(R) curves."""
+"""Tests of interkit.analysis.comparison: method-vs-reference statistics of E(R) curves."""
 
 from __future__ import annotations
 
@@ -8,9 +8,9 @@ import numpy as np
 import pytest
 import xarray as xr
 
-from interkit.comparison import ReferenceCurve, curve_errors, ranking_table, reference_from_csv
+from interkit.analysis.comparison import ReferenceCurve, curve_errors, ranking_table, reference_from_csv
+from interkit.analysis.potentials import morse_energy
 from interkit.errors import InputError
-from interkit.fits import morse_energy
 
 # Water-dimer scale: De = 5.0 kcal/mol, R(O...O) = 2.90 A (Halkier et al., Theor. Chem.
 # Acc. 97, 150 (1997)); a = 1.8 1/A chosen.

@@ -15,10 +15,10 @@ from conftest import HF_DIMER_XYZ
 from distributed import Client
 
 import interkit as ik
-from interkit.cli import main
-from interkit.executors_dask import DaskExecutor, _scratch_directory, local_cluster
-from interkit.plan import plan_scan
-from interkit.store import ResultStore
+from interkit.cli.main import main
+from interkit.run.dask import DaskExecutor, _scratch_directory, local_cluster
+from interkit.run.plan import plan_scan
+from interkit.run.store import ResultStore
 from interkit.units import HARTREE_TO_KCAL_PER_MOL
 
 HF_DIMER = HF_DIMER_XYZ
@@ -147,7 +147,7 @@ def test_blas_threads_are_set_on_the_workers(client):
     from pyscf import lib
     from threadpoolctl import threadpool_info
 
-    import interkit.executors_dask as kd
+    import interkit.run.dask as kd
 
     def probe():  # runs in the worker's task thread, where the setting applies
         blas = [p["num_threads"] for p in threadpool_info()  # (a single-threaded build stays at 1)

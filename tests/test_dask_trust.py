@@ -15,8 +15,8 @@ from distributed import Client
 import interkit as ik
 from interkit.cli import main
 from interkit.errors import ClusterError
-from interkit.executors_dask import DaskExecutor, connect, local_cluster
-from interkit.store import ResultStore
+from interkit.run.dask import DaskExecutor, connect, local_cluster
+from interkit.run.store import ResultStore
 
 #: the waits of these tests (s); the errors must come well within WAIT_S + SLACK_S
 WAIT_S = 1.0
@@ -84,7 +84,7 @@ def test_dask_store_write_failure_keeps_results_and_counts_them(tmp_path, monkey
 
 
 def test_workers_gone_mid_scan_give_failed_records_after_the_wait():
-    from interkit.plan import plan_scan
+    from interkit.run.plan import plan_scan
 
     plan = plan_scan(_spec())
     chunks = [list(plan.chunks(1)[0])]

@@ -18,9 +18,9 @@ from conftest import s22_dimer
 from pyscf import lib
 
 import interkit as ik
-from interkit.decomposition import COMPONENTS, TERM_VARIABLES, decomposition_report
+from interkit.data.sapt0 import COMPONENTS, TERM_VARIABLES, decomposition_report
 from interkit.engine.sapt0 import sapt0_terms
-from interkit.plan import DECOMPOSITION_CONV_TOL_HARTREE, plan_scan
+from interkit.run.plan import DECOMPOSITION_CONV_TOL_HARTREE, plan_scan
 from interkit.units import HARTREE_TO_KCAL_PER_MOL
 
 lib.num_threads(1)
@@ -123,15 +123,15 @@ def test_dataset_terms_equal_direct_sapt0(water_scan, direct_terms):
 
 def test_grouped_components_are_the_sums_of_the_terms(water_scan):
     ds = water_scan
-    np.testing.assert_allclose(ds["e_elst"], ds["sapt_elst10"], atol=1e-12)
-    np.testing.assert_allclose(ds["e_exch"], ds["sapt_exch10"], atol=1e-12)
-    np.testing.assert_allclose(ds["e_ind"], ds["sapt_ind20r"] + ds["sapt_exch_ind20r"] + ds["sapt_dhf"], atol=1e-10)
-    np.testing.assert_allclose(ds["e_disp"], ds["sapt_disp20"] + ds["sapt_exch_disp20"], atol=1e-10)
+    np.testing.assert_allclose(ds["e_elst"], ds["sapt_e10_elst"], atol=1e-12)
+    np.testing.assert_allclose(ds["e_exch"], ds["sapt_e10_exch"], atol=1e-12)
+    np.testing.assert_allclose(ds["e_ind"], ds["sapt_e20_ind_resp"] + ds["sapt_e20_exind_resp"] + ds["sapt_delta_hf"], atol=1e-10)
+    np.testing.assert_allclose(ds["e_disp"], ds["sapt_e20_disp"] + ds["sapt_e20_exdisp"], atol=1e-10)
     np.testing.assert_allclose(ds["e_sapt0"], sum(ds[n] for n in COMPONENTS), atol=1e-10)
-    np.testing.assert_allclose(ds["sapt_ind20r"], ds["sapt_ind20r_ab"] + ds["sapt_ind20r_ba"], atol=1e-10)
+    np.testing.assert_allclose(ds["sapt_e20_ind_resp"], ds["sapt_e20_ind_resp_a"] + ds["sapt_e20_ind_resp_b"], atol=1e-10)
     # δHF closes the HF interaction energy (bookkeeping identity of the definition)
-    first_second = ds["sapt_elst10"] + ds["sapt_exch10"] + ds["sapt_ind20r"] + ds["sapt_exch_ind20r"]
-    np.testing.assert_allclose(first_second + ds["sapt_dhf"], ds["sapt_e_int_hf"], atol=1e-10)
+    first_second = ds["sapt_e10_elst"] + ds["sapt_e10_exch"] + ds["sapt_e20_ind_resp"] + ds["sapt_e20_exind_resp"]
+    np.testing.assert_allclose(first_second + ds["sapt_delta_hf"], ds["sapt_e_int_hf"], atol=1e-10)
 
 
 def test_physics_along_the_scan(water_scan):
@@ -170,6 +170,21 @@ def test_save_open_round_trip_is_exact(water_scan, tmp_path):
         np.testing.assert_array_equal(back[name].values, water_scan[name].values)
         assert back[name].attrs == water_scan[name].attrs
     assert back.attrs["decomposition_ri_fitting_basis"] == water_scan.attrs["decomposition_ri_fitting_basis"]
+
+
+def test_file_of_schema_1_is_converted_on_reading(water_scan, tmp_path):
+    # a file as interkit wrote it before the SAPT0 terms were renamed (schema 1)
+    from interkit.data.upgrade import SAPT_RENAMES_1_TO_2
+
+    old = water_scan.rename({new: old for old, new in SAPT_RENAMES_1_TO_2.items()})
+    old.attrs["schema"] = "interkit-scan/1"
+    old.to_netcdf(tmp_path / "old.nc", engine="h5netcdf")
+    with pytest.warns(ik.InterkitWarning, match="converted from schema interkit-scan/1 to interkit-scan/2"):
+        back = ik.open_scan(tmp_path / "old.nc")
+    assert back.attrs["converted_from_schema"] == "interkit-scan/1"
+    for name in TERM_VARIABLES:
+        np.testing.assert_array_equal(back[name].values, water_scan[name].values)
+    assert not any(old_name in back.variables for old_name in SAPT_RENAMES_1_TO_2)
 
 
 def test_validate_with_and_without_the_decomposition(water_scan):
@@ -217,7 +232,7 @@ def test_plot_components(water_scan):
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from interkit.plot_decomposition import COMPONENT_COLOURS, plot_components
+    from interkit.plot.components import COMPONENT_COLOURS, plot_components
 
     ax = plot_components(water_scan, unit="kJ/mol", level="hf/sto-3g")
     lines = {ln.get_label(): ln for ln in ax.get_lines()}
@@ -263,23 +278,35 @@ def test_cli_scan_and_show_with_decomposition(tmp_path):
                           str(tmp_path / "scan.nc"), "--cache", str(tmp_path / "store"), "--quiet",
                           "--workers", "2"], capture_output=True, text=True, env=env, timeout=300)
     assert out.returncode == 0, out.stderr
-    assert "SAPT0/cc-pvdz components at" in out.stdout
+    assert "SAPT0 decomposition (cc-pvdz) at R =" in out.stdout
     show = subprocess.run([sys.executable, "-m", "interkit.cli", "show", str(tmp_path / "scan.nc")],
                           capture_output=True, text=True, env=env, timeout=120)
     assert show.returncode == 0, show.stderr
     lines = show.stdout.splitlines()
-    head = next(i for i, line in enumerate(lines) if line.startswith("SAPT0/cc-pvdz components at"))
+    head = next(i for i, line in enumerate(lines) if line.startswith("SAPT0 decomposition (cc-pvdz) at R ="))
     ds = ik.open_scan(tmp_path / "scan.nc")
     i = int(np.nanargmin(ds["e_sapt0"].values))
-    assert f"{float(ds['distance'][i]):.3f} Å" in lines[head]
-    rows = {line.split()[0]: float(line.split()[-1]) for line in lines[head + 1:head + 6]}
+    assert f"R = {float(ds['distance'][i]):.3f} Å" in lines[head]
+    rows = {}
+    for line in lines[head + 1:head + 6]:
+        words = line.split()
+        for name in ("electrostatics", "exchange", "induction", "dispersion", "SAPT0"):
+            if name in words:
+                rows[name] = float(words[words.index(name) + 1])
     assert rows["electrostatics"] == pytest.approx(float(ds["e_elst"][i]), abs=1e-3)
     assert rows["dispersion"] == pytest.approx(float(ds["e_disp"][i]), abs=1e-3)
+    assert rows["exchange"] == pytest.approx(float(ds["e_exch"][i]), abs=1e-3)
+    assert rows["SAPT0"] == pytest.approx(float(ds["e_sapt0"][i]), abs=1e-3)
+    # attractive components come first, largest first
+    attractive = [n for n in ("electrostatics", "induction", "dispersion") if rows[n] < 0]
+    order = [n for n in rows if n in attractive]
+    assert order == sorted(attractive, key=lambda n: rows[n])
     assert ds.attrs["decomposition_basis"] == "cc-pvdz"
     assert "cc-pvdz-jkfit" in ds.attrs["decomposition_jk_fitting_basis"]
 
 
-@pytest.mark.parametrize("module", ["engine/decomposition.py", "engine/sapt0.py"])
+@pytest.mark.parametrize("module", ["engine/decomposition.py", "engine/sapt0.py",
+                                    "engine/sapt0_scf.py", "engine/sapt0_setup.py"])
 def test_decomposition_engine_keeps_the_core_layer_contract(module):
     """The SAPT0 engine modules are compute core: same contract as the other engine files."""
     from test_units_and_layers import test_compute_core_layer_contract

@@ -12,7 +12,7 @@ import pytest
 
 import interkit as ik
 from interkit.cli import main
-from interkit.plan import plan_scan
+from interkit.run.plan import plan_scan
 from interkit.units import ANGSTROM_TO_BOHR
 
 LEVEL = "hf/6-31g"
@@ -90,7 +90,7 @@ def test_broken_symmetry_singlet_of_two_distant_doublets():
     # neither is flagged: both lie within the documented rule
     assert list(triplet["status"].values.ravel()) == ["ok"] == list(singlet["status"].values.ravel())
     # the QCSchema export carries the dimer's multiplicity (monomers their own)
-    from interkit.export import scan_document
+    from interkit.share.export import scan_document
 
     point = scan_document(singlet)["points"][0]
     assert point["molecule"]["molecular_multiplicity"] == 1
@@ -190,7 +190,7 @@ def test_spin_square_in_the_dataset_round_trips(tmp_path):
 
 
 def test_heavy_spin_contamination_is_flagged_in_status():
-    from interkit.results import assemble
+    from interkit.data.schema import assemble
 
     spec = ik.ScanSpec(dimer=_h2(4.0), distances=[4.0], levels=[LEVEL])
     plan = plan_scan(spec)

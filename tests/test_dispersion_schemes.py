@@ -7,7 +7,8 @@ import pytest
 from conftest import hf_dimer, s22_dimer
 
 import interkit as ik
-from interkit.corrections import flatten_dispersion
+from interkit.data.dispersion import flatten_dispersion
+from interkit.run.plan import plan_scan
 from interkit.units import ANGSTROM_TO_BOHR, HARTREE_TO_KCAL_PER_MOL
 
 SCHEMES = ["none", "d3zero", "d3bj", "d4", "d3bj-atm"]
@@ -62,7 +63,7 @@ def test_one_scf_serves_every_scheme_and_matches_a_suffix_level(comparison, tmp_
     # the scan computed exactly the calculations of the scan without schemes
     plain = ik.ScanSpec(dimer=spec.dimer, coordinate=spec.coordinate, factors=spec.factors,
                         levels=spec.levels, forces=True, conv_tol=1e-10)
-    assert ds.attrs["calculations_computed"] == len(ik.plan.plan_scan(plain).jobs)
+    assert ds.attrs["calculations_computed"] == len(plan_scan(plain).jobs)
     # a scheme on the shared SCF equals the same scheme run as a level of its own
     single = ik.run_scan(ik.ScanSpec(dimer=spec.dimer, coordinate=spec.coordinate, factors=spec.factors,
                                      levels=["b3lyp-d3bj/sto-3g"], forces=True, conv_tol=1e-10),
@@ -113,7 +114,7 @@ def test_file_round_trip_and_folded_view(comparison, tmp_path):
 
 
 def test_ranking_skips_pairs_without_values(comparison):
-    from interkit.comparison import ranking_table
+    from interkit.analysis.comparison import ranking_table
 
     _, ds = comparison
     rows = ranking_table(ds, reference_level="hf/sto-3g")
@@ -177,15 +178,15 @@ def test_correction_comparison_widget(comparison, tmp_path):
 
 
 def ranking_table_rows(ds, reference):
-    from interkit.comparison import ranking_table
-    from interkit.corrections import scheme_label
+    from interkit.analysis.comparison import ranking_table
+    from interkit.data.dispersion import scheme_label
 
     rows = ranking_table(ds, reference_level=reference)
     return [dict(r, curve=scheme_label(ik.parse_level(r["level"]), r["dispersion"])) for r in rows]
 
 
 def test_cli_scan_with_schemes_and_compare(tmp_path, capsys):
-    from interkit.cli import main
+    from interkit.cli.main import main
 
     xyz = tmp_path / "hf2.xyz"
     xyz.write_text("4\nHF dimer, test geometry\nF 0 0 0\nH 0 0 0.92\nF 0 0 2.75\nH 0.85 0 3.05\n")
@@ -210,8 +211,8 @@ def test_cli_scan_with_schemes_and_compare(tmp_path, capsys):
 def test_reference_from_another_saved_scan(comparison, tmp_path, capsys):
     """A curve of another saved scan serves as an external reference, through the API,
     the command line and the widget."""
-    from interkit.cli import main
-    from interkit.comparison import ranking_table, reference_from_file
+    from interkit.analysis.comparison import ranking_table, reference_from_file
+    from interkit.cli.main import main
 
     _, ds = comparison
     other = tmp_path / "reference-scan.nc"

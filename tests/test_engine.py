@@ -9,7 +9,8 @@ from pyscf import dft, scf
 import interkit as ik
 from interkit.engine.energy import _make_scf, converge_scf, run_energy_job
 from interkit.engine.molecule import build_molecule
-from interkit.plan import _job_for
+from interkit.model.geometry import parse_xyz
+from interkit.run.plan import _job_for
 
 OH_WATER = """5
 hydroxyl radical and water, test geometry
@@ -40,7 +41,7 @@ def test_open_shell_fragment_runs_unrestricted():
 def test_def2_ecp_applied_to_real_heavy_atoms_only():
     level = ik.parse_level("hf/def2-svp")
     text = "2\nHI\nI 0 0 0\nH 0 0 1.61\n"
-    geom = ik.geometry.parse_xyz(text)[0]
+    geom = parse_xyz(text)[0]
     d = ik.Dimer(geom.symbols, geom.coordinates, (0,), (-1, 1), (1, 1), _check=False)
     real = build_molecule(_job_for(d, (0,), (), -1, 0, level, 1e-9))
     assert real.has_ecp() and real.nelectron == 26  # 54 - 28 core electrons + 1 (iodide)

@@ -1,4 +1,4 @@
-"""Tests of interkit.fits: model fits of E(R) and the long-range C6 estimate.
+"""Tests of interkit.analysis.fits and .potentials: model fits of E(R) and the long-range C6 estimate.
 
 Synthetic curves are generated from known parameters with a fixed random seed; each
 check names where its numbers come from.
@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 import xarray as xr
 
-from interkit import fits
+from interkit.analysis import fits, potentials
 from interkit.errors import ConvergenceError, InputError
 
 # Water-dimer scale: De = 5.0 kcal/mol, R(O...O) = 2.90 A (Halkier et al., Theor. Chem.
@@ -25,14 +25,14 @@ AR2_RE_ANGSTROM = 3.757  # Tang & Toennies 2003 (REFERENCES.md)
 def _morse_data(noise=0.02, seed=11):
     rng = np.random.default_rng(seed)
     r = np.linspace(2.4, 6.0, 25)
-    e = fits.morse_energy(r, MORSE_TRUE["de"], MORSE_TRUE["a"], MORSE_TRUE["re"])
+    e = potentials.morse_energy(r, MORSE_TRUE["de"], MORSE_TRUE["a"], MORSE_TRUE["re"])
     return r, e + rng.normal(0.0, noise, r.size)
 
 
 def _lj_data(noise=0.002, seed=12):
     rng = np.random.default_rng(seed)
     r = np.linspace(3.2, 8.0, 25)
-    e = fits.lj_energy(r, LJ_TRUE["eps"], LJ_TRUE["sigma"])
+    e = potentials.lj_energy(r, LJ_TRUE["eps"], LJ_TRUE["sigma"])
     return r, e + rng.normal(0.0, noise, r.size)
 
 
@@ -69,11 +69,11 @@ def test_lennard_jones_recovers_ar2_scale_parameters():
 def test_buckingham_tt_recovers_generated_parameters():
     # source: synthetic Buckingham-TT curve; A, b chosen; C6 = 64.3 hartree bohr^6 is the
     # Ar-Ar DOSD value (Kumar & Meath 1985, from memory) used only as a realistic scale.
-    c6_true = 64.3 * fits.HARTREE_BOHR6_TO_KCAL_PER_MOL_ANGSTROM6
+    c6_true = 64.3 * potentials.HARTREE_BOHR6_TO_KCAL_PER_MOL_ANGSTROM6
     a_true, b_true = 1.0e5, 3.6
     rng = np.random.default_rng(13)
     r = np.linspace(3.2, 8.0, 25)
-    e = fits.buckingham_tt_energy(r, a_true, b_true, c6_true) + rng.normal(0.0, 2e-4, r.size)
+    e = potentials.buckingham_tt_energy(r, a_true, b_true, c6_true) + rng.normal(0.0, 2e-4, r.size)
     fit = fits.fit_curve(r, e, "buckingham-tt")
     _check(fit.a_kcal_per_mol, fit.a_err_kcal_per_mol, a_true, 0.05)
     _check(fit.b_per_angstrom, fit.b_err_per_angstrom, b_true, 0.01)
@@ -81,17 +81,33 @@ def test_buckingham_tt_recovers_generated_parameters():
     assert fit.c6_hartree_bohr6 == pytest.approx(64.3, rel=0.01)
     # model minimum matches a dense evaluation of the true curve
     grid = np.linspace(3.2, 5.0, 20001)
-    true_vals = fits.buckingham_tt_energy(grid, a_true, b_true, c6_true)
+    true_vals = potentials.buckingham_tt_energy(grid, a_true, b_true, c6_true)
     assert fit.r_min_angstrom == pytest.approx(grid[np.argmin(true_vals)], abs=0.01)
     assert fit.well_depth_kcal_per_mol == pytest.approx(-true_vals.min(), rel=0.01)
 
 
 def test_tang_toennies_f6_limits():
     # source: definition f6(x) = 1 - exp(-x) sum_{k<=6} x^k/k! (Tang & Toennies, JCP 80, 3726 (1984))
-    assert fits.tang_toennies_f6(0.0) == pytest.approx(0.0, abs=1e-15)
-    assert fits.tang_toennies_f6(60.0) == pytest.approx(1.0, abs=1e-12)
+    assert potentials.tang_toennies_f6(0.0) == pytest.approx(0.0, abs=1e-15)
+    assert potentials.tang_toennies_f6(60.0) == pytest.approx(1.0, abs=1e-12)
     # small x: f6 ~ x^7/7!
-    assert fits.tang_toennies_f6(0.01) == pytest.approx(0.01**7 / 5040.0, rel=1e-3)
+    assert potentials.tang_toennies_f6(0.01) == pytest.approx(0.01**7 / 5040.0, rel=1e-3)
+
+
+def test_fit_parameters_follow_the_model_function_arguments():
+    # reason: fitting, building the result and its energy() all take the parameter order from
+    # the dataclass fields (value, then its uncertainty); they must be the model function's
+    # arguments, in order, or a fit would silently swap parameters
+    import inspect
+
+    for cls in (potentials.MorseFit, potentials.LennardJonesFit, potentials.BuckinghamTTFit):
+        pairs = cls.parameter_fields()
+        assert [v for v, _ in pairs] == list(inspect.signature(cls.energy_function).parameters)[1:]
+        assert [e for _, e in pairs] == [v.replace("_", "_err_", 1) for v, _ in pairs]
+    r = np.linspace(3.0, 8.0, 12)
+    e = potentials.morse_energy(r, MORSE_TRUE["de"], MORSE_TRUE["a"], MORSE_TRUE["re"])
+    fit = fits.fit_curve(r, e, "morse")
+    assert np.allclose(fit.energy(r), e, atol=1e-8)    # exact model curve: the fit reproduces it
 
 
 def test_morse_fit_of_lj_curve_is_worse_than_lj_fit():
@@ -142,8 +158,8 @@ def test_failed_fit_raises_convergence_error_naming_model(monkeypatch):
 def test_c6_from_tail_recovers_c6_and_c8():
     # source: synthetic tail -C6/R^6 - C8/R^8 with C6 = 64.3 hartree bohr^6 (Ar-Ar scale,
     # Kumar & Meath 1985, memory) and a chosen C8 = 1500 hartree bohr^8
-    c6 = 64.3 * fits.HARTREE_BOHR6_TO_KCAL_PER_MOL_ANGSTROM6
-    c8 = 1500.0 * fits.HARTREE_BOHR8_TO_KCAL_PER_MOL_ANGSTROM8
+    c6 = 64.3 * potentials.HARTREE_BOHR6_TO_KCAL_PER_MOL_ANGSTROM6
+    c8 = 1500.0 * potentials.HARTREE_BOHR8_TO_KCAL_PER_MOL_ANGSTROM8
     rng = np.random.default_rng(21)
     r = np.linspace(3.0, 12.0, 19)
     e = -c6 / r**6 - c8 / r**8 + rng.normal(0.0, 1e-6, r.size)
@@ -152,7 +168,7 @@ def test_c6_from_tail_recovers_c6_and_c8():
     assert tail.c6_hartree_bohr6 == pytest.approx(64.3, rel=0.02)
     assert abs(tail.c6_kcal_per_mol_angstrom6 - c6) <= 3.0 * tail.c6_err_kcal_per_mol_angstrom6
     assert tail.c6_err_hartree_bohr6 == pytest.approx(
-        tail.c6_err_kcal_per_mol_angstrom6 / fits.HARTREE_BOHR6_TO_KCAL_PER_MOL_ANGSTROM6)
+        tail.c6_err_kcal_per_mol_angstrom6 / potentials.HARTREE_BOHR6_TO_KCAL_PER_MOL_ANGSTROM6)
     # C8 makes the tail steeper than -6
     assert tail.log_log_slope < -6.0
 
@@ -169,7 +185,7 @@ def test_c6_from_tail_pure_r6_slope_and_units():
     assert tail.c6_kcal_per_mol_angstrom6 == pytest.approx(c6, rel=0.02)
     # unit conversion by hand: 1 hartree bohr^6 = 627.5094740631 kcal/mol x
     # (0.529177210903 A)^6 = 627.5094740631 x 0.02195871 = 13.77930 kcal/mol A^6 (CODATA 2018)
-    assert fits.HARTREE_BOHR6_TO_KCAL_PER_MOL_ANGSTROM6 == pytest.approx(13.77930, rel=1e-5)
+    assert potentials.HARTREE_BOHR6_TO_KCAL_PER_MOL_ANGSTROM6 == pytest.approx(13.77930, rel=1e-5)
     assert tail.c6_hartree_bohr6 == pytest.approx(tail.c6_kcal_per_mol_angstrom6 / 13.77930, rel=1e-5)
 
 
@@ -190,8 +206,8 @@ def test_fit_table_over_levels():
     # source: two synthetic levels (LJ_TRUE and MORSE_TRUE scaled onto the same grid) and one
     # failed level (all NaN)
     r = np.linspace(3.2, 8.0, 25)
-    lj = fits.lj_energy(r, LJ_TRUE["eps"], LJ_TRUE["sigma"])
-    morse = fits.morse_energy(r, 0.3, 1.5, 3.8)
+    lj = potentials.lj_energy(r, LJ_TRUE["eps"], LJ_TRUE["sigma"])
+    morse = potentials.morse_energy(r, 0.3, 1.5, 3.8)
     data = np.vstack([lj, morse, np.full(r.size, np.nan)])
     ds = xr.Dataset(
         {"e_int": (("level", "distance"), data, {"units": "kcal/mol"})},

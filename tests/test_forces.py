@@ -12,8 +12,9 @@ import pytest
 from conftest import s22_dimer
 
 import interkit as ik
-import interkit.analysis
-import interkit.plan
+import interkit.analysis.minima
+import interkit.run.plan
+from interkit.run.plan import NUMERICAL_FORCE_STEP_ANGSTROM
 from interkit.units import BOHR_TO_ANGSTROM, HARTREE_TO_KCAL_PER_MOL
 
 #: 1 hartree/bohr in kcal/mol/angstrom
@@ -117,7 +118,7 @@ def test_numerical_forces_for_levels_without_analytic_gradients():
     assert str(ds["force_method"].values[0]).startswith("numerical")
     assert np.isnan(ds["forces"].values).all()  # per-atom forces are not claimed
     r0 = coord.value(dimer)
-    h = ik.plan.NUMERICAL_FORCE_STEP_ANGSTROM
+    h = NUMERICAL_FORCE_STEP_ANGSTROM
     e = [float(_scan(coord.displaced(dimer, r0 + s), "scs-mp2/def2-svp", coord, forces=False)["e_int"].values[0, 0])
          for s in (h, -h)]
     # the same central difference from separate energy scans: plumbing, sign and units

@@ -12,7 +12,7 @@ from pyscf import gto, mp, scf
 import interkit as ik
 from interkit import plan as plan_module
 from interkit.errors import InputError, NotAvailableError, ResourceError
-from interkit.plan import Job, plan_scan
+from interkit.run.plan import Job, plan_scan
 from interkit.units import ANGSTROM_TO_BOHR
 
 # (HX)2 test geometries built here (roughly hydrogen-bonded, not reference structures)

@@ -56,7 +56,7 @@ def test_notebook_is_stored_without_outputs(name):
 def saved_scan(tmp_path_factory):
     """A small real scan on disk for 03-reopen (HF/STO-3G, 4 points)."""
     import interkit as ik
-    from interkit.demo import demo_catalog
+    from interkit.model.demo import demo_catalog
 
     i, j = demo_catalog()["water_methanol"]["contact"]
     spec = ik.ScanSpec(dimer=ik.load_demo("water_methanol"), coordinate=ik.AtomPair(i, j),
@@ -89,7 +89,7 @@ def test_notebook_executes(name, tmp_path, monkeypatch, saved_scan):
         r_min, r_zero = (float(w) for w in line.replace("Å", "").replace(",", "").split() if w[0].isdigit())
         assert abs(r_min - r_zero) < 0.05    # the force vanishes at the minimum
     elif name == "05-decomposition.ipynb":
-        assert text.count("SAPT0/jun-cc-pvdz components at") == 2 and _widget_views(nb) == 1
+        assert text.count("SAPT0 decomposition (jun-cc-pvdz) at R =") == 2 and _widget_views(nb) == 1
         assert "water_methanol: largest attractive component: electrostatics" in text
         assert "methane_ethene: largest attractive component: dispersion" in text
     elif name == "06-dispersion.ipynb":

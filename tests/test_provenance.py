@@ -11,9 +11,10 @@ import numpy as np
 import pytest
 
 import interkit as ik
-from interkit import provenance
-from interkit.cli import main
-from interkit.plan import plan_scan
+from interkit.cli.main import main
+from interkit.data.schema import spec_of
+from interkit.run.plan import plan_scan
+from interkit.share import compare, provenance, replay, tolerances
 
 
 @pytest.fixture(scope="module")
@@ -44,7 +45,7 @@ def _tampered(path, tmp_path, name, index, delta):
 # ---------------------------------------------------------------------- what the file records
 def test_dataset_records_spec_versions_and_keys(saved, hf_dimer):
     ds = ik.open_scan(saved[0])
-    spec = ik.results.spec_of(ds)
+    spec = spec_of(ds)
     assert [p.distance for p in spec.points] == pytest.approx(ds["distance"].values, abs=1e-12)
     summary = provenance.provenance_summary(ds)
     assert summary["spec"] == json.loads(ds.attrs["spec_json"])
@@ -65,26 +66,26 @@ def test_dataset_records_spec_versions_and_keys(saved, hf_dimer):
 
 def test_key_agreement_notices_a_changed_key(saved):
     ds = ik.open_scan(saved[0])
-    spec = ik.results.spec_of(ds)
+    spec = spec_of(ds)
     ds["job_key"].values[0, 1, 0] = "0" * 64
     assert provenance.key_agreement(ds, plan_scan(spec)) == (14, 15)
 
 
 # ---------------------------------------------------------------------- sampling and subsets
 def test_sampling_is_reproducible_distinct_and_bounded():
-    a = provenance.sample_points(50, 7, seed=3)
-    assert np.array_equal(a, provenance.sample_points(50, 7, seed=3))
+    a = replay.sample_points(50, 7, seed=3)
+    assert np.array_equal(a, replay.sample_points(50, 7, seed=3))
     assert len(set(a.tolist())) == 7 and list(a) == sorted(a) and a.max() < 50
-    assert not np.array_equal(a, provenance.sample_points(50, 7, seed=4))
-    assert list(provenance.sample_points(4, 9)) == [0, 1, 2, 3]
+    assert not np.array_equal(a, replay.sample_points(50, 7, seed=4))
+    assert list(replay.sample_points(4, 9)) == [0, 1, 2, 3]
     with pytest.raises(ik.InputError, match="sample: 0"):
-        provenance.sample_points(4, 0)
+        replay.sample_points(4, 0)
 
 
 def test_subset_spec_gives_the_same_jobs(hf_dimer):
     for grid in ({"factors": [1.5, 1.0, 1.2]}, {"distances": [2.9, 1.9, 2.3]}):
         spec = ik.ScanSpec(dimer=hf_dimer, coordinate=ik.AtomPair(1, 2), levels=["hf/sto-3g"], **grid)
-        sub = provenance.subset_spec(spec, [0, 2])
+        sub = replay.subset_spec(spec, [0, 2])
         assert [p.distance for p in sub.points] == [spec.points[0].distance, spec.points[2].distance]
         full_keys = plan_scan(spec).table
         sub_keys = plan_scan(sub).table
@@ -95,7 +96,7 @@ def test_subset_spec_of_frames_picks_the_right_geometries(hf_dimer):
     shifts = [1.2, 0.0, 0.5]            # given out of order; points sort by value
     frames = [hf_dimer.translated_b(np.array([0.0, 0.0, s])) for s in shifts]
     spec = ik.ScanSpec(dimer=hf_dimer, coordinate=ik.Frames(frames, ik.AtomPair(1, 2)), levels=["hf/sto-3g"])
-    sub = provenance.subset_spec(spec, [1, 2])
+    sub = replay.subset_spec(spec, [1, 2])
     assert [p.distance for p in sub.points] == pytest.approx([spec.points[1].distance, spec.points[2].distance])
     for p, q in zip(sub.points, spec.points[1:]):
         assert np.array_equal(p.dimer.coordinates, q.dimer.coordinates)
@@ -105,23 +106,23 @@ def test_subset_spec_of_frames_picks_the_right_geometries(hf_dimer):
 # ---------------------------------------------------------------------- comparison
 def test_compare_datasets_applies_the_tolerances(saved):
     ds = ik.open_scan(saved[0])
-    table = provenance.tolerances(ds)
+    table = tolerances.tolerances(ds)
     # stated tolerances follow the SCF threshold: 3 x 100 x 1e-8 hartree in kcal/mol
     assert table["e_int"].value == pytest.approx(3 * 100 * 1e-8 * 627.5094740631)
     assert table["e_total_hartree"].value == pytest.approx(1e-6)
-    assert table["forces"].value == provenance.FORCE_TOLERANCE
+    assert table["forces"].value == tolerances.FORCE_TOLERANCE
     assert "wall_time_s" not in table and "job_key" not in table
-    rows = {r.variable: r for r in provenance.compare_datasets(ds, ds.copy(deep=True))}
+    rows = {r.variable: r for r in compare.compare_datasets(ds, ds.copy(deep=True))}
     assert all(r.passed and r.max_abs_deviation == 0 for r in rows.values())
 
     near = ds.copy(deep=True)
     near["e_int"].values[0, 1] += 0.5 * table["e_int"].value
-    row = {r.variable: r for r in provenance.compare_datasets(ds, near)}["e_int"]
+    row = {r.variable: r for r in compare.compare_datasets(ds, near)}["e_int"]
     assert row.passed and row.max_abs_deviation == pytest.approx(0.5 * table["e_int"].value)
 
     far = ds.copy(deep=True)
     far["e_int"].values[0, 1] += 2 * table["e_int"].value
-    row = {r.variable: r for r in provenance.compare_datasets(ds, far)}["e_int"]
+    row = {r.variable: r for r in compare.compare_datasets(ds, far)}["e_int"]
     assert not row.passed and "distance=2.1960" in row.where
 
     gap = ds.copy(deep=True)
@@ -129,9 +130,9 @@ def test_compare_datasets_applies_the_tolerances(saved):
     status = gap["status"].values.astype("<U6")
     status[0, 2] = "failed"
     gap["status"] = (gap["status"].dims, status)
-    rows = {r.variable: r for r in provenance.compare_datasets(ds, gap)}
+    rows = {r.variable: r for r in compare.compare_datasets(ds, gap)}
     assert not rows["force_along"].passed and rows["force_along"].mismatched == 1
-    assert not rows["status"].passed and not provenance.all_passed(list(rows.values()))
+    assert not rows["status"].passed and not compare.all_passed(list(rows.values()))
 
 
 def test_correlated_levels_get_their_own_tolerance(saved):
@@ -143,16 +144,16 @@ def test_correlated_levels_get_their_own_tolerance(saved):
     mp2 = ds.assign_coords(level=["mp2/sto-3g"])
     both = xr.concat([ds, mp2], dim="level", data_vars="minimal", coords="minimal", compat="override")
     both.attrs["spec_json"] = json.dumps(spec)
-    table = provenance.tolerances(both)["e_int"]
+    table = tolerances.tolerances(both)["e_int"]
     # SCF levels: 3 x 100 x 1e-8 hartree; correlated: 3 x 0.1 x sqrt(1e-8) hartree
     assert table.per_level["hf/sto-3g"].value == pytest.approx(3 * 1e-6 * 627.5094740631)
     assert table.per_level["mp2/sto-3g"].value == pytest.approx(3 * 1e-5 * 627.5094740631)
     shifted = both.copy(deep=True)
     shifted["e_int"].loc[{"level": "mp2/sto-3g"}] = shifted["e_int"].sel(level="mp2/sto-3g") + 0.01
-    rows = {r.variable: r for r in provenance.compare_datasets(both, shifted)}
+    rows = {r.variable: r for r in compare.compare_datasets(both, shifted)}
     assert rows["e_int [correlated levels]"].passed and rows["e_int [SCF levels]"].passed
     shifted["e_int"].loc[{"level": "hf/sto-3g"}] = shifted["e_int"].sel(level="hf/sto-3g") + 0.01
-    rows = {r.variable: r for r in provenance.compare_datasets(both, shifted)}
+    rows = {r.variable: r for r in compare.compare_datasets(both, shifted)}
     assert not rows["e_int [SCF levels]"].passed and "level=hf/sto-3g" in rows["e_int [SCF levels]"].where
 
 
@@ -161,7 +162,7 @@ def test_tolerances_scale_with_the_scf_threshold(saved):
     spec = json.loads(ds.attrs["spec_json"])
     spec["conv_tol"] = 1e-10
     ds.attrs["spec_json"] = json.dumps(spec)
-    assert provenance.tolerances(ds)["e_int"].value == pytest.approx(3 * 100 * 1e-10 * 627.5094740631)
+    assert tolerances.tolerances(ds)["e_int"].value == pytest.approx(3 * 100 * 1e-10 * 627.5094740631)
 
 
 # ---------------------------------------------------------------------- the commands
@@ -217,9 +218,9 @@ def test_verify_scan_from_python_on_a_dataset_and_a_path(saved):
     said = []
     table = ik.verify_scan(ik.open_scan(path), sample=2, seed=1, executor="serial", progress=False,
                            log=said.append)
-    assert isinstance(table, list) and all(isinstance(r, provenance.Deviation) for r in table)
+    assert isinstance(table, list) and all(isinstance(r, compare.Deviation) for r in table)
     assert table.passed and table.failed == [] and table.what == "verify"
-    assert list(table.indices) == list(provenance.sample_points(3, 2, seed=1))
+    assert list(table.indices) == list(replay.sample_points(3, 2, seed=1))
     saved_ds = ik.open_scan(path)
     assert np.allclose(table.distances, saved_ds["distance"].values[table.indices])
     assert table.fresh.sizes["distance"] == 2
@@ -252,7 +253,7 @@ def test_rerun_scan_from_python_reuses_the_store(saved):
     path, store = saved
     said = []
     fresh, table = ik.rerun_scan(path, cache=store, executor="serial", progress=False, log=said.append)
-    n_jobs = len(plan_scan(ik.results.spec_of(fresh)).jobs)       # 3 x 3 counterpoise + 2 own-basis monomers
+    n_jobs = len(plan_scan(spec_of(fresh)).jobs)       # 3 x 3 counterpoise + 2 own-basis monomers
     assert n_jobs == 11
     assert fresh.attrs["calculations_computed"] == 0 and fresh.attrs["calculations_from_store"] == n_jobs
     assert table.passed and table.what == "rerun" and list(table.indices) == [0, 1, 2]

@@ -16,8 +16,9 @@ import pytest
 from conftest import hf_dimer
 
 import interkit as ik
-from interkit import export, report
-from interkit.cli import main
+from interkit.cli.main import main
+from interkit.data.schema import CAUTION
+from interkit.share import export, report
 from interkit.units import ANGSTROM_TO_BOHR
 
 HOSTILE = 'HF dimer <script>alert(1)</script> & "friends"'
@@ -53,7 +54,7 @@ def test_report_is_self_contained_and_escapes_labels(scan, tmp_path):
                     "SAPT0 components", "Levels against a reference", "Provenance"):
         assert f"<h2>{heading}</h2>" in text
     ds = ik.open_scan(scan)
-    assert ik.results.CAUTION in text
+    assert CAUTION in text
     assert ds.attrs["pyscf_version"] in text and "CODATA 2018" in text
     # 2 levels x (4 points x 3 counterpoise calculations + 2 own-basis monomers)
     assert 'calculations with a store key</td><td class="text">28</td>' in text

@@ -12,7 +12,8 @@ import pytest
 from pyscf import dft, gto, lib, scf
 
 import interkit as ik
-from interkit.engine.sapt0 import estimate_sapt0_cost, sapt0_terms
+from interkit.engine.sapt0 import sapt0_terms
+from interkit.engine.sapt0_setup import estimate_sapt0_cost
 from interkit.units import ANGSTROM_TO_BOHR, HARTREE_TO_KCAL_PER_MOL
 
 lib.num_threads(1)
@@ -100,7 +101,7 @@ def test_elst10_equals_grid_integration(water, water_terms):
     conventional-integral RHF densities of A and B in the dimer basis, B's electrons
     put on a level-4 Becke grid of the dimer, A's electron potential at each point from
     analytic integrals, A's nuclei in B's potential analytically, nuclear repulsion."""
-    from interkit.engine.sapt0 import _basis_spec
+    from interkit.engine.sapt0_setup import _basis_spec
 
     basis = _basis_spec("jun-cc-pvdz", water.symbols)
     basis.update({"ghost-" + s: b for s, b in list(basis.items())})
@@ -310,7 +311,7 @@ def test_identity_with_hf_interaction(water_terms):
 def test_hf_interaction_matches_plain_pyscf_counterpoise(water, water_terms):
     """e_int_hf agrees with a conventional-integral pyscf counterpoise calculation to
     the density-fitting error (well below 0.01 kcal/mol)."""
-    from interkit.engine.sapt0 import _basis_spec
+    from interkit.engine.sapt0_setup import _basis_spec
 
     basis = _basis_spec("jun-cc-pvdz", water.symbols)
     basis.update({"ghost-" + s: b for s, b in list(basis.items())})

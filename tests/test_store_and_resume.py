@@ -15,7 +15,7 @@ import pytest
 import xarray as xr
 
 import interkit as ik
-from interkit.store import ResultStore
+from interkit.run.store import ResultStore
 
 SPEC_TOML = """
 name = "resume test"
@@ -136,6 +136,6 @@ def test_save_open_roundtrip_is_exact(tmp_path, small_dimer):
     back = ik.open_scan(path)
     xr.testing.assert_identical(back, ds)
     assert back["converged"].dtype == bool
-    assert ik.results.spec_of(back).to_dict() == spec.to_dict()
+    assert ik.spec_of(back).to_dict() == spec.to_dict()
     for name in ("e_int", "e_int_nocp", "bsse", "coordinates", "distance"):
         assert back[name].attrs["units"] in ("kcal/mol", "angstrom")

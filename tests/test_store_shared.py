@@ -17,10 +17,10 @@ import pytest
 from conftest import HF_DIMER_XYZ
 
 import interkit as ik
-from interkit import store as store_module
-from interkit.cli import main
-from interkit.plan import plan_scan
-from interkit.store import ResultStore, parse_size
+from interkit.cli.main import main
+from interkit.run import store as store_module
+from interkit.run.plan import plan_scan
+from interkit.run.store import ResultStore, parse_size
 
 HF_DIMER = HF_DIMER_XYZ
 
@@ -37,7 +37,7 @@ def _record(**extra) -> dict:
 
 def _job(i, what="stress test") -> tuple[str, dict]:
     """(key, job description) of a made-up job; the key is its description's hash."""
-    from interkit.plan import job_key
+    from interkit.run.plan import job_key
 
     job = {"what": what, "index": i}
     return job_key(job), job
@@ -97,8 +97,8 @@ def test_two_processes_with_overlapping_scans_share_one_store(tmp_path):
 
 WRITER = """
 import json, sys, time
-from interkit.plan import job_key
-from interkit.store import ResultStore
+from interkit.run.plan import job_key
+from interkit.run.store import ResultStore
 root, tag, rounds = sys.argv[1], sys.argv[2], int(sys.argv[3])
 store = ResultStore(root)
 jobs = [{"what": "stress test", "index": i} for i in range(8)]
@@ -110,11 +110,11 @@ for r in range(rounds):
 
 READER = """
 import sys, warnings
-from interkit.store import ResultStore
+from interkit.run.store import ResultStore
 warnings.simplefilter("error")
 root, rounds = sys.argv[1], int(sys.argv[2])
 store = ResultStore(root)
-from interkit.plan import job_key
+from interkit.run.plan import job_key
 keys = [job_key({"what": "stress test", "index": i}) for i in range(8)]
 seen = 0
 for r in range(rounds):

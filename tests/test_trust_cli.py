@@ -70,10 +70,10 @@ def test_frames_toml_with_another_atom_order_is_refused(tmp_path):
 def test_output_that_cannot_be_written_after_the_run_is_rescued(tmp_path, capsys, monkeypatch):
     """The folder becomes unwritable after the run (simulated: save_scan fails once with
     a permission error): the scan is saved under another name, and the message names it."""
-    import interkit.results
+    import interkit.data.schema
 
     spec = _spec(tmp_path)
-    real_save = interkit.results.save_scan
+    real_save = interkit.data.schema.save_scan
     calls = []
 
     def failing_once(ds, path):
@@ -82,7 +82,7 @@ def test_output_that_cannot_be_written_after_the_run_is_rescued(tmp_path, capsys
             raise PermissionError(13, "Permission denied", str(path))
         return real_save(ds, path)
 
-    monkeypatch.setattr(interkit.results, "save_scan", failing_once)
+    monkeypatch.setattr(interkit.data.schema, "save_scan", failing_once)
     out = tmp_path / "scan.nc"
     code = main(["scan", str(spec), "-o", str(out), "--serial", "--quiet", "--cache", str(tmp_path / "store")])
     err = capsys.readouterr().err.strip()
@@ -138,12 +138,12 @@ def test_exit_code_1_names_the_failed_points(tmp_path, capsys, monkeypatch):
 
 def test_exit_code_3_one_line_and_the_traceback_in_a_file(tmp_path, capsys, monkeypatch):
     """An unexpected error: one line naming a traceback file created for it (mode 0600)."""
-    import interkit.results
+    import interkit.data.schema
 
     def broken(path):
         raise ZeroDivisionError("division by zero somewhere inside")
 
-    monkeypatch.setattr(interkit.results, "open_scan", broken)
+    monkeypatch.setattr(interkit.data.schema, "open_scan", broken)
     code = main(["show", str(tmp_path / "x.nc")])
     err = capsys.readouterr().err
     assert code == 3
@@ -157,7 +157,7 @@ def test_exit_code_3_one_line_and_the_traceback_in_a_file(tmp_path, capsys, monk
 
 
 def test_exit_code_3_in_a_real_process_prints_no_traceback(tmp_path):
-    code = ("import sys, interkit.results as r\n"
+    code = ("import sys, interkit.data.schema as r\n"
             "def broken(path): raise KeyError('inside')\n"
             "r.open_scan = broken\n"
             "from interkit.cli import main\n"
@@ -229,7 +229,7 @@ def test_written_files_follow_the_umask(tmp_path, monkeypatch):
     try:
         ik.save_scan(ds, tmp_path / "a.nc")
         ik.write_report(ds, tmp_path / "a.html") if hasattr(ik, "write_report") else \
-            __import__("interkit.report").report.write_report(ds, tmp_path / "a.html")
+            __import__("interkit.share.report").report.write_report(ds, tmp_path / "a.html")
         os.umask(0o002)
         ik.save_scan(ds, tmp_path / "b.nc")
     finally:
@@ -241,7 +241,7 @@ def test_written_files_follow_the_umask(tmp_path, monkeypatch):
 
 def test_report_temporary_file_is_not_predictable(tmp_path):
     """A link planted at a guessable temporary name must not redirect the write."""
-    from interkit.report import write_report
+    from interkit.share.report import write_report
 
     victim = tmp_path / "victim.txt"
     victim.write_text("keep me")
@@ -290,7 +290,7 @@ def test_json_export_writes_null_for_nan(tmp_path):
     """A failed point (NaN) is exported as JSON null (standard JSON has no NaN)."""
     ds = _tiny_scan()
     ds["e_int"][...] = np.nan
-    from interkit.export import write_json
+    from interkit.share.export import write_json
 
     write_json(ds, tmp_path / "x.json")
     doc = json.loads((tmp_path / "x.json").read_text())
@@ -300,7 +300,7 @@ def test_json_export_writes_null_for_nan(tmp_path):
 def test_connect_passes_a_security_object(monkeypatch):
     """`--scheduler` is plain TCP unless a Dask security object is given: connect takes one."""
     distributed = pytest.importorskip("distributed")
-    import interkit.executors_dask as ed
+    import interkit.run.dask as ed
 
     seen = {}
 

@@ -12,9 +12,9 @@ from conftest import hf_dimer
 
 import interkit as ik
 from interkit.cli import main
-from interkit.plan import plan_scan
-from interkit.results import assemble, validate
-from interkit.store import ResultStore, _checksum
+from interkit.data.schema import assemble, validate
+from interkit.run.plan import plan_scan
+from interkit.run.store import ResultStore, _checksum
 
 #: two points of the hydrogen-fluoride test dimer in a minimal basis: 3 * 2 + 2 calculations
 N_JOBS = 8

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import pytest
 
 import interkit as ik
@@ -25,7 +27,7 @@ def test_molecules_use_our_bohr_not_pyscfs(water_dimer):
     import numpy as np
 
     from interkit.engine.molecule import build_molecule
-    from interkit.plan import _job_for
+    from interkit.run.plan import _job_for
 
     job = _job_for(water_dimer, range(6), (), 0, 0, ik.parse_level("hf/sto-3g"), 1e-10)
     mol = build_molecule(job)
@@ -51,7 +53,6 @@ FORBIDDEN = {"ipywidgets", "py3Dmol", "matplotlib", "dask", "distributed", "tqdm
 def test_compute_core_layer_contract(module):
     """The compute core imports numpy/scipy/pyscf only, never prints, never writes files."""
     import ast
-    from pathlib import Path
 
     path = Path(ik.__file__).parent / module
     tree = ast.parse(path.read_text())

@@ -11,8 +11,8 @@ import traitlets
 
 import interkit as ik
 import interkit.widgets as W
-from interkit.plan import plan_scan
-from interkit.results import assemble
+from interkit.data.schema import assemble
+from interkit.run.plan import plan_scan
 from interkit.units import convert_energy
 from interkit.widgets import viewer3d
 from interkit.widgets.runner import count_calculations

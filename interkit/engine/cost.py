@@ -101,7 +101,7 @@ def estimate_level_cost(level, symbols, coordinates, charge: int, spin: int, for
     from pyscf import df
     from pyscf.data import elements
 
-    from ..levels import ecp_assignment
+    from ..model.levels import ecp_assignment
     from .fitted_integrals import BLOCK_MB, FITTED_CACHE_MB
     from .mp2_gradient import RESPONSE_MEMORY_MB
     from .numint_cache import DEFAULT_CACHE_MB, GRID_RESPONSE_CACHE_MB
@@ -192,7 +192,7 @@ def _cached(level, symbols, coordinates, charge, spin, forces) -> dict:
 def scan_cost(spec) -> dict[str, dict]:
     """Estimate of every level of a spec (by level label), for the starting dimer (every
     point has the same atoms, so the same sizes)."""
-    from ..plan import force_method
+    from ..run.plan import force_method
 
     d = spec.dimer
     coords = tuple(tuple(float(x) for x in row) for row in d.coordinates)

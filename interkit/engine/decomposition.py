@@ -12,8 +12,8 @@ from __future__ import annotations
 import time
 import traceback
 
-from ..geometry import Dimer
-from ..plan import Job
+from ..model.geometry import Dimer
+from ..run.plan import Job
 from .sapt0 import TERM_KEYS, sapt0_terms
 
 #: extra keys of the sSAPT0 variant stored in every record

@@ -62,7 +62,7 @@ def dispersion_energy_and_gradient(
 
 def scheme_unavailable_reason(functional: str, scheme: str) -> str:
     """Why ``scheme`` cannot correct ``functional`` ('' when it can)."""
-    from ..levels import check_dispersion_parameters
+    from ..model.levels import check_dispersion_parameters
 
     try:
         check_dispersion_parameters(functional, scheme)

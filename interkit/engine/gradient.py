@@ -29,7 +29,7 @@ import numpy as np
 from pyscf import gto, mp
 from pyscf.grad import rhf as rhf_grad
 
-from ..levels import LevelOfTheory
+from ..model.levels import LevelOfTheory
 from .dispersion import dispersion_energy_and_gradient
 from .fitted_integrals import basis_fingerprint, fitted_integrals, left_apply, right_apply, unpacked
 from .numint_cache import grid_response_blocks

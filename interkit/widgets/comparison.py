@@ -18,12 +18,18 @@ import xarray as xr
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
-from ..comparison import ReferenceCurve, curve_pairs, default_reference, ranking_table, reference_from_file
-from ..corrections import flatten_dispersion, scheme_label
+from ..analysis.comparison import (
+    ReferenceCurve,
+    curve_pairs,
+    default_reference,
+    ranking_table,
+    reference_from_file,
+)
+from ..data.dispersion import flatten_dispersion, scheme_label
+from ..data.schema import open_scan, validate
 from ..errors import InputError, InterkitError
-from ..levels import parse_level
-from ..plot_comparison import compared_curves, plot_comparison
-from ..results import open_scan, validate
+from ..model.levels import parse_level
+from ..plot.comparison import compared_curves, plot_comparison
 from ..units import convert_energy
 from .style import DISPLAY_UNITS, error_html, note_html
 

@@ -1,6 +1,6 @@
-"""The energy-curve panel: interkit.plot drawn off-screen, shown as an image widget.
+"""The energy-curve panel: interkit.plot.curves drawn off-screen, shown as an image widget.
 
-The curves are drawn with :func:`interkit.plot.plot_curves` whenever the unit, the
+The curves are drawn with :func:`interkit.plot.curves.plot_curves` whenever the unit, the
 levels or the toggles change; moving the selected point only moves the marker
 artists and re-encodes the image, which is about twice as fast as a full redraw.
 """
@@ -16,8 +16,8 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from PIL import Image
 
-from ..corrections import flatten_dispersion
-from ..plot import LEVEL_COLOURS, plot_curves
+from ..data.dispersion import flatten_dispersion
+from ..plot.curves import LEVEL_COLOURS, plot_curves
 from ..units import convert_energy
 
 MARKER_COLOUR = "#111111"
@@ -25,7 +25,7 @@ MARKER_COLOUR = "#111111"
 
 def shown_energy(ds: xr.Dataset, level: str, unit: str) -> np.ndarray:
     """The curve drawn for ``level``: corrected energies, or uncorrected if no
-    counterpoise was computed (as :func:`interkit.plot.plot_curves` does), in ``unit``."""
+    counterpoise was computed (as :func:`interkit.plot.curves.plot_curves` does), in ``unit``."""
     e = convert_energy(ds["e_int"].sel(level=level).values, "kcal/mol", unit)
     if np.all(np.isnan(e)):
         e = convert_energy(ds["e_int_nocp"].sel(level=level).values, "kcal/mol", unit)
@@ -131,7 +131,7 @@ class CurvePanel:
 
 
 def level_colour(k: int) -> str:
-    """Colour of the k-th level (same palette as :mod:`interkit.plot`)."""
+    """Colour of the k-th level (same palette as :mod:`interkit.plot.curves`)."""
     return LEVEL_COLOURS[k % len(LEVEL_COLOURS)]
 
 

@@ -14,9 +14,9 @@ import numpy as np
 import traitlets
 import xarray as xr
 
-from ..corrections import flatten_dispersion
+from ..data.dispersion import flatten_dispersion
+from ..data.schema import open_scan, validate
 from ..errors import InterkitError
-from ..results import open_scan, validate
 from ..units import convert_energy
 from .curves import CurvePanel, component_figure, level_colour
 from .exports import EXPORT_SUFFIXES, write_csv, write_netcdf, write_report_file, write_shared
@@ -43,7 +43,7 @@ class ScanExplorer(widgets.VBox):
     Parameters
     ----------
     ds : xarray.Dataset or path-like
-        A scan Dataset (see :mod:`interkit.results`) or the path of a ``.nc`` file
+        A scan Dataset (see :mod:`interkit.data.schema`) or the path of a ``.nc`` file
         written by :func:`interkit.save_scan`.
     unit : str
         Initial display unit (kcal/mol, kJ/mol, eV or cm-1).

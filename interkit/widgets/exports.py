@@ -9,9 +9,9 @@ import os
 import numpy as np
 import xarray as xr
 
-from ..corrections import flatten_dispersion
+from ..data.dispersion import flatten_dispersion
+from ..data.schema import save_scan
 from ..errors import InputError
-from ..results import save_scan
 from ..units import convert_energy
 
 CSV_ENERGIES = ("e_int", "e_int_nocp", "bsse")
@@ -66,17 +66,17 @@ def write_csv(ds: xr.Dataset, path: str | os.PathLike, unit: str = "kcal/mol") -
 
 
 def write_report_file(ds: xr.Dataset, path: str | os.PathLike) -> str:
-    """Write the self-contained HTML report (:func:`interkit.report.write_report`);
+    """Write the self-contained HTML report (:func:`interkit.share.report.write_report`);
     return the path written."""
-    from ..report import write_report
+    from ..share.report import write_report
 
     return write_report(ds, path)
 
 
 def write_shared(ds: xr.Dataset, path: str | os.PathLike, fmt: str, unit: str = "kcal/mol") -> str:
     """Write the tidy CSV (``fmt='csv'``, energies in ``unit``) or the JSON with QCSchema
-    molecules (``fmt='json'``, kcal/mol) of :func:`interkit.export.export_scan`;
+    molecules (``fmt='json'``, kcal/mol) of :func:`interkit.share.export.export_scan`;
     return the path written."""
-    from ..export import export_scan
+    from ..share.export import export_scan
 
     return export_scan(ds, path, fmt, unit=unit if fmt == "csv" else "kcal/mol")

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
-from ..plot import plot_forces
+from ..plot.curves import plot_forces
 from .curves import CurvePanel
 
 #: arrows in the 3D view: angstrom of arrow per kcal/mol/angstrom of force
@@ -42,7 +42,7 @@ def force_arrows(ds: xr.Dataset, level: str, index: int, mode: str) -> list | No
     if mode == "atoms":
         return [(coords[a], coords[a] + ATOM_ARROW_SCALE * vec[a]) for a in range(len(coords))
                 if np.linalg.norm(vec[a]) > 1e-3]
-    from ..geometry import atomic_mass
+    from ..model.geometry import atomic_mass
 
     masses = np.array([atomic_mass(str(s)) for s in ds["symbol"].values])
     frag = ds["fragment"].values.astype(str)

@@ -16,12 +16,12 @@ import time
 import ipywidgets as widgets
 import numpy as np
 
-from ..coordinates import AtomPair, CentreOfMass
-from ..demo import demo_catalog, list_demos, load_demo
 from ..errors import InputError, InterkitError
-from ..geometry import Dimer
-from ..levels import parse_level
-from ..spec import DEFAULT_MEMORY_LIMIT_MB, ScanSpec
+from ..model.coordinates import AtomPair, CentreOfMass
+from ..model.demo import demo_catalog, list_demos, load_demo
+from ..model.geometry import Dimer
+from ..model.levels import parse_level
+from ..model.spec import DEFAULT_MEMORY_LIMIT_MB, ScanSpec
 from .curves import CurvePanel
 from .explorer import ScanExplorer
 from .runner import BackgroundScan, count_calculations
@@ -416,7 +416,7 @@ class ScanLauncher(widgets.VBox):
         if not n_levels:
             raise InputError("levels: no level of theory given")
         if self.dimer is not None and (self.forces.value or self.decomposition.value or self.dispersion.value.strip()):
-            from ..plan import plan_scan
+            from ..run.plan import plan_scan
 
             return len(plan_scan(self.build_spec()).jobs)
         return count_calculations(n_levels, n_points, bool(self.counterpoise.value))

@@ -1,7 +1,7 @@
 """A scan running in a background thread, with per-point progress for the launcher.
 
 This module only orchestrates: it calls :func:`interkit.run_scan` (with a progress
-callback and a cancel Event) and, for live views, :func:`interkit.results.assemble`
+callback and a cancel Event) and, for live views, :func:`interkit.data.schema.assemble`
 on the records received so far. It computes nothing itself.
 """
 
@@ -15,11 +15,11 @@ from collections.abc import Callable
 import numpy as np
 import xarray as xr
 
+from ..data.schema import assemble
 from ..errors import InterkitError
-from ..plan import plan_scan
-from ..results import assemble
-from ..run import posthoc_dispersion, run_scan
-from ..spec import ScanSpec
+from ..model.spec import ScanSpec
+from ..run.plan import plan_scan
+from ..run.scan import posthoc_dispersion, run_scan
 
 
 def count_calculations(n_levels: int, n_points: int, counterpoise: bool = True) -> int:
@@ -78,7 +78,7 @@ class BackgroundScan:
 
     def _preload(self, cache) -> None:
         """Records already in the store count as finished (read only, nothing computed)."""
-        from ..store import ResultStore
+        from ..run.store import ResultStore
 
         try:
             store = ResultStore(cache)
@@ -144,7 +144,7 @@ class BackgroundScan:
     def point_states(self) -> np.ndarray:
         """(level, point) array of 'waiting', 'partial', 'ok', 'retried', 'spin-contaminated'
         or 'failed'."""
-        from ..spin import spin_note
+        from ..model.spin import spin_note
 
         with self._lock:
             records = dict(self.records)

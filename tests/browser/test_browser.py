@@ -46,7 +46,7 @@ def _free_port() -> int:
 @pytest.fixture(scope="module")
 def saved_scan(tmp_path_factory):
     import interkit as ik
-    from interkit.demo import demo_catalog
+    from interkit.model.demo import demo_catalog
 
     i, j = demo_catalog()["water_methanol"]["contact"]
     spec = ik.ScanSpec(dimer=ik.load_demo("water_methanol"), coordinate=ik.AtomPair(i, j),
@@ -60,7 +60,7 @@ def saved_scan(tmp_path_factory):
 def scheme_scan(tmp_path_factory):
     """A small scan with a dispersion dimension (B3LYP and PBE0 x four schemes, HF)."""
     import interkit as ik
-    from interkit.demo import demo_catalog
+    from interkit.model.demo import demo_catalog
 
     i, j = demo_catalog()["water_methanol"]["contact"]
     spec = ik.ScanSpec(dimer=ik.load_demo("water_methanol"), coordinate=ik.AtomPair(i, j),

@@ -30,7 +30,7 @@ playwright_api = pytest.importorskip("playwright.sync_api")
 @pytest.fixture(scope="module")
 def report_file(tmp_path_factory):
     import interkit as ik
-    from interkit.report import write_report
+    from interkit.share.report import write_report
 
     dimer = hf_dimer()
     spec = ik.ScanSpec(dimer=dimer, coordinate=ik.AtomPair(1, 2), factors=[0.95, 1.0, 1.1, 1.3],

@@ -1,0 +1,7 @@
+"""``python -m interkit.cli``."""
+
+import sys
+
+from .main import main
+
+sys.exit(main())

@@ -1,0 +1,367 @@
+"""The ``interkit`` command line.
+
+    interkit scan SPEC.toml -o scan.nc [--workers N] [--cache DIR] [--serial] [--quiet]
+                  [--scheduler ADDRESS]
+    interkit demo [-o DIR] [--workers N]
+    interkit show scan.nc
+    interkit systems
+    interkit store info DIR | interkit store prune DIR --max-size 500MB
+    interkit rerun scan.nc [-o out.nc] [--cache DIR] [--workers N]   # same spec, compare with the file
+    interkit verify scan.nc [--sample N] [--seed S]    # recompute N points fresh; exit 1 off tolerance
+    interkit report scan.nc -o report.html [--reference LEVEL]   # self-contained HTML, works offline
+    interkit export scan.nc -o out.csv|out.json       # tidy CSV, or JSON with QCSchema molecules
+    interkit compare scan.nc [--reference LABEL | --reference-file FILE.csv|.nc] [--table out.csv]
+
+The saved-file commands (rerun, verify, report, export) live in :mod:`interkit.cli.saved`.
+
+Exit status: 0 success; 1 finished, but some points failed (the summary names them) or
+a check is off tolerance; 2 usage error or bad input (one line, nothing written); 3
+internal error, or a result that could not be written where asked (one line naming the
+file the traceback or the rescued scan went to). No command prints a raw traceback.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+
+from ..errors import InterkitError
+
+EXIT_USAGE = 2
+EXIT_INTERNAL = 3
+
+#: the demo scan: small enough for about a minute on 2 cores
+DEMO_LEVELS = ("hf/def2-svp", "b3lyp-d3bj/def2-svp")
+DEMO_FACTORS = (0.85, 0.9, 0.95, 1.0, 1.05, 1.1, 1.2, 1.35, 1.5, 1.75, 2.0)
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message):  # one line, exit 2
+        self.exit(EXIT_USAGE, f"interkit: error: {message}\n")
+
+
+def _build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(prog="interkit", description="Counterpoise-corrected interaction-energy scans of dimers.")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    sub.required = True
+
+    p = sub.add_parser("scan", help="run the scan described by a TOML spec file")
+    p.add_argument("spec", help="TOML spec file")
+    p.add_argument("-o", "--output", required=True, help="netCDF file to write")
+    _add_run_options(p)
+
+    p = sub.add_parser("demo", help="run the bundled demo scan (water-methanol hydrogen bond)")
+    p.add_argument("-o", "--output-dir", default="demo-output", help="folder for scan.nc and curve.png")
+    _add_run_options(p, default_cache=None)
+
+    p = sub.add_parser("show", help="print the minimum position and well depth of every level "
+                                    "(and the SAPT0 components, if computed)")
+    p.add_argument("scan", help="netCDF scan file")
+
+    sub.add_parser("systems", help="list the bundled demo dimers")
+
+    from .saved import add_commands
+
+    add_commands(sub, _add_run_options)
+
+    from .compare import add_commands as add_compare
+
+    add_compare(sub)
+
+    p = sub.add_parser("store", help="inspect or shrink a result store (the --cache folder)")
+    store_sub = p.add_subparsers(dest="store_command", metavar="ACTION", parser_class=_Parser)
+    store_sub.required = True
+    q = store_sub.add_parser("info", help="entries, size, least and most recent use, damaged entries")
+    q.add_argument("store", help="store folder")
+    q = store_sub.add_parser("prune", help="remove the least recently used entries until the store "
+                                           "fits a size limit")
+    q.add_argument("store", help="store folder")
+    q.add_argument("--max-size", required=True, help="size limit, e.g. 500MB, 2GB or 1GiB")
+    return parser
+
+
+def _add_run_options(p, default_cache: str | None = ".interkit-cache") -> None:
+    p.add_argument("--workers", type=int, default=None, help="worker processes (default: all cores)")
+    p.add_argument("--cache", default=default_cache,
+                   help="result store folder (default: %(default)s); finished calculations are reused")
+    p.add_argument("--serial", action="store_true", help="run in this process instead of worker processes")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.add_argument("--scheduler", metavar="ADDRESS", default=None,
+                   help="run one calculation per task on the Dask cluster of this scheduler "
+                        "(e.g. tcp://HOST:8786); the --cache folder must be visible to its workers")
+    p.add_argument("--cluster-wait", metavar="SECONDS", type=float, default=None,
+                   help="with --scheduler: seconds to wait for the scheduler (default 10) and for a "
+                        "first worker (default 60) before giving up with an error")
+
+
+def _energy_table(ds) -> str:
+    from ..data.dispersion import flatten_dispersion
+
+    ds = flatten_dispersion(ds)
+    variable, kind = _energy_variable(ds)
+    levels = [str(x) for x in ds["level"].values]
+    width = max(14, *(len(lv) + 2 for lv in levels))
+    head = f"{'R / Å':>8s}  " + "".join(f"{lv:>{width}s}" for lv in levels)
+    lines = [f"interaction energy, {kind} (kcal/mol)", head]
+    for i, r in enumerate(ds["distance"].values):
+        cells = []
+        for lv in levels:
+            v = float(ds[variable].sel(level=lv).values[i])
+            st = str(ds["status"].sel(level=lv).values[i])
+            cells.append(f"{'failed':>{width}s}" if st == "failed" else f"{v:>{width}.3f}")
+        lines.append(f"{r:8.3f}  " + "".join(cells))
+    return "\n".join(lines)
+
+
+def _minimum_report(ds) -> str:
+    from ..data.dispersion import flatten_dispersion
+
+    ds = flatten_dispersion(ds)
+    from ..analysis.minima import minimum_table
+
+    variable, kind = _energy_variable(ds)
+    lines = [f"scan: {ds.attrs.get('title', '')}",
+             f"coordinate: {ds['distance'].attrs.get('long_name', '')}; counterpoise: {ds.attrs.get('counterpoise')}",
+             f"minimum and well depth of the {kind} interaction energy ({variable})",
+             f"{'level':<28s} {'R_min / Å':>10s} {'well depth / kcal/mol':>22s}  note"]
+    for row in minimum_table(ds, variable):
+        note = [] if row["interior"] else ["minimum at the edge of the grid"]
+        if row["failed_points"]:
+            note.append(f"{row['failed_points']} failed point(s)")
+        lines.append(f"{row['level']:<28s} {row['r_min_angstrom']:>10.3f} "
+                     f"{row['well_depth_kcal_per_mol']:>22.3f}  {'; '.join(note)}")
+    lines.extend(_force_report(ds))
+    from ..data.sapt0 import decomposition_report
+
+    lines.extend(decomposition_report(ds))
+    lines.append("Note: " + ds.attrs.get("caution", ""))
+    return "\n".join(lines)
+
+
+def _energy_variable(ds) -> tuple[str, str]:
+    """The interaction-energy variable a scan's tables use, and how to call it: the
+    uncorrected ``e_int_nocp`` when the scan ran without counterpoise."""
+    if ds.attrs.get("counterpoise", "") == "none":
+        return "e_int_nocp", "uncorrected (no counterpoise correction)"
+    return "e_int", "counterpoise-corrected"
+
+
+def _failed_points(ds) -> list[str]:
+    """One line per level with failed points: where and why."""
+    lines = []
+    for level in ds["level"].values:
+        status = ds["status"].sel(level=level).values
+        bad = [i for i, st in enumerate(status) if str(st) == "failed"]
+        if not bad:
+            continue
+        detail = ds["status_detail"].sel(level=level).values if "status_detail" in ds.variables else None
+        where = ", ".join(f"R = {float(ds['distance'].values[i]):.3f} Å"
+                          + (f" ({str(detail[i])[:120]})" if detail is not None and str(detail[i]) else "")
+                          for i in bad)
+        lines.append(f"failed points of {level}: {where}")
+    return lines
+
+
+def _force_report(ds) -> list[str]:
+    """Where the net force along the coordinate vanishes, per level (if the scan has forces)."""
+    if "force_along" not in ds.variables:
+        return []
+    from ..analysis.minima import force_zero_crossing
+
+    lines = [f"{'level':<28s} {'force zero / Å':>14s}  forces from"]
+    for level in ds["level"].values:
+        r0 = force_zero_crossing(ds["distance"].values, ds["force_along"].sel(level=level).values)
+        method = str(ds["force_method"].sel(level=level).values)
+        text = f"{r0:>14.3f}" if r0 == r0 else f"{'no sign change':>14s}"
+        lines.append(f"{str(level):<28s} {text}  {method}")
+    return lines
+
+
+def _run(spec, args):
+    from ..run.scan import run_scan
+
+    if getattr(args, "scheduler", None):
+        return _run_on_scheduler(spec, args)
+    return run_scan(spec, executor="serial" if args.serial else "processes", cache=args.cache,
+                    progress=not args.quiet, workers=args.workers)
+
+
+def _cmd_scan(args) -> int:
+    from ..model.spec import load_spec_toml
+    from .output import OutputRescued, save_or_rescue
+
+    spec = load_spec_toml(args.spec)
+    _check_output(args.output)
+    ds = _run(spec, args)
+    rescued = None
+    try:
+        save_or_rescue(ds, args.output)
+    except OutputRescued as exc:
+        rescued = exc
+    print(_energy_table(ds))
+    print(_minimum_report(ds))
+    failed = _failed_points(ds)
+    for line in failed:
+        print(line)
+    if rescued is not None:
+        raise rescued
+    print(f"wrote {args.output}")
+    _store_summary(ds, args.output)
+    return 1 if failed else 0
+
+
+def _store_summary(ds, where: str) -> None:
+    """One line on stderr when results could not be written to the store."""
+    n = int(ds.attrs.get("calculations_not_stored", 0))
+    if n:
+        print(f"interkit: warning: {n} calculation(s) could not be written to the store; their results "
+              f"are in {where}, a rerun computes them again", file=sys.stderr)
+
+
+def demo_spec():
+    """The ScanSpec that ``interkit demo`` runs."""
+    from ..model.coordinates import AtomPair
+    from ..model.demo import DEFAULT_DEMO, demo_catalog, load_demo
+    from ..model.spec import ScanSpec
+
+    dimer = load_demo(DEFAULT_DEMO)
+    i, j = demo_catalog()[DEFAULT_DEMO]["contact"]
+    return ScanSpec(dimer=dimer, coordinate=AtomPair(i, j), factors=DEMO_FACTORS, levels=DEMO_LEVELS,
+                    name="water-methanol demo")
+
+
+def _cmd_demo(args) -> int:
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from ..plot.curves import plot_curves
+    from .output import check_output_folder, save_or_rescue
+
+    out = args.output_dir
+    check_output_folder(out, "--output-dir")
+    os.makedirs(out, exist_ok=True)
+    if args.cache is None:
+        args.cache = os.path.join(out, "cache")
+    spec = demo_spec()
+    ds = _run(spec, args)
+    nc, png = os.path.join(out, "scan.nc"), os.path.join(out, "curve.png")
+    save_or_rescue(ds, nc, "--output-dir")   # a failed write keeps the scan under another name
+    ax = plot_curves(ds, show_uncorrected=True)
+    ax.set_title("water–methanol hydrogen bond (interkit demo)", fontsize=10)
+    ax.figure.tight_layout()
+    ax.figure.savefig(png, dpi=120)
+    plt.close(ax.figure)
+    print(_energy_table(ds))
+    print(_minimum_report(ds))
+    print(f"wrote {nc} and {png} ({ds.attrs['calculations_computed']} calculations computed, "
+          f"{ds.attrs['calculations_from_store']} from the store, {ds.attrs['run_wall_time_s']:.1f} s)")
+    _store_summary(ds, nc)
+    failed = _failed_points(ds)
+    for line in failed:
+        print(line)
+    return 1 if failed else 0
+
+
+def _cmd_show(args) -> int:
+    from ..data.schema import open_scan
+
+    ds = open_scan(args.scan)
+    print(_minimum_report(ds))
+    return 0
+
+
+def _cmd_systems(args) -> int:
+    from ..model.demo import demo_catalog
+
+    for name, entry in sorted(demo_catalog().items()):
+        print(f"{name:<20s} {entry.get('character', ''):<22s} {entry.get('title', '')}")
+    return 0
+
+
+def _run_on_scheduler(spec, args):
+    from ..errors import InputError
+    from ..run.dask import connect, dask_executor
+    from ..run.scan import run_scan
+
+    if args.serial or args.workers is not None:
+        raise InputError("--scheduler: the cluster's workers run the scan; leave out --serial and --workers")
+    client = connect(args.scheduler, timeout=args.cluster_wait)
+    try:
+        return run_scan(spec, executor=dask_executor(client, args.cluster_wait), cache=args.cache,
+                        progress=not args.quiet)
+    finally:
+        client.close()
+
+
+def _cmd_store(args) -> int:
+    from ..run.store import ResultStore, format_size, parse_size
+
+    if args.store_command == "prune":
+        limit = parse_size(args.max_size, "--max-size")
+        store = ResultStore(args.store, create=False)
+        res = store.prune(limit)
+        print(f"removed {res.removed_entries} least recently used entries, {res.removed_damaged} damaged "
+              f"and {res.removed_partial} abandoned temporary files ({format_size(res.freed_bytes)})")
+        print(f"{args.store}: {res.remaining_entries} entries, {format_size(res.remaining_bytes)} "
+              f"(limit {format_size(limit)})")
+        return 0
+    info = ResultStore(args.store, create=False).info()
+
+    def when(t):
+        return t.strftime("%Y-%m-%d %H:%M:%S UTC") if t is not None else "-"
+
+    print(f"store               {info.root}")
+    print(f"entries             {info.entries} ({format_size(info.entry_bytes)})")
+    print(f"size on disk        {format_size(info.total_bytes)} ({info.total_bytes} bytes, all files)")
+    print(f"least recently used {when(info.least_recent_use)}")
+    print(f"most recently used  {when(info.most_recent_use)}")
+    print(f"damaged, set aside  {info.damaged}")
+    print(f"unfinished writes   {info.partial}")
+    return 0
+
+
+def _check_output(path: str) -> None:
+    from .output import check_output
+
+    check_output(path, "--output", (".nc",), "netCDF")
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Entry point of the ``interkit`` command; returns the exit status."""
+    parser = _build_parser()
+    args = parser.parse_args(argv)
+    if getattr(args, "workers", None) is not None and args.workers < 1:
+        print(f"interkit: error: --workers: {args.workers} is not a positive integer", file=sys.stderr)
+        return EXIT_USAGE
+    handlers = {"scan": _cmd_scan, "demo": _cmd_demo, "show": _cmd_show, "systems": _cmd_systems,
+                "store": _cmd_store}
+    from .saved import HANDLERS
+
+    handlers.update(HANDLERS)
+    from .compare import run_compare
+
+    handlers["compare"] = run_compare
+    try:
+        return handlers[args.command](args)
+    except InterkitError as exc:
+        print(f"interkit: error: {_one_line(exc)}", file=sys.stderr)
+        return getattr(exc, "exit_code", EXIT_USAGE)
+    except KeyboardInterrupt:
+        print("interkit: interrupted; finished calculations are kept in the store", file=sys.stderr)
+        return 130
+    except Exception as exc:  # last resort: one line, the traceback goes to a file
+        from .output import internal_error
+
+        return internal_error(exc)
+
+
+def _one_line(exc: BaseException) -> str:
+    """The message of ``exc`` on one line (newlines of an embedded excerpt folded)."""
+    return " ".join(str(exc).split("\n"))
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,8 @@
+"""matplotlib plots of scan Datasets (Dataset -> Axes): curves, forces, method
+comparisons and SAPT0 components."""
+
+from .comparison import plot_comparison
+from .components import plot_components
+from .curves import LEVEL_COLOURS, plot_curves, plot_forces
+
+__all__ = ["LEVEL_COLOURS", "plot_comparison", "plot_components", "plot_curves", "plot_forces"]

@@ -1,0 +1,108 @@
+"""Plots of a dispersion-correction comparison: curves over a reference, and their errors."""
+
+from __future__ import annotations
+
+import numpy as np
+import xarray as xr
+
+from ..analysis.comparison import resolve_reference
+from ..data.dispersion import flatten_dispersion
+from ..units import convert_energy
+from .curves import LEVEL_COLOURS, plain_text
+
+REFERENCE_COLOUR = "#1c1c1c"
+#: line styles of the schemes, so colours can stay with the functional
+SCHEME_STYLES = {"none": (0, (1, 2)), "d3zero": (0, (5, 2)), "d3bj": "solid", "d4": (0, (6, 2, 1, 2)),
+                 "d3zero-atm": (0, (3, 1)), "d3bj-atm": (0, (8, 1)), "d4-atm": (0, (2, 1))}
+
+
+def compared_curves(ds: xr.Dataset, reference_label: str | None = None) -> list[tuple[str, np.ndarray]]:
+    """``(label, e_int in kcal/mol)`` of every curve with values, one per (level,
+    scheme) pair, folded as in :func:`interkit.data.dispersion.flatten_dispersion`; the
+    curve labelled ``reference_label`` is left out."""
+    flat = flatten_dispersion(ds)
+    out = []
+    for level in flat["level"].values:
+        values = flat["e_int"].sel(level=level).values
+        if str(level) == reference_label or not np.isfinite(values).any():
+            continue
+        out.append((str(level), values))
+    return out
+
+
+def _style(label: str) -> tuple[str, object]:
+    from ..model.levels import parse_level
+
+    level = parse_level(label)
+    return (level.dispersion or "none"), SCHEME_STYLES.get(level.dispersion or "none", "solid")
+
+
+def plot_comparison(ds: xr.Dataset, reference_level: str | None = None, reference=None,
+                    reference_dispersion: str | None = None, unit: str = "kcal/mol",
+                    curves: list[str] | None = None, axes=None):
+    """Curves over the reference (left) and their errors, curve minus reference (right).
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A scan, with or without a ``dispersion`` dimension.
+    reference_level, reference, reference_dispersion
+        The reference, as in :func:`interkit.analysis.comparison.ranking_table`.
+    unit : str
+        Display unit of the energies.
+    curves : list of str, optional
+        Folded labels to draw (default: every curve with values).
+    axes : pair of matplotlib Axes, optional
+
+    Returns
+    -------
+    (Axes, Axes)
+    """
+    ref, ref_label = resolve_reference(ds, reference_level, reference, "e_int", reference_dispersion)
+    if axes is None:
+        import matplotlib.pyplot as plt
+
+        _, axes = plt.subplots(1, 2, figsize=(10, 3.8), layout="constrained")
+    ax_curve, ax_err = axes
+    r = ds["distance"].values
+    own_label = reference_level if reference_level is not None and (
+        reference_dispersion in (None, "none")) else None
+    if reference_level is not None and reference_dispersion not in (None, "none"):
+        from ..data.dispersion import scheme_label
+        from ..model.levels import parse_level
+
+        own_label = scheme_label(parse_level(reference_level), reference_dispersion)
+    chosen = compared_curves(ds, own_label)
+    if curves is not None:
+        chosen = [(lab, e) for lab, e in chosen if lab in curves]
+    heads = []
+    for label, values in chosen:
+        head = label.split("/")[0]
+        scheme, style = _style(label)
+        base = head[: -len(scheme) - 1] if scheme != "none" and head.endswith("-" + scheme) else head
+        if base not in heads:
+            heads.append(base)
+        colour = LEVEL_COLOURS[heads.index(base) % len(LEVEL_COLOURS)]
+        shown = convert_energy(values, "kcal/mol", unit)
+        ax_curve.plot(r, shown, color=colour, ls=style, lw=1.6, marker="o", ms=3, label=plain_text(label))
+        err = convert_energy(values - ref, "kcal/mol", unit)
+        ax_err.plot(r, err, color=colour, ls=style, lw=1.6, marker="o", ms=3, label=plain_text(label))
+    ax_curve.plot(r, convert_energy(ref, "kcal/mol", unit), color=REFERENCE_COLOUR, lw=2.4, ls="solid",
+                  marker="s", ms=3.5, label=plain_text(f"reference: {ref_label}"), zorder=5)
+    ax_curve.axhline(0.0, color="#8a8a8a", lw=0.8)
+    ax_err.axhline(0.0, color=REFERENCE_COLOUR, lw=1.2)
+    xlabel = f"{ds['distance'].attrs.get('long_name', 'distance')} / Å"
+    for ax in (ax_curve, ax_err):
+        ax.set_xlabel(xlabel, fontsize=8)
+        ax.tick_params(labelsize=7)
+    ax_curve.set_ylabel(f"interaction energy / {unit}", fontsize=8)
+    ax_err.set_ylabel(f"curve − reference / {unit}", fontsize=8)
+    ax_curve.set_title("curves and reference", fontsize=9)
+    ax_err.set_title("error against the reference", fontsize=9)
+    finite = ref[np.isfinite(ref)]
+    if finite.size:
+        low = convert_energy(float(finite.min()), "kcal/mol", unit)
+        span = abs(low) if low < 0 else 1.0
+        ax_curve.set_ylim(low - 0.8 * span, 1.5 * span)
+    ax_curve.legend(fontsize=6.5, frameon=False, loc="best")
+    return ax_curve, ax_err

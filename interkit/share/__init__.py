@@ -1,0 +1,1 @@
+"""Sharing results: provenance (verify, rerun), the HTML report and exports."""
