@@ -34,7 +34,8 @@ from .model.coordinates import AtomPair, CentreOfMass, Frames, ScanCoordinate, V
 from .model.demo import list_demos, load_demo
 from .model.geometry import Dimer
 from .model.levels import LevelOfTheory, parse_level
-from .model.spec import ScanSpec, load_spec_toml
+from .model.spec import ScanSpec
+from .model.spec_file import load_spec_toml
 from .run.scan import run_scan
 from .share.export import export_scan
 from .share.replay import rerun_scan, verify_scan

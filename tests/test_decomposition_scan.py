@@ -20,7 +20,8 @@ from pyscf import lib
 import interkit as ik
 from interkit.data.sapt0 import COMPONENTS, TERM_VARIABLES, decomposition_report
 from interkit.engine.sapt0 import sapt0_terms
-from interkit.run.plan import DECOMPOSITION_CONV_TOL_HARTREE, plan_scan
+from interkit.model.job import DECOMPOSITION_CONV_TOL_HARTREE
+from interkit.run.plan import plan_scan
 from interkit.units import HARTREE_TO_KCAL_PER_MOL
 
 lib.num_threads(1)

@@ -14,7 +14,7 @@ from conftest import s22_dimer
 import interkit as ik
 import interkit.analysis.minima
 import interkit.run.plan
-from interkit.run.plan import NUMERICAL_FORCE_STEP_ANGSTROM
+from interkit.model.job import NUMERICAL_FORCE_STEP_ANGSTROM
 from interkit.units import BOHR_TO_ANGSTROM, HARTREE_TO_KCAL_PER_MOL
 
 #: 1 hartree/bohr in kcal/mol/angstrom

@@ -10,8 +10,8 @@ from pathlib import Path
 import interkit as ik
 
 #: stages in data-flow order; a module may import its own stage and stages before it
-STAGES = ("base", "model", "engine", "run", "data", "analysis", "plot", "share", "cli", "widgets")
-BASE_MODULES = {"interkit.errors", "interkit.units", "interkit.version"}
+STAGES = ("base", "model", "engine", "data", "run", "analysis", "plot", "share", "cli", "widgets")
+BASE_MODULES = {"interkit.errors", "interkit.fileio", "interkit.units", "interkit.version"}
 PACKAGE_ROOT = Path(ik.__file__).parent
 
 

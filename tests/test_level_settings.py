@@ -10,9 +10,10 @@ import pytest
 from pyscf import gto, mp, scf
 
 import interkit as ik
-from interkit import plan as plan_module
 from interkit.errors import InputError, NotAvailableError, ResourceError
-from interkit.run.plan import Job, plan_scan
+from interkit.model import job as plan_module
+from interkit.model.job import Job
+from interkit.run.plan import plan_scan
 from interkit.units import ANGSTROM_TO_BOHR
 
 # (HX)2 test geometries built here (roughly hydrogen-bonded, not reference structures)
@@ -79,7 +80,7 @@ def test_lanl2dz_ecp_on_real_atoms_matches_direct_pyscf(xyz):
 
 def test_basis_without_loadable_ecp_is_refused(monkeypatch):
     """A valence basis whose ECP pyscf cannot load must not run all-electron."""
-    from interkit import levels
+    from interkit.model import levels
 
     levels.basis_ecp.cache_clear()
     monkeypatch.setattr(levels, "basis_ecp", lambda basis, symbol: None)
@@ -157,18 +158,18 @@ def test_key_changes_with_library_versions(monkeypatch, getter, level):
 def test_key_changes_with_dispersion_library_versions(monkeypatch):
     level = "b3lyp-d3bj/sto-3g"
     before = _job(level).key
+    d4_before = _job("b3lyp-d4/sto-3g").key
     real = plan_module._distribution_version
+    # pyscf-dispersion bundles the D3 and D4 libraries interkit calls
     monkeypatch.setattr(plan_module, "_distribution_version",
                         lambda name: "0.0.test" if name == "pyscf-dispersion" else real(name))
     assert _job(level).key != before
-    monkeypatch.setattr(plan_module, "_distribution_version",
-                        lambda name: "0.0.test" if name == "dftd3" else real(name))
-    assert _job(level).key != before
-    monkeypatch.setattr(plan_module, "_distribution_version", real)
-    d4_before = _job("b3lyp-d4/sto-3g").key
-    monkeypatch.setattr(plan_module, "_distribution_version",
-                        lambda name: "0.0.test" if name == "dftd4" else real(name))
     assert _job("b3lyp-d4/sto-3g").key != d4_before
+    # separately installed dftd3/dftd4 packages are not used: their versions stay out of the key
+    monkeypatch.setattr(plan_module, "_distribution_version",
+                        lambda name: "0.0.test" if name in ("dftd3", "dftd4") else real(name))
+    assert _job(level).key == before
+    assert _job("b3lyp-d4/sto-3g").key == d4_before
 
 
 def test_key_changes_with_numerics_version(monkeypatch):

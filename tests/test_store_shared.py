@@ -37,7 +37,7 @@ def _record(**extra) -> dict:
 
 def _job(i, what="stress test") -> tuple[str, dict]:
     """(key, job description) of a made-up job; the key is its description's hash."""
-    from interkit.run.plan import job_key
+    from interkit.model.job import job_key
 
     job = {"what": what, "index": i}
     return job_key(job), job
@@ -97,7 +97,7 @@ def test_two_processes_with_overlapping_scans_share_one_store(tmp_path):
 
 WRITER = """
 import json, sys, time
-from interkit.run.plan import job_key
+from interkit.model.job import job_key
 from interkit.run.store import ResultStore
 root, tag, rounds = sys.argv[1], sys.argv[2], int(sys.argv[3])
 store = ResultStore(root)
@@ -114,7 +114,7 @@ from interkit.run.store import ResultStore
 warnings.simplefilter("error")
 root, rounds = sys.argv[1], int(sys.argv[2])
 store = ResultStore(root)
-from interkit.run.plan import job_key
+from interkit.model.job import job_key
 keys = [job_key({"what": "stress test", "index": i}) for i in range(8)]
 seen = 0
 for r in range(rounds):

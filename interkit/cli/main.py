@@ -188,11 +188,11 @@ def _run(spec, args):
 
 
 def _cmd_scan(args) -> int:
-    from ..model.spec import load_spec_toml
-    from .output import OutputRescued, save_or_rescue
+    from ..model.spec_file import load_spec_toml
+    from .output import OutputRescued, check_scan_output, save_or_rescue
 
     spec = load_spec_toml(args.spec)
-    _check_output(args.output)
+    check_scan_output(args.output)
     ds = _run(spec, args)
     rescued = None
     try:
@@ -321,12 +321,6 @@ def _cmd_store(args) -> int:
     print(f"damaged, set aside  {info.damaged}")
     print(f"unfinished writes   {info.partial}")
     return 0
-
-
-def _check_output(path: str) -> None:
-    from .output import check_output
-
-    check_output(path, "--output", (".nc",), "netCDF")
 
 
 def main(argv: list[str] | None = None) -> int:

@@ -56,7 +56,7 @@ def save_or_rescue(ds, path: str, option: str = "--output") -> None:
     ``path``, else in the current folder, else in the temporary folder, under a new name,
     and raise :class:`OutputRescued` naming that file. Raises the original error only
     when no copy could be written anywhere."""
-    from .. import results
+    from ..data import schema as results
     from ..fileio import exclusive_temp
 
     try:
@@ -105,3 +105,8 @@ def internal_error(exc: BaseException) -> int:
     text = str(exc).splitlines()[0][:200] if str(exc) else ""
     print(f"interkit: internal error: {type(exc).__name__}: {text}; {where}", file=sys.stderr)
     return EXIT_INTERNAL
+
+
+def check_scan_output(path: str) -> None:
+    """Check the ``--output`` netCDF path of a command that writes a scan."""
+    check_output(path, "--output", (".nc",), "netCDF")

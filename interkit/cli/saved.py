@@ -76,10 +76,10 @@ def _finish(table) -> int:
 
 def cmd_rerun(args) -> int:
     from ..share.replay import rerun_scan
-    from .main import _check_output
+    from .output import check_scan_output
 
     if args.output is not None:
-        _check_output(args.output)
+        check_scan_output(args.output)
     with _executor(args) as executor:
         fresh, table = rerun_scan(args.scan, cache=args.cache, executor=executor, workers=args.workers,
                                   progress=not args.quiet, log=print)

@@ -30,8 +30,8 @@ from collections.abc import Callable
 import numpy as np
 import xarray as xr
 
+from ..model.job import CP_ROLES, ScanPlan
 from ..model.levels import DISPERSION_LABELS, LevelOfTheory
-from ..run.plan import CP_ROLES, ScanPlan
 from ..units import HARTREE_TO_KCAL_PER_MOL
 
 #: variables whose values depend on the dispersion scheme

@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..run.plan import NUMERICAL_FORCE_STEP_ANGSTROM, ScanPlan, force_method
+from ..model.job import NUMERICAL_FORCE_STEP_ANGSTROM, ScanPlan, force_method
 from ..units import BOHR_TO_ANGSTROM, HARTREE_TO_KCAL_PER_MOL
 
 #: hartree/bohr -> kcal/mol/angstrom

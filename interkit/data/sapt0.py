@@ -35,7 +35,7 @@ import numpy as np
 import xarray as xr
 
 from ..errors import InputError
-from ..run.plan import ScanPlan
+from ..model.job import ScanPlan
 from ..units import HARTREE_TO_KCAL_PER_MOL
 
 #: Dataset variable -> (term key of the SAPT0 record, description)

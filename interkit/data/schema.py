@@ -49,7 +49,7 @@ import numpy as np
 import xarray as xr
 
 from ..errors import InputError
-from ..run.plan import OWN_BASIS_ROLES, ROLE_LABELS, ScanPlan
+from ..model.job import OWN_BASIS_ROLES, ROLE_LABELS, ScanPlan
 from ..units import CODATA_EDITION, HARTREE_TO_KCAL_PER_MOL
 
 #: version 2 renamed the SAPT0 term variables (files of version 1 are converted on reading)

@@ -192,7 +192,7 @@ def _cached(level, symbols, coordinates, charge, spin, forces) -> dict:
 def scan_cost(spec) -> dict[str, dict]:
     """Estimate of every level of a spec (by level label), for the starting dimer (every
     point has the same atoms, so the same sizes)."""
-    from ..run.plan import force_method
+    from ..model.job import force_method
 
     d = spec.dimer
     coords = tuple(tuple(float(x) for x in row) for row in d.coordinates)

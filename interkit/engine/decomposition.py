@@ -13,7 +13,7 @@ import time
 import traceback
 
 from ..model.geometry import Dimer
-from ..run.plan import Job
+from ..model.job import Job
 from .sapt0 import TERM_KEYS, sapt0_terms
 
 #: extra keys of the sSAPT0 variant stored in every record

@@ -7,10 +7,11 @@ The corrections depend on the nuclear positions only, so they are evaluated on t
 from __future__ import annotations
 
 from collections.abc import Sequence
+from functools import lru_cache
 
 import numpy as np
 
-from ..errors import InputError
+from ..errors import InputError, NotAvailableError
 from ..units import ANGSTROM_TO_BOHR
 
 
@@ -60,10 +61,41 @@ def dispersion_energy_and_gradient(
     return float(np.asarray(result["energy"])), np.asarray(result["gradient"], dtype=float)
 
 
+@lru_cache(maxsize=256)
+def check_dispersion_parameters(functional: str, scheme: str) -> None:
+    """Raise InputError if the dispersion library has no parameters for the pair.
+
+    Raises
+    ------
+    InputError
+        The functional has its own nonlocal correlation, or the library has no damping
+        parameters for it.
+    NotAvailableError
+        The dispersion library (pyscf-dispersion) is not installed: that is not a
+        missing parameter set, and says so.
+    """
+    from ..model.levels import DISPERSION_LABELS, NONLOCAL_FUNCTIONALS
+
+    if functional in NONLOCAL_FUNCTIONALS:
+        raise InputError(f"level dispersion: functional {functional!r} has its own nonlocal (VV10) "
+                         f"correlation; run it without {DISPERSION_LABELS[scheme]}")
+    try:
+        import pyscf.dispersion  # noqa: F401
+    except ImportError:
+        raise NotAvailableError(f"level dispersion: {DISPERSION_LABELS[scheme]} needs the pyscf-dispersion "
+                                "package, which is not installed (pip install pyscf-dispersion)") from None
+    try:
+        dispersion_energy_and_gradient(("H", "H"), [[0.0, 0.0, 0.0], [0.0, 0.0, 0.74]], functional, scheme)
+    except InputError:
+        raise
+    except Exception:  # the libraries raise their own error types for unknown functionals
+        raise InputError(
+            f"level dispersion: {DISPERSION_LABELS[scheme]} has no parameters for functional {functional!r}"
+        ) from None
+
+
 def scheme_unavailable_reason(functional: str, scheme: str) -> str:
     """Why ``scheme`` cannot correct ``functional`` ('' when it can)."""
-    from ..model.levels import check_dispersion_parameters
-
     try:
         check_dispersion_parameters(functional, scheme)
     except InputError as exc:

@@ -15,9 +15,9 @@ import numpy as np
 from pyscf import cc, dft, mp, scf
 from pyscf.data import elements
 
+from ..model.job import Job
 from ..model.levels import SCS_OPPOSITE_SPIN, SCS_SAME_SPIN, LevelOfTheory
 from ..model.spin import BROKEN_SYMMETRY_GUESS
-from ..run.plan import Job
 from .dispersion import dispersion_energy_and_gradient
 from .guess import FRAGMENT_GUESS_CONV_TOL_HARTREE, broken_symmetry_guess
 from .molecule import build_molecule

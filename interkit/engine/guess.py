@@ -7,7 +7,7 @@ from collections.abc import Callable
 
 import numpy as np
 
-from ..run.plan import Job
+from ..model.job import Job
 from .molecule import build_molecule
 
 #: SCF energy threshold (hartree) of the fragment calculations behind the guess: the

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from pyscf import gto
 
+from ..model.job import Job
 from ..model.levels import ecp_assignment
-from ..run.plan import Job
 from ..units import ANGSTROM_TO_BOHR
 
 

@@ -107,8 +107,9 @@ class LevelOfTheory:
                 raise InputError(f"level dispersion: {dispersion!r} applies to DFT levels only, not {method!r}")
         if method == "dft":
             check_functional(functional)
-            if dispersion is not None:
-                check_dispersion_parameters(functional, dispersion)
+            if dispersion is not None and functional in NONLOCAL_FUNCTIONALS:
+                raise InputError(f"level dispersion: functional {functional!r} has its own nonlocal (VV10) "
+                                 f"correlation; run it without {DISPERSION_LABELS[dispersion]}")
         object.__setattr__(self, "method", method)
         object.__setattr__(self, "functional", functional)
         object.__setattr__(self, "dispersion", dispersion)
@@ -306,25 +307,6 @@ def check_functional(functional: str) -> None:
         raise InputError(f"level functional: {functional!r} is unknown to pyscf/libxc") from None
     if functional.upper() in ("HF",):
         raise InputError("level functional: use method 'hf' for Hartree-Fock")
-
-
-@lru_cache(maxsize=256)
-def check_dispersion_parameters(functional: str, scheme: str) -> None:
-    """Raise InputError if the dispersion library has no parameters for the pair."""
-    from ..engine.dispersion import dispersion_energy_and_gradient
-
-    if functional in NONLOCAL_FUNCTIONALS:
-        raise InputError(f"level dispersion: functional {functional!r} has its own nonlocal (VV10) "
-                         f"correlation; run it without {DISPERSION_LABELS[scheme]}")
-
-    try:
-        dispersion_energy_and_gradient(("H", "H"), [[0.0, 0.0, 0.0], [0.0, 0.0, 0.74]], functional, scheme)
-    except InputError:
-        raise
-    except Exception:  # library-specific error types
-        raise InputError(
-            f"level dispersion: {DISPERSION_LABELS[scheme]} has no parameters for functional {functional!r}"
-        ) from None
 
 
 @lru_cache(maxsize=1024)

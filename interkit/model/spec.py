@@ -8,22 +8,20 @@ from __future__ import annotations
 
 import json
 import math
-import os
-import tomllib
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..errors import InputError, NotAvailableError, ResourceError, excerpt
-from .coordinates import AtomPair, CentreOfMass, Frames, ScanCoordinate, Vector, coordinate_from_dict
+from ..errors import InputError, NotAvailableError
+from .coordinates import CentreOfMass, Frames, ScanCoordinate, coordinate_from_dict
 from .geometry import Dimer, covalent_radius_angstrom
 from .levels import (
     DISPERSION_SCHEMES,
     LEVEL_SETTINGS,
     LevelOfTheory,
-    apply_settings,
     check_basis,
+    ecp_assignment,
     parse_level,
 )
 
@@ -93,29 +91,6 @@ DEFAULT_DECOMPOSITION_BASIS = "jun-cc-pvdz"
 #: the decomposition is refused above this estimated size of its largest tensor (MB)
 DEFAULT_SAPT_MEMORY_LIMIT_MB = 8000.0
 DECOMPOSITIONS = ("sapt0",)
-
-
-#: CCSD(T) warning threshold in dimer basis functions. Measured here on one core
-#: (pyscf 2.14, frozen core): 48 functions 1.5 s, 82 functions 12.5 s, 100 functions
-#: 23 s per calculation; the cost grows roughly as N^6-N^7 beyond that, so 200
-#: functions means tens of minutes to hours per calculation, three per scan point.
-CCSD_T_WARN_BASIS_FUNCTIONS = 200
-
-
-def _warn_ccsdt_cost(level: LevelOfTheory, dimer: Dimer) -> None:
-    import warnings
-
-    from pyscf import gto
-
-    from ..errors import InterkitWarning
-
-    mol = gto.M(atom=[(s, tuple(x)) for s, x in zip(dimer.symbols, dimer.coordinates)],
-                basis=level.basis, charge=sum(dimer.charges), spin=None, verbose=0)
-    if mol.nao > CCSD_T_WARN_BASIS_FUNCTIONS:
-        warnings.warn(
-            f"level {level.label}: the dimer has {mol.nao} basis functions; CCSD(T) above "
-            f"{CCSD_T_WARN_BASIS_FUNCTIONS} takes tens of minutes to hours per calculation "
-            "(three per scan point)", InterkitWarning, stacklevel=4)
 
 
 @dataclass(frozen=True, eq=False)
@@ -226,8 +201,6 @@ class ScanSpec:
                 raise InputError(f"levels: {lab!r} appears twice")
         for lv in levels:
             check_basis(lv, self.dimer.symbols)
-            if lv.method == "ccsd(t)":
-                _warn_ccsdt_cost(lv, self.dimer)
         object.__setattr__(self, "levels", levels)
         if self.forces and not self.counterpoise:
             raise InputError("forces: forces are counterpoise-corrected; set counterpoise = true")
@@ -269,7 +242,6 @@ class ScanSpec:
         object.__setattr__(self, "decomposition", None if kind == "none" else kind)
         object.__setattr__(self, "decomposition_basis", basis.strip().lower())
         object.__setattr__(self, "sapt_memory_limit_mb", float(limit))
-        object.__setattr__(self, "_decomposition_cost", None)
         if kind == "none":
             return
         for label, mult in zip("AB", self.dimer.multiplicities):
@@ -277,36 +249,11 @@ class ScanSpec:
                 raise NotAvailableError(
                     f"decomposition: fragment {label} has multiplicity {mult}; "
                     "the SAPT0 decomposition needs closed-shell fragments (multiplicity 1)")
-        import warnings
-
-        from ..engine.molecule import ecp_for
-        from ..engine.sapt0_setup import estimate_sapt0_cost
-
-        heavy = ecp_for(self.decomposition_basis, self.dimer.symbols)
+        heavy = ecp_assignment(self.decomposition_basis, self.dimer.symbols)
         if heavy:
             raise NotAvailableError(
                 f"decomposition_basis: {self.decomposition_basis!r} needs effective core potentials for "
                 f"{', '.join(sorted(heavy))}; the SAPT0 decomposition is all-electron only")
-        try:
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore")
-                cost = estimate_sapt0_cost(self.dimer, self.decomposition_basis)
-        except Exception as exc:  # pyscf raises several types for unknown basis sets
-            raise InputError(
-                f"decomposition_basis: {self.decomposition_basis!r} cannot be built for the elements "
-                f"{', '.join(sorted(set(self.dimer.symbols)))}") from exc
-        if cost["peak_memory_mb"] > self.sapt_memory_limit_mb:
-            raise ResourceError(
-                f"sapt_memory_limit_mb: the SAPT0 decomposition in {self.decomposition_basis} needs about "
-                f"{cost['peak_memory_mb']:.0f} MB ({cost['largest_tensor']} tensor), above the limit of "
-                f"{self.sapt_memory_limit_mb:g} MB")
-        object.__setattr__(self, "_decomposition_cost", cost)
-
-    @property
-    def decomposition_cost(self) -> dict | None:
-        """Size estimate of one SAPT0 calculation (see
-        :func:`interkit.engine.sapt0_setup.estimate_sapt0_cost`), or None without decomposition."""
-        return self._decomposition_cost  # type: ignore[attr-defined]
 
     # ------------------------------------------------------------------ points
     def _build_points(self) -> tuple[ScanPoint, ...]:
@@ -468,165 +415,3 @@ def _check_dispersion_list(schemes, levels) -> tuple[str, ...] | None:
     if not any(lv.method == "dft" for lv in levels):
         raise InputError("dispersion: the schemes apply to DFT levels only, and no level is DFT")
     return tuple(items)
-
-
-def _check_keys(table: dict, section: str) -> None:
-    allowed = _TOML_KEYS[section]
-    for key in table:
-        if key not in allowed:
-            where = f"{section}.{key}" if section else key
-            raise InputError(f"spec key {where!r} is not recognised (allowed: {', '.join(sorted(allowed))})")
-
-
-def spec_from_mapping(data: dict, base_dir: str | os.PathLike = ".") -> ScanSpec:
-    """Build a spec from the TOML layout (see :func:`load_spec_toml`)."""
-    _check_keys(data, "")
-    for section in ("system", "scan", "calculation"):
-        if section not in data:
-            raise InputError(f"spec: table [{section}] is missing")
-        if not isinstance(data[section], dict):
-            raise InputError(f"spec: {section!r} must be a table")
-        _check_keys(data[section], section)
-    system, scan, calc = data["system"], data["scan"], data["calculation"]
-    kwargs = {k: system[k] for k in ("fragment_a", "charges", "multiplicities", "dimer_multiplicity")
-              if k in system}
-    if ("geometry" in system) == ("demo" in system):
-        raise InputError("system: give exactly one of system.geometry (an XYZ file) or system.demo")
-    for key in ("geometry", "demo"):
-        if key in system and not isinstance(system[key], str):
-            raise InputError(f"system.{key}: {system[key]!r} is not a "
-                             f"{'file name' if key == 'geometry' else 'demo system name'}")
-    if "geometry" in system:
-        path = os.path.join(os.fspath(base_dir), str(system["geometry"]))
-        dimer = Dimer.from_xyz(path, **kwargs)
-    else:
-        from .demo import load_demo
-
-        dimer = load_demo(str(system["demo"]), **kwargs)
-    kind = scan.get("coordinate", "centre-of-mass")
-    if kind == "centre-of-mass":
-        coordinate: ScanCoordinate = CentreOfMass()
-    elif kind == "atom-pair":
-        atoms = scan.get("atoms")
-        if not isinstance(atoms, list) or len(atoms) != 2:
-            raise InputError(f"scan.atoms: {atoms!r} is not a pair of atom indices")
-        coordinate = AtomPair(*atoms)
-    elif kind == "vector":
-        vector = scan.get("vector", ())
-        if not isinstance(vector, list):
-            raise InputError(f"scan.vector: {vector!r} is not a list of three numbers")
-        coordinate = Vector(tuple(vector))
-    elif kind == "frames":
-        if "frames" not in scan:
-            raise InputError("scan.frames: a frames scan needs a multi-frame XYZ file")
-        if not isinstance(scan["frames"], str):
-            raise InputError(f"scan.frames: {scan['frames']!r} is not the name of an XYZ file")
-        if "atoms" in scan and (not isinstance(scan["atoms"], list) or len(scan["atoms"]) != 2):
-            raise InputError(f"scan.atoms: {scan['atoms']!r} is not a pair of atom indices")
-        measure = AtomPair(*scan["atoms"]) if "atoms" in scan else CentreOfMass()
-        coordinate = Frames(os.path.join(os.fspath(base_dir), str(scan["frames"])), measure,
-                            scan.get("values"))
-    else:
-        raise InputError(
-            f"scan.coordinate: {kind!r} is not one of centre-of-mass, atom-pair, vector, frames"
-        )
-    levels = calc.get("levels")
-    if levels is None:
-        raise InputError("calculation.levels: missing; give e.g. [\"hf/def2-svp\"]")
-    if not isinstance(levels, list):
-        raise InputError(f"calculation.levels: {levels!r} is not a list of 'method/basis' strings")
-    levels = _levels_with_settings(levels, calc.get("settings", {}))
-    return ScanSpec(
-        dimer=dimer,
-        coordinate=coordinate,
-        distances=scan.get("distances"),
-        factors=scan.get("factors"),
-        levels=levels,
-        counterpoise=calc.get("counterpoise", True),
-        forces=calc.get("forces", False),
-        decomposition=calc.get("decomposition"),
-        decomposition_basis=calc.get("decomposition_basis", DEFAULT_DECOMPOSITION_BASIS),
-        sapt_memory_limit_mb=calc.get("sapt_memory_limit_mb", DEFAULT_SAPT_MEMORY_LIMIT_MB),
-        dispersion=calc.get("dispersion"),
-        conv_tol=calc.get("conv_tol", DEFAULT_CONV_TOL_HARTREE),
-        name=data.get("name", ""),
-        memory_limit_mb=calc.get("memory_limit_mb", DEFAULT_MEMORY_LIMIT_MB),
-    )
-
-
-def _levels_with_settings(items: list, common) -> list[LevelOfTheory]:
-    """Levels of a TOML ``levels`` list: strings, or inline tables ``{level = "...",
-    <setting> = ...}``; the ``[calculation.settings]`` table applies to every level,
-    an inline table's own settings override it."""
-    if not isinstance(common, dict):
-        raise InputError(f"calculation.settings: {common!r} must be a table")
-    _check_keys(common, "calculation.settings")
-    out = []
-    for k, item in enumerate(items):
-        own = {}
-        if isinstance(item, dict):
-            own = dict(item)
-            text = own.pop("level", None)
-            if not isinstance(text, str):
-                raise InputError(f"calculation.levels[{k}]: an inline table needs level = \"method/basis\"")
-            for key in own:
-                if key not in LEVEL_SETTINGS:
-                    raise InputError(f"calculation.levels[{k}].{key}: not a level setting "
-                                     f"(allowed: {', '.join(LEVEL_SETTINGS)})")
-        elif isinstance(item, str):
-            text = item
-        else:
-            raise InputError(f"calculation.levels[{k}]: {item!r} is not a 'method/basis' string")
-        level = parse_level(text)
-        out.append(apply_settings(level, {**common, **own}))
-    return out
-
-
-def load_spec_toml(path: str | os.PathLike) -> ScanSpec:
-    """Read a scan spec from a TOML file.
-
-    Layout (paths are relative to the spec file)::
-
-        name = "water-methanol"
-        [system]
-        geometry = "water_methanol.xyz"     # or: demo = "water_methanol"
-        charges = [0, 0]
-        multiplicities = [1, 1]             # 2S+1 of fragments A and B
-        dimer_multiplicity = 1              # optional; default high spin, S = S_A + S_B;
-                                            # the lowest spin |S_A - S_B| is computed as a
-                                            # broken-symmetry determinant (other values refused)
-        [scan]
-        coordinate = "atom-pair"            # centre-of-mass | atom-pair | vector | frames
-        atoms = [1, 5]
-        factors = [0.9, 1.0, 1.2, 1.5, 2.0] # or distances = [...] in angstrom
-        [calculation]
-        levels = ["hf/def2-svp", { level = "mp2/cc-pvdz", frozen_core = false }]
-        counterpoise = true
-        decomposition = "sapt0"             # optional: SAPT0 components at every point
-        decomposition_basis = "jun-cc-pvdz" # optional
-        sapt_memory_limit_mb = 8000         # optional
-        memory_limit_mb = 16000             # optional: refuse calculations estimated above it
-        [calculation.settings]              # optional: numerical settings of every level
-        density_fitting = true              # fitted SCF Coulomb/exchange
-        frozen_core = true                  # MP2, SCS-MP2, CCSD(T)
-        correlation_fitting = true          # fitted MP2/SCS-MP2 (CCSD(T) is always exact)
-        grid_level = 3                      # DFT grid, 0-9
-        grid_pruning = "nwchem"             # nwchem | sg1 | treutler | none
-        jk_auxbasis = "def2-universal-jkfit"  # SCF fitting basis (omit: pyscf's match)
-        ri_auxbasis = "cc-pvdz-ri"          # MP2 fitting basis (omit: the SCF's)
-
-    A level in ``levels`` is a ``"method/basis"`` string or an inline table with
-    ``level`` and its own settings, which override ``[calculation.settings]``.
-    Settings that do not apply to a level's method are ignored for it.
-    """
-    path = os.fspath(path)
-    if not os.path.isfile(path):
-        raise InputError(f"spec file: {path!r} does not exist")
-    try:
-        with open(path, "rb") as fh:
-            data = tomllib.loads(fh.read().decode("utf-8-sig"))   # a byte-order mark is allowed
-    except UnicodeDecodeError:
-        raise InputError(f"spec file {path!r}: not a UTF-8 text file (TOML)") from None
-    except tomllib.TOMLDecodeError as exc:
-        raise InputError(f"spec file {path!r}: not valid TOML ({excerpt(exc, 80)})") from None
-    return spec_from_mapping(data, os.path.dirname(os.path.abspath(path)))

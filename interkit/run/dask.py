@@ -232,7 +232,7 @@ class _WorkerSettings:
 def _versions() -> tuple[str, int]:
     import pyscf
 
-    from .plan import NUMERICS_VERSION
+    from ..model.job import NUMERICS_VERSION
 
     return pyscf.__version__, NUMERICS_VERSION
 

@@ -19,7 +19,7 @@ from contextlib import contextmanager
 
 import numpy as np
 
-from .plan import Job
+from ..model.job import Job
 
 _THREAD_VARS = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
 #: field an executor adds to a record it could not write to the store (the reason);

@@ -13,9 +13,10 @@ import xarray as xr
 
 from ..data.schema import assemble
 from ..errors import InputError, InterkitWarning
+from ..model.job import ScanPlan
 from ..model.spec import ScanSpec
 from .executors import NOT_STORED_FIELD, run_processes, run_serial
-from .plan import ScanPlan, plan_scan
+from .plan import plan_scan
 from .store import ResultStore
 
 ProgressCallback = Callable[[int, int, str, dict], None]
@@ -145,10 +146,7 @@ def run_scan(
         raise InputError(f"workers: {workers!r} is not a positive integer")
     if dask_executor is not None:  # the cluster decides; chunks follow its threads
         n_workers = max(1, sum(dask_executor.worker_threads().values()))
-    plan = plan_scan(spec)
-    from ..engine.cost import check_resources
-
-    check_resources(spec)  # size estimate of every level; refuses before any calculation
+    plan = plan_scan(spec)  # with the feasibility checks: refuses before any calculation
     store = ResultStore(cache) if cache is not None else None
     records: dict[str, dict] = {}
     if store is not None:

@@ -323,7 +323,7 @@ def entry_problem(key: str, job: dict, record: dict) -> str | None:
     with every field its job's outputs produce; the energy of an energy job must be a
     number.
     """
-    from .plan import job_key
+    from ..model.job import job_key
 
     if not isinstance(job, dict) or not isinstance(record, dict):
         return "job or record is not a mapping"

@@ -106,7 +106,7 @@ def tolerances(ds: xr.Dataset) -> dict[str, Tolerance]:
     (fixed values, see the module constants); numerical forces (central differences)
     inherit the interaction-energy tolerance divided by the step.
     """
-    from ..run.plan import NUMERICAL_FORCE_STEP_ANGSTROM
+    from ..model.job import NUMERICAL_FORCE_STEP_ANGSTROM
 
     tol = _conv_tol(ds)
     h = NUMERICAL_FORCE_STEP_ANGSTROM

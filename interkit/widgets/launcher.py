@@ -418,7 +418,7 @@ class ScanLauncher(widgets.VBox):
         if self.dimer is not None and (self.forces.value or self.decomposition.value or self.dispersion.value.strip()):
             from ..run.plan import plan_scan
 
-            return len(plan_scan(self.build_spec()).jobs)
+            return len(plan_scan(self.build_spec(), check=False).jobs)
         return count_calculations(n_levels, n_points, bool(self.counterpoise.value))
 
     def update_estimate(self) -> None:
@@ -444,10 +444,10 @@ class ScanLauncher(widgets.VBox):
         memory = ""
         if self.dimer is not None:
             try:
-                from ..engine.cost import check_resources
+                from ..run.feasibility import check_feasibility
 
                 spec = self.build_spec()
-                peak = max(c["peak_memory_mb"] for c in check_resources(spec).values())
+                peak = max(c["peak_memory_mb"] for c in check_feasibility(spec)["levels"].values())
                 memory = f"<br>largest calculation about {peak:.0f} MB (limit {spec.memory_limit_mb:g} MB)"
             except InterkitError as exc:
                 self.estimate.value = error_html(str(exc))

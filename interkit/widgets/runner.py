@@ -56,11 +56,8 @@ class BackgroundScan:
     def __init__(self, spec: ScanSpec, executor: str = "processes", cache: str | os.PathLike | None = None,
                  workers: int | None = None, on_progress: Callable | None = None,
                  on_done: Callable | None = None):
-        from ..engine.cost import check_resources
-
         self.spec = spec
-        self.plan = plan_scan(spec)
-        check_resources(spec)  # refuse before the background thread starts
+        self.plan = plan_scan(spec)  # feasibility checks: refuse before the background thread starts
         self.executor, self.cache, self.workers = executor, cache, workers
         self.on_progress, self.on_done = on_progress, on_done
         self.cancel_event = threading.Event()
