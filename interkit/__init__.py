@@ -36,6 +36,7 @@ from .model.geometry import Dimer
 from .model.levels import LevelOfTheory, parse_level
 from .model.spec import ScanSpec
 from .model.spec_file import load_spec_toml
+from .run.feasibility import check_feasibility
 from .run.scan import run_scan
 from .share.export import export_scan
 from .share.replay import rerun_scan, verify_scan
@@ -44,7 +45,7 @@ from .units import convert_energy
 from .version import __version__
 
 __all__ = [
-    "AtomPair", "CentreOfMass", "analysis", "comparison", "ConvergenceError", "fits", "Dimer", "Frames", "InputError",
+    "AtomPair", "CentreOfMass", "analysis", "check_feasibility", "comparison", "ConvergenceError", "fits", "Dimer", "Frames", "InputError",
     "InterkitError", "InterkitWarning", "LevelOfTheory", "NotAvailableError", "ResourceError",
     "ScanCoordinate", "ScanSpec", "StoreError", "Vector", "__version__", "convert_energy",
     "export_scan", "list_demos", "load_demo", "load_spec_toml", "open_scan", "parse_level",

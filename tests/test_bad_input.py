@@ -317,8 +317,8 @@ def test_api_errors_are_typed(small_dimer):
         ik.ScanSpec(dimer=small_dimer, coordinate=ik.AtomPair(1, 2), factors=[1.0], levels=["hf/sto-3g"],
                     decomposition="sapt9")
     with pytest.raises(ik.ResourceError, match="sapt_memory_limit_mb"):
-        ik.ScanSpec(dimer=small_dimer, coordinate=ik.AtomPair(1, 2), factors=[1.0], levels=["hf/sto-3g"],
-                    decomposition="sapt0", sapt_memory_limit_mb=0.001)
+        ik.check_feasibility(ik.ScanSpec(dimer=small_dimer, coordinate=ik.AtomPair(1, 2), factors=[1.0],
+                                         levels=["hf/sto-3g"], decomposition="sapt0", sapt_memory_limit_mb=0.001))
     with pytest.raises(ik.InputError, match="name: 5 is not a string"):
         ik.ScanSpec(dimer=small_dimer, coordinate=ik.AtomPair(1, 2), factors=[1.0], levels=["hf/sto-3g"], name=5)
     with pytest.raises(ik.InputError, match="fragment_a: 0.5 is not an atom index"):

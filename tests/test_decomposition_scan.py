@@ -21,6 +21,7 @@ import interkit as ik
 from interkit.data.sapt0 import COMPONENTS, TERM_VARIABLES, decomposition_report
 from interkit.engine.sapt0 import sapt0_terms
 from interkit.model.job import DECOMPOSITION_CONV_TOL_HARTREE
+from interkit.run.feasibility import decomposition_cost
 from interkit.run.plan import plan_scan
 from interkit.units import HARTREE_TO_KCAL_PER_MOL
 
@@ -63,11 +64,11 @@ def test_spec_fields_round_trip(water_spec):
     assert water_spec.decomposition == "sapt0"
     assert water_spec.decomposition_basis == "jun-cc-pvdz"
     assert water_spec.sapt_memory_limit_mb == 8000.0
-    assert water_spec.decomposition_cost["nbasis"] == 56
+    assert decomposition_cost(water_spec)["nbasis"] == 56
     again = ik.ScanSpec.from_json(water_spec.to_json())
     assert again.to_dict() == water_spec.to_dict()
     plain = ik.ScanSpec(dimer=water_spec.dimer, factors=[1.0], decomposition="none")
-    assert plain.decomposition is None and plain.decomposition_cost is None
+    assert plain.decomposition is None and decomposition_cost(plain) is None
 
 
 def test_plan_has_one_sapt0_job_per_point_with_the_fragment_split(water_spec):
@@ -102,9 +103,14 @@ def test_open_shell_fragment_is_refused_at_spec_time():
         ik.ScanSpec(dimer=dimer, coordinate=ik.CentreOfMass(), factors=[1.0], decomposition="sapt0")
 
 
-def test_memory_limit_is_refused_before_running(water_spec):
+def test_memory_limit_is_refused_before_running(water_spec, monkeypatch):
+    # building the spec is cheap; the estimate runs when the plan is made, before any job
+    spec = ik.ScanSpec(dimer=water_spec.dimer, factors=[1.0], decomposition="sapt0", sapt_memory_limit_mb=1)
+    import interkit.run.executors as executors
+
+    monkeypatch.setattr(executors, "run_chunk", lambda *a, **k: pytest.fail("a calculation ran"))
     with pytest.raises(ik.ResourceError) as info:
-        ik.ScanSpec(dimer=water_spec.dimer, factors=[1.0], decomposition="sapt0", sapt_memory_limit_mb=1)
+        ik.run_scan(spec, executor="serial", progress=False)
     text = str(info.value)
     assert "\n" not in text and text.startswith("sapt_memory_limit_mb: ") and "above the limit of 1 MB" in text
 

@@ -16,7 +16,7 @@ from ..units import ANGSTROM_TO_BOHR
 
 
 def dispersion_energy_and_gradient(
-    symbols: Sequence[str], coords_angstrom, functional: str, scheme: str
+    symbols: Sequence[str], coords_angstrom, functional: str, scheme: str, charge: int = 0
 ) -> tuple[float, np.ndarray]:
     """Dispersion energy (hartree) and its nuclear gradient (hartree/bohr).
 
@@ -30,6 +30,9 @@ def dispersion_energy_and_gradient(
         Functional whose damping parameters are used.
     scheme : {'d3zero', 'd3bj', 'd4', 'd3zero-atm', 'd3bj-atm', 'd4-atm'}
         ``-atm`` adds the three-body Axilrod–Teller–Muto term.
+    charge : int
+        Net charge of these atoms: D4's reference polarisabilities depend on the atomic
+        partial charges, which follow the total charge (D3 ignores it).
     """
     from pyscf import gto
 
@@ -40,6 +43,7 @@ def dispersion_energy_and_gradient(
     mol.atom = [(s, tuple(x)) for s, x in zip(symbols, coords * ANGSTROM_TO_BOHR)]
     mol.unit = "Bohr"
     mol.basis = {s: [[0, [1.0, 1.0]]] for s in set(symbols)}  # placeholder: only nuclei matter
+    mol.charge = int(charge)
     mol.spin = None
     mol.verbose = 0
     mol.build(parse_arg=False)
@@ -141,7 +145,8 @@ def dispersion_terms(jobs, schemes: Sequence[str], with_gradient: bool = False) 
                 usable[pair] = not scheme_unavailable_reason(*pair)
             if not usable[pair]:
                 continue
-            energy, grad = dispersion_energy_and_gradient(symbols, coords, job.level.functional, scheme)
+            energy, grad = dispersion_energy_and_gradient(symbols, coords, job.level.functional, scheme,
+                                                          charge=job.charge)
             full = None
             if with_gradient:
                 full = np.zeros((len(job.symbols), 3))

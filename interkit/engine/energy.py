@@ -253,7 +253,7 @@ def run_energy_job(job: Job, guess=None) -> tuple[dict, object]:
                     real = job.real_atoms
                     e_disp, _ = dispersion_energy_and_gradient(
                         [job.symbols[i] for i in real], [job.coordinates[i] for i in real],
-                        job.level.functional, job.level.dispersion)
+                        job.level.functional, job.level.dispersion, charge=job.charge)
             record.update(
                 scf_energy_hartree=e_scf,
                 correlation_energy_hartree=e_corr,

@@ -376,6 +376,6 @@ def dispersion_gradient(job, natm: int) -> tuple[float, np.ndarray]:
     real = job.real_atoms
     e, g = dispersion_energy_and_gradient([job.symbols[i] for i in real],
                                           [job.coordinates[i] for i in real],
-                                          job.level.functional, job.level.dispersion)
+                                          job.level.functional, job.level.dispersion, charge=job.charge)
     grad[real] = g
     return e, grad
