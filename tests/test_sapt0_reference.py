@@ -129,7 +129,7 @@ def test_long_range_exchange_sign_with_exact_integrals():
     both are negative, equal to each other within 2 % (single exchange dominates at long
     range), and the fitted values agree with them within 10 % (the fitting error of a
     1e-10 hartree quantity). Measured: exact -1.585e-10 / -1.918e-11 hartree at 9 / 10 Å,
-    fitted (default cc-pVDZ-type fit of aug-cc-pVDZ) 4.6 % / 4.4 % smaller in magnitude."""
+    fitted (pyscf default aug-cc-pVDZ-JKFIT/-RI) 4.6 % / 4.4 % smaller in magnitude."""
     water = s22_dimer("Water_dimer")
     ca, cb = water.centre_of_mass("A"), water.centre_of_mass("B")
     axis = (cb - ca) / np.linalg.norm(cb - ca)
