@@ -25,19 +25,23 @@ def comparison(tmp_path_factory):
 
 
 def _library_energy(symbols, coords_angstrom, functional, scheme):
-    """The dispersion libraries' own value (s-dftd3 / dftd4 through their pyscf bindings),
-    on a pyscf Mole built here independently of interkit's engine."""
-    from pyscf import gto
-    from pyscf.dispersion import dftd3, dftd4
+    """The dispersion libraries' own value through their own Python APIs (PyPI dftd3 and
+    dftd4, not the pyscf-dispersion wrapper the engine uses; same library versions, see
+    test_dispersion_libraries.py)."""
+    from dftd3 import interface as d3
+    from dftd4 import interface as d4
+    from pyscf.data.elements import charge
 
-    mol = gto.M(atom=[(s, tuple(x)) for s, x in zip(symbols, np.asarray(coords_angstrom) * ANGSTROM_TO_BOHR)],
-                unit="Bohr", basis="sto-3g", spin=None, verbose=0)
+    numbers = np.array([charge(s) for s in symbols])
+    pos = np.asarray(coords_angstrom, dtype=float) * ANGSTROM_TO_BOHR
     base, _, three = scheme.partition("-")
+    atm = three == "atm"
     if base == "d4":
-        model = dftd4.DFTD4Dispersion(mol, functional, atm=three == "atm")
+        model, param = d4.DispersionModel(numbers, pos), d4.DampingParam(method=functional, atm=atm)
     else:
-        model = dftd3.DFTD3Dispersion(mol, functional, version=base, atm=three == "atm")
-    return float(model.get_dispersion()["energy"])
+        cls = d3.RationalDampingParam if base == "d3bj" else d3.ZeroDampingParam
+        model, param = d3.DispersionModel(numbers, pos), cls(method=functional, atm=atm)
+    return float(model.get_dispersion(param, grad=False)["energy"])
 
 
 def test_stored_dispersion_equals_the_libraries_values(comparison):
