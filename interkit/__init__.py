@@ -38,6 +38,7 @@ from .model.levels import LevelOfTheory, parse_level
 from .model.spec import ScanSpec, load_spec_toml
 from .run.scan import run_scan
 from .share.export import export_scan
+from .share.methods import methods_bibtex, methods_text
 from .share.provenance import rerun_scan, verify_scan
 from .share.report import write_report
 from .units import convert_energy
@@ -46,7 +47,8 @@ __all__ = [
     "AtomPair", "CentreOfMass", "analysis", "ConvergenceError", "Dimer", "Frames", "InputError",
     "InterkitError", "InterkitWarning", "LevelOfTheory", "NotAvailableError", "ResourceError",
     "ScanCoordinate", "ScanSpec", "StoreError", "Vector", "__version__", "convert_energy",
-    "export_scan", "list_demos", "load_demo", "load_spec_toml", "open_scan", "parse_level",
+    "export_scan", "list_demos", "load_demo", "load_spec_toml", "methods_bibtex", "methods_text",
+    "open_scan", "parse_level",
     "rerun_scan", "run_scan", "save_scan", "validate", "verify_scan", "write_report",
 ]
 
