@@ -176,7 +176,7 @@ SAVED_CASES = [
     ("report folder missing", "report {d}/scan.nc -o {t}/nowhere/report.html", "does not exist"),
     ("report unknown reference", "report {d}/scan.nc -o {t}/report.html --reference mp2/x",
      "--reference: 'mp2/x' is not a level of the scan"),
-    ("export unknown suffix", "export {d}/scan.nc -o {t}/scan.txt", "should end in .csv or .json"),
+    ("export unknown suffix", "export {d}/scan.nc -o {t}/scan.txt", "should end in .csv, .json, .xyz or .extxyz"),
     ("export unknown format", "export {d}/scan.nc -o {t}/scan.csv --format xml", "invalid choice: 'xml'"),
     ("export unknown unit", "export {d}/scan.nc -o {t}/scan.csv --unit furlongs", "unit: 'furlongs'"),
 ]
