@@ -174,3 +174,25 @@ def test_cli_export_writes_xyz_and_extxyz(scan, tmp_path, capsys):
     assert "level: the scan has several curves" in err and not (tmp_path / "t.extxyz").exists()
     first = (tmp_path / "s.extxyz").read_text().splitlines()[1]
     assert 'energy_unit=eV' in first and json.dumps("eV/angstrom") in first
+
+
+def test_extxyz_of_a_scheme_of_a_dispersion_comparison(tmp_path):
+    # one SCF per point serves every scheme: the D3(BJ) curve differs from the bare one
+    # by the dispersion term only; the export takes the named (level, scheme) pair
+    import ase.io
+
+    spec = ik.ScanSpec(dimer=hf_dimer(), coordinate=ik.AtomPair(1, 2), factors=[1.0, 1.2],
+                       levels=["b3lyp/sto-3g"], dispersion=["none", "d3bj"], forces=True)
+    ds = ik.run_scan(spec, executor="serial", cache=None, progress=False)
+    kcal_to_ev = HARTREE_TO_EV / HARTREE_TO_KCAL_PER_MOL
+    bare, with_d3 = (ds["e_int"].sel(level="b3lyp/sto-3g", dispersion=s).values for s in ("none", "d3bj"))
+    assert np.all(np.abs(bare - with_d3) > 1e-4)   # the two curves can be told apart
+    for label, scheme in (("b3lyp-d3bj/sto-3g", "d3bj"), ("b3lyp/sto-3g", "none")):
+        path = ik.export_scan(ds, tmp_path / f"{scheme}.extxyz", level=label)
+        frames = ase.io.read(path, index=":")
+        sel = {"level": "b3lyp/sto-3g", "dispersion": scheme}
+        energies = [a.get_potential_energy() for a in frames]
+        np.testing.assert_allclose(energies, ds["e_int"].sel(sel).values * kcal_to_ev, rtol=1e-10)
+        np.testing.assert_allclose(np.stack([a.get_forces() for a in frames]),
+                                   ds["forces"].sel(sel).values * kcal_to_ev, rtol=1e-9, atol=1e-12)
+        assert frames[0].info["curve"] == label
