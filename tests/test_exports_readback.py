@@ -196,3 +196,7 @@ def test_extxyz_of_a_scheme_of_a_dispersion_comparison(tmp_path):
         np.testing.assert_allclose(np.stack([a.get_forces() for a in frames]),
                                    ds["forces"].sel(sel).values * kcal_to_ev, rtol=1e-9, atol=1e-12)
         assert frames[0].info["curve"] == label
+    # the tidy CSV names the pair by level and dispersion; it reads back by its folded label
+    tidy = ik.export_scan(ds, tmp_path / "tidy.csv")
+    for label, values in (("b3lyp-d3bj/sto-3g", with_d3), ("b3lyp/sto-3g", bare)):
+        np.testing.assert_allclose(reference_from_csv(tidy, curve=label).e_int_kcal_per_mol, values, rtol=1e-9)
