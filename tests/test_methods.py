@@ -75,6 +75,8 @@ def test_every_method_gets_its_original_papers(scan):
     assert text.count("frozen core orbitals (default") == 3
     assert "For CCSD(T)/def2-TZVP: conventional (not density-fitted) SCF integrals" in text
     assert "MP2 correlation energy density-fitted with the same fitting basis as the SCF" in text
+    # SCS-MP2 factors of Grimme, J. Chem. Phys. 118, 9095 (2003): 6/5 and 1/3
+    assert "opposite-spin correlation scaled by 1.2, same-spin by 0.3333" in text
 
 
 def test_a_recorded_setting_replaces_the_default(scan):

@@ -171,6 +171,11 @@ def _level_sentence(level: dict, spec: dict, symbols: list[str], schemes, cite: 
         head += f" as defined in libxc{_libxc_ids(fn)}" + cite.cite(["lehtola2018"])
     else:
         head = METHOD_NAMES[method] + cite.cite(refs.METHOD_REFERENCES.get(method, ()))
+        if method == "scs-mp2":
+            from ..model.levels import SCS_OPPOSITE_SPIN, SCS_SAME_SPIN
+
+            head += (f" (opposite-spin correlation scaled by {SCS_OPPOSITE_SPIN:.4g}, same-spin by "
+                     f"{SCS_SAME_SPIN:.4g})")
     disp = [level["dispersion"]] if level.get("dispersion") else [s for s in (schemes or []) if s != "none"]
     if method == "dft" and disp:
         from ..model.levels import DISPERSION_LABELS
