@@ -39,6 +39,7 @@ from .model.spec_file import load_spec_toml
 from .run.feasibility import check_feasibility
 from .run.scan import run_scan
 from .share.export import export_scan
+from .share.methods import methods_bibtex, methods_text
 from .share.replay import rerun_scan, verify_scan
 from .share.report import write_report
 from .units import convert_energy
@@ -48,8 +49,9 @@ __all__ = [
     "AtomPair", "CentreOfMass", "analysis", "check_feasibility", "comparison", "ConvergenceError", "fits", "Dimer", "Frames", "InputError",
     "InterkitError", "InterkitWarning", "LevelOfTheory", "NotAvailableError", "ResourceError",
     "ScanCoordinate", "ScanSpec", "StoreError", "Vector", "__version__", "convert_energy",
-    "export_scan", "list_demos", "load_demo", "load_spec_toml", "open_scan", "parse_level",
-    "rerun_scan", "run_scan", "save_scan", "spec_of", "validate", "verify_scan", "write_report",
+    "export_scan", "list_demos", "load_demo", "load_spec_toml", "methods_bibtex", "methods_text",
+    "open_scan", "parse_level", "rerun_scan", "run_scan", "save_scan", "spec_of", "validate", "verify_scan",
+    "write_report",
 ]
 
 

@@ -193,7 +193,7 @@ ROWS = [
     cmd("report output not html", "report {d}/scan.nc -o {t}/report.pdf", "should end in .html"),
     cmd("report output a folder", "report {d}/scan.nc -o {i}/r.html", "--output: '{i}/r.html' is a folder, not a file (HTML)", files={"r.html": DIR}),
     cmd("report folder missing", "report {d}/scan.nc -o {t}/nowhere/report.html", "does not exist"),
-    cmd("export unknown suffix", "export {d}/scan.nc -o {t}/scan.txt", "should end in .csv or .json"),
+    cmd("export unknown suffix", "export {d}/scan.nc -o {t}/scan.txt", "should end in .csv, .json, .xyz or .extxyz"),
     cmd("export output a folder", "export {d}/scan.nc -o {i}/x.json", "--output: '{i}/x.json' is a folder", files={"x.json": DIR}),
     cmd("compare table not csv", "compare {d}/scan.nc --table {t}/rank.txt", "--table: '{t}/rank.txt' should end in .csv"),
     cmd("compare table a folder", "compare {d}/scan.nc --table {i}/rank.csv", "--table: '{i}/rank.csv' is a folder", files={"rank.csv": DIR}),

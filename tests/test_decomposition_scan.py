@@ -331,4 +331,4 @@ def test_csv_export_carries_the_components(water_scan, tmp_path):
         rows = list(csv.DictReader(fh))
     assert len(rows) == water_scan.sizes["level"] * water_scan.sizes["distance"]
     expected = float(water_scan["e_elst"].values[1]) * 4.184  # kcal -> kJ (thermochemical calorie)
-    assert float(rows[1]["e_elst [kJ/mol]"]) == pytest.approx(expected, rel=1e-7)
+    assert float(rows[1]["e_elst_kj_per_mol"]) == pytest.approx(expected, rel=1e-7)

@@ -118,8 +118,8 @@ def test_exports_are_written_and_readable(explorer, scan, tmp_path):
         rows = list(csv.DictReader(fh))
     assert len(rows) == scan.sizes["level"] * scan.sizes["distance"]
     first = rows[0]
-    assert float(first["e_int [kJ/mol]"]) == pytest.approx(float(scan.e_int[0, 0]) * 4.184, rel=1e-6)
-    assert float(first["distance [angstrom]"]) == pytest.approx(float(scan.distance[0]))
+    assert float(first["e_int_kj_per_mol"]) == pytest.approx(float(scan.e_int[0, 0]) * 4.184, rel=1e-6)
+    assert float(first["distance_angstrom"]) == pytest.approx(float(scan.distance[0]))
     assert explorer.export_figure(tmp_path / "s.png") and (tmp_path / "s.png").read_bytes()[:4] == b"\x89PNG"
     explorer.export_figure(tmp_path / "s.svg")
     assert "<svg" in (tmp_path / "s.svg").read_text()

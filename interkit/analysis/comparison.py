@@ -6,7 +6,6 @@ signed error means the method binds more strongly than the reference there.
 
 from __future__ import annotations
 
-import csv
 import math
 from dataclasses import asdict, dataclass
 from pathlib import Path
@@ -15,7 +14,8 @@ import numpy as np
 import xarray as xr
 from scipy.interpolate import CubicSpline
 
-from ..errors import InputError, excerpt
+from ..errors import InputError
+from ..model.levels import REFERENCE_PREFERENCE, default_reference  # noqa: F401  (part of this module's API)
 from .minima import find_minimum
 
 DISTANCE_COLUMN = "distance_angstrom"
@@ -174,17 +174,24 @@ class ReferenceCurve:
         return out
 
 
-def reference_from_csv(path) -> ReferenceCurve:
+def reference_from_csv(path, curve: str | None = None) -> ReferenceCurve:
     """Read a reference curve from a CSV file.
 
-    The first non-blank line not starting with ``#`` is a header naming the columns
-    ``distance_angstrom`` and ``e_int_kcal_per_mol`` (other columns are ignored). Rows
-    whose energy is ``nan`` are dropped.
+    The first non-blank line not starting with ``#`` is a header that follows the column
+    convention of :mod:`interkit.data.columns`: ``distance_angstrom`` and
+    ``e_int_kcal_per_mol`` (or ``e_int`` in another energy unit, e.g. ``e_int_kj_per_mol``;
+    other columns are ignored), or a tidy table (``variable``, ``value``, ``unit``). Every
+    CSV curve table interkit exports reads back this way. Rows whose energy is empty or
+    ``nan`` are dropped.
 
     Parameters
     ----------
     path : str or pathlib.Path
         CSV file.
+    curve : str, optional
+        With several curves in the table (columns ``curve`` or ``level`` [+
+        ``dispersion``]), the folded label of the one to read; by default the most
+        accurate wavefunction level (:func:`default_reference`).
 
     Returns
     -------
@@ -197,45 +204,10 @@ def reference_from_csv(path) -> ReferenceCurve:
         Missing file or column, a row with a missing or non-numeric value, non-positive
         or repeated distances, or fewer than 2 finite points.
     """
+    from ..data.columns import read_curve_table
+
     p = Path(path)
-    try:
-        text = p.read_text(encoding="utf-8-sig")
-    except OSError as exc:
-        raise InputError(f"reference file {str(p)!r}: cannot be read ({exc.strerror})") from None
-    except UnicodeDecodeError:
-        raise InputError(f"reference file {str(p)!r}: not a UTF-8 text (CSV) file") from None
-    if "\x00" in text:
-        raise InputError(f"reference file {str(p)!r}: not a text (CSV) file (it contains NUL bytes)")
-    header = None
-    rs, es = [], []
-    for lineno, row in enumerate(csv.reader(text.splitlines()), start=1):
-        if not row or not "".join(row).strip() or row[0].lstrip().startswith("#"):
-            continue
-        if header is None:
-            header = [c.strip() for c in row]
-            for col in (DISTANCE_COLUMN, ENERGY_COLUMN):
-                if col not in header:
-                    raise InputError(f"{p.name} line {lineno}: header lacks column {col!r} (found {excerpt(', '.join(header))})")
-            i_r, i_e = header.index(DISTANCE_COLUMN), header.index(ENERGY_COLUMN)
-            continue
-        values = []
-        for col, i in ((DISTANCE_COLUMN, i_r), (ENERGY_COLUMN, i_e)):
-            if i >= len(row) or not row[i].strip():
-                raise InputError(f"{p.name} line {lineno}: column {col!r} is empty")
-            try:
-                values.append(float(row[i]))
-            except ValueError:
-                raise InputError(f"{p.name} line {lineno}: column {col!r} value {excerpt(row[i].strip())} "
-                                 "is not a number") from None
-        if not np.isfinite(values[0]) or values[0] <= 0:
-            raise InputError(f"{p.name} line {lineno}: column {DISTANCE_COLUMN!r} value {values[0]!r} "
-                             "is not a positive distance")
-        rs.append(values[0])
-        es.append(values[1])
-    if header is None:
-        raise InputError(f"{p.name}: no header line with columns {DISTANCE_COLUMN!r}, {ENERGY_COLUMN!r}")
-    r = np.asarray(rs, dtype=float)
-    e = np.asarray(es, dtype=float)
+    r, e, label = read_curve_table(p, curve)
     ok = np.isfinite(e)
     r, e = r[ok], e[ok]
     if len(r) < 2:
@@ -245,7 +217,7 @@ def reference_from_csv(path) -> ReferenceCurve:
     if np.any(np.diff(r) == 0):
         raise InputError(f"{p.name}: column {DISTANCE_COLUMN!r} repeats the value "
                          f"{r[:-1][np.diff(r) == 0][0]!r}")
-    return ReferenceCurve(r, e, str(p))
+    return ReferenceCurve(r, e, f"{p} [{label}]" if label else str(p))
 
 
 def _energy_array(ds: xr.Dataset, variable: str) -> xr.DataArray:
@@ -377,8 +349,6 @@ def ranking_table(ds: xr.Dataset, reference_level: str | None = None, reference=
     return [{"rank": i + 1, **row} for i, row in enumerate(rows)]
 
 
-#: preferred references, most accurate first (common practice)
-REFERENCE_PREFERENCE = ("ccsd(t)", "mp2", "scs-mp2")
 
 
 def curve_pairs(ds: xr.Dataset, variable: str | None = None) -> dict[str, tuple[str, str | None]]:
@@ -401,15 +371,6 @@ def curve_pairs(ds: xr.Dataset, variable: str | None = None) -> dict[str, tuple[
             if np.isfinite(ds[variable].sel(level=level).values).any():
                 out[str(level)] = (str(level), None)
     return out
-
-
-def default_reference(labels: list[str]) -> str:
-    """The most accurate wavefunction level among ``labels`` (else the first label)."""
-    for method in REFERENCE_PREFERENCE:
-        for label in labels:
-            if label.split("/")[0] == method:
-                return label
-    return labels[0]
 
 
 def reference_from_scan(path, curve: str | None = None) -> ReferenceCurve:
@@ -451,9 +412,7 @@ def reference_from_scan(path, curve: str | None = None) -> ReferenceCurve:
 
 def reference_from_file(path, curve: str | None = None) -> ReferenceCurve:
     """A reference curve from a CSV file (:func:`reference_from_csv`) or a saved scan
-    (``.nc``, :func:`reference_from_scan`, with ``curve`` choosing its curve)."""
+    (``.nc``, :func:`reference_from_scan`); ``curve`` chooses the curve of either."""
     if str(path).lower().endswith(".nc"):
         return reference_from_scan(path, curve)
-    if curve is not None:
-        raise InputError("reference curve: a CSV file holds one curve; leave out the curve label")
-    return reference_from_csv(path)
+    return reference_from_csv(path, curve)

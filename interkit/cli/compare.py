@@ -33,7 +33,8 @@ def add_commands(sub) -> None:
                        help="external reference: CSV with distance_angstrom and e_int_kcal_per_mol, "
                             "or another saved scan (.nc)")
     p.add_argument("--reference-curve", metavar="LABEL",
-                   help="curve of the --reference-file scan (default: its most accurate wavefunction level)")
+                   help="curve of the --reference-file scan or CSV table (default: its most accurate "
+                        "wavefunction level)")
     p.add_argument("--table", metavar="CSV", help="also write the ranking to this CSV file")
     p.set_defaults(handler=run_compare)
 

@@ -11,8 +11,12 @@
     interkit report scan.nc -o report.html [--reference LEVEL]   # self-contained HTML, works offline
     interkit export scan.nc -o out.csv|out.json       # tidy CSV, or JSON with QCSchema molecules
     interkit compare scan.nc [--reference LABEL | --reference-file FILE.csv|.nc] [--table out.csv]
+    interkit methods scan.nc [--bibtex refs.bib]     # methods paragraph for a paper
+    interkit inspect FILE.xyz [--charges QA QB]       # atoms, fragments, closest A-B contacts
+    interkit --version
 
-The saved-file commands (rerun, verify, report, export) live in :mod:`interkit.cli.saved`.
+The saved-file commands (rerun, verify, report, export) live in :mod:`interkit.cli.saved`;
+methods, inspect and systems in :mod:`interkit.cli.extras`.
 
 Exit status: 0 success; 1 finished, but some points failed (the summary names them) or
 a check is off tolerance; 2 usage error or bad input (one line, nothing written); 3
@@ -43,6 +47,7 @@ class _Parser(argparse.ArgumentParser):
 
 def _build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="interkit", description="Counterpoise-corrected interaction-energy scans of dimers.")
+    parser.add_argument("--version", action="version", version=f"interkit {__import__('interkit').__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     sub.required = True
 
@@ -68,6 +73,9 @@ def _build_parser() -> argparse.ArgumentParser:
     from .compare import add_commands as add_compare
 
     add_compare(sub)
+    from .extras import add_commands as add_extras
+
+    add_extras(sub)
 
     p = sub.add_parser("store", help="inspect or shrink a result store (the --cache folder)")
     store_sub = p.add_subparsers(dest="store_command", metavar="ACTION", parser_class=_Parser)
@@ -338,6 +346,9 @@ def main(argv: list[str] | None = None) -> int:
     from .compare import run_compare
 
     handlers["compare"] = run_compare
+    from .extras import HANDLERS as EXTRA_HANDLERS
+
+    handlers.update(EXTRA_HANDLERS)   # methods, inspect, and systems with its contacts
     try:
         return handlers[args.command](args)
     except InterkitError as exc:

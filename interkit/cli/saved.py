@@ -3,7 +3,7 @@
     interkit rerun scan.nc [-o out.nc] [--cache DIR] [--workers N] [--serial] [--quiet]
     interkit verify scan.nc [--sample N] [--seed S] [--workers N] [--serial] [--quiet]
     interkit report scan.nc -o report.html [--reference LEVEL]
-    interkit export scan.nc -o out.csv|out.json [--format csv|json] [--unit UNIT]
+    interkit export scan.nc -o out.csv|out.json|out.xyz|out.extxyz [--format F] [--unit UNIT] [--level L]
 
 ``rerun`` and ``verify`` exit with status 1 when a number lies outside its tolerance.
 """
@@ -44,11 +44,12 @@ def add_commands(sub, add_run_options) -> None:
 
     from ..share.export import FORMATS
 
-    p = sub.add_parser("export", help="write the scan as a tidy CSV table or as JSON with QCSchema molecules")
+    p = sub.add_parser("export", help="write the scan as a tidy CSV table, JSON with QCSchema molecules, or XYZ geometries (.xyz; .extxyz with energies and forces)")
     p.add_argument("scan", help="netCDF scan file")
-    p.add_argument("-o", "--output", required=True, help="file to write (.csv or .json)")
+    p.add_argument("-o", "--output", required=True, help="file to write (.csv, .json, .xyz or .extxyz)")
     p.add_argument("--format", choices=FORMATS, default=None, help="csv or json (default: from the suffix)")
     p.add_argument("--unit", default="kcal/mol", help="energy unit of the CSV (default: %(default)s)")
+    p.add_argument("--level", default=None, help="extxyz: curve whose energy and forces are written")
 
 
 @contextmanager
@@ -121,7 +122,7 @@ def cmd_export(args) -> int:
     export_format(args.output, args.format, ("--output", "--format"))   # check before reading the scan
     check_output(args.output, "--output", (".csv", ".json") if args.format is None else ("",), "export")
     ds = open_scan(args.scan)
-    export_scan(ds, args.output, args.format, args.unit)
+    export_scan(ds, args.output, args.format, args.unit, level=args.level)
     print(f"wrote {args.output}")
     return 0
 

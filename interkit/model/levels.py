@@ -396,3 +396,18 @@ def _valence_only(basis: str, symbol: str) -> bool:
     config = elements.CONFIGURATION[elements.charge(symbol)]
     capacity = (2, 6, 10, 14)
     return any(counts[ang] < -(-config[ang] // capacity[ang]) for ang in range(4))
+
+
+#: preferred references, most accurate first (common practice)
+REFERENCE_PREFERENCE = ("ccsd(t)", "mp2", "scs-mp2")
+
+
+def default_reference(labels: list[str]) -> str:
+    """The most accurate wavefunction level among ``labels`` (else the first label): the
+    one rule by which reports, ``interkit compare`` and the comparison widget pick a
+    reference curve when none is named."""
+    for method in REFERENCE_PREFERENCE:
+        for label in labels:
+            if label.split("/")[0] == method:
+                return label
+    return labels[0]

@@ -6,7 +6,13 @@ per-point variable, with the columns ``level``, [``dispersion``,] ``distance_ang
 dimension (the SAPT0 terms) leave ``level`` empty; (level, scheme) pairs that do not
 exist (a dispersion scheme on a non-DFT level) have no rows, and a scheme without
 parameters for a functional has empty values with the reason as status. Per-atom arrays (forces) and
-per-calculation totals stay in the netCDF file and the JSON export.
+per-calculation totals stay in the netCDF file and the JSON export. Column names follow
+the convention of :mod:`interkit.data.columns`; the table reads back as a reference
+curve (:func:`interkit.analysis.comparison.reference_from_csv`).
+
+Geometries: ``.xyz`` (multi-frame XYZ) and ``.extxyz`` (extended XYZ with the
+interaction energy in eV and forces in eV/angstrom of one curve), see
+:mod:`interkit.share.trajectory`.
 
 JSON (:func:`scan_document`, :func:`write_json`): a document of our own,
 ``"schema_name": "interkit_scan_export"``, holding the units, the provenance, every
@@ -35,7 +41,7 @@ EXPORT_SCHEMA_VERSION = 1
 RUN_VARIABLES = frozenset({"wall_time_s", "sapt_wall_time_s"})
 #: per-point dimensions of the tidy table, in column order
 POINT_DIMS = ("level", "dispersion", "distance")
-FORMATS = ("csv", "json")
+FORMATS = ("csv", "json", "xyz", "extxyz")   # xyz/extxyz: interkit.share.trajectory
 
 
 def _check_folder(path: str) -> None:
@@ -323,12 +329,13 @@ def export_format(path: str, fmt: str | None = None, fields: tuple[str, str] = (
         return fmt
     suffix = os.path.splitext(path)[1].lower().lstrip(".")
     if suffix not in FORMATS:
-        raise InputError(f"{fields[0]}: {path!r} should end in .csv or .json (or give {fields[1]})")
+        raise InputError(f"{fields[0]}: {path!r} should end in .csv, .json, .xyz or .extxyz (or give {fields[1]})")
     return suffix
 
 
-def export_scan(ds, path: str | os.PathLike, fmt: str | None = None, unit: str = "kcal/mol") -> str:
-    """Write a scan as a tidy CSV table or as JSON with QCSchema molecules.
+def export_scan(ds, path: str | os.PathLike, fmt: str | None = None, unit: str = "kcal/mol",
+                level: str | None = None) -> str:
+    """Write a scan as a tidy CSV table, JSON with QCSchema molecules, or XYZ geometries.
 
     Parameters
     ----------
@@ -336,11 +343,15 @@ def export_scan(ds, path: str | os.PathLike, fmt: str | None = None, unit: str =
         A scan Dataset, or the ``.nc`` file written by :func:`interkit.save_scan`.
     path : path-like
         File to write; its folder must exist.
-    fmt : {'csv', 'json'}, optional
+    fmt : {'csv', 'json', 'xyz', 'extxyz'}, optional
         Default: from the suffix of ``path``.
     unit : str
         Energy unit of the CSV (kcal/mol, kJ/mol, eV, cm-1 or hartree; forces stay in
-        kcal/mol/angstrom). The JSON keeps kcal/mol and states every variable's units.
+        kcal/mol/angstrom). The JSON keeps kcal/mol and states every variable's units;
+        the extended XYZ uses eV and eV/angstrom, as ase expects.
+    level : str, optional
+        Extended XYZ only: the curve (folded label) whose energy and forces are written;
+        required when the scan has several.
 
     Returns
     -------
@@ -353,6 +364,14 @@ def export_scan(ds, path: str | os.PathLike, fmt: str | None = None, unit: str =
         from .provenance import load_saved
 
         ds = load_saved(ds)[0]
+    if kind in ("xyz", "extxyz"):
+        from .trajectory import write_trajectory
+
+        if unit != "kcal/mol":
+            raise InputError(f"unit: the {kind} export has fixed units (angstrom; eV for extxyz), not {unit!r}")
+        return write_trajectory(ds, path, kind, level)
+    if level is not None:
+        raise InputError(f"level: applies to the extxyz export only, not {kind}")
     if kind == "csv":
         return write_tidy_csv(ds, path, unit)
     if unit != "kcal/mol":

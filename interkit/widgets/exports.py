@@ -9,6 +9,7 @@ import os
 import numpy as np
 import xarray as xr
 
+from ..data.columns import column_name
 from ..data.dispersion import flatten_dispersion
 from ..data.schema import save_scan
 from ..errors import InputError
@@ -27,9 +28,11 @@ def write_netcdf(ds: xr.Dataset, path: str | os.PathLike) -> str:
 
 
 def write_csv(ds: xr.Dataset, path: str | os.PathLike, unit: str = "kcal/mol") -> str:
-    """Write one row per (level, point): distance, factor, energies in ``unit``, status.
+    """Write one row per (curve, point): distance, factor, energies in ``unit``, status.
 
-    The header names the units, e.g. ``e_int [kJ/mol]``; missing values are empty.
+    Column names follow :mod:`interkit.data.columns` (``curve``, ``distance_angstrom``,
+    ``factor``, ``e_int_kj_per_mol`` ...), so the file reads back as a reference curve
+    (:func:`interkit.analysis.comparison.reference_from_csv`); missing values are empty.
     """
     ds = flatten_dispersion(ds)
     path = os.fspath(path)
@@ -39,11 +42,10 @@ def write_csv(ds: xr.Dataset, path: str | os.PathLike, unit: str = "kcal/mol") -
     # per-level curves, or per-point values shared by every level (SAPT0 components)
     extra = [name for name in ("force_along", "e_elst", "e_exch", "e_ind", "e_disp", "e_sapt0")
              if name in ds.variables and ds[name].dims in (("level", "distance"), ("distance",))]
-    header = ["level", "distance [angstrom]", "factor [1]"]
-    header += [f"{name} [{unit}]" for name in CSV_ENERGIES]
+    header = ["curve", "distance_angstrom", "factor"]
+    header += [column_name(name, unit) for name in CSV_ENERGIES]
     for name in extra:
-        header.append(f"{name} [{ds[name].attrs.get('units', '')}]" if name == "force_along"
-                      else f"{name} [{unit}]")
+        header.append(column_name(name, ds[name].attrs.get("units") if name == "force_along" else unit))
     header.append("status")
     r = ds["distance"].values
     factor = ds["factor"].values if "factor" in ds.coords else np.full_like(r, np.nan)
