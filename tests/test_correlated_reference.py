@@ -104,7 +104,7 @@ def ccsd_t_total(mol: gto.Mole) -> float:
 def scan():
     spec = ik.ScanSpec(dimer=hf_dimer(), coordinate=ik.AtomPair(1, 2), factors=[1.0],
                        levels=[f"scs-mp2/{BASIS}", f"ccsd(t)/{BASIS}", f"mp2/{BASIS}"],
-                       conv_tol=CONV)
+                       scf_threshold_hartree=CONV)
     return ik.run_scan(spec, progress=False, executor="serial")
 
 

@@ -29,7 +29,7 @@ TOL_HARTREE = 1e-10
 def _spec(factors=(0.95, 1.0, 1.1, 1.2, 1.4, 1.7), level="hf/def2-svp") -> ik.ScanSpec:
     dimer = ik.Dimer.from_xyz_string(HF_DIMER, name="hf-dimer")
     return ik.ScanSpec(dimer=dimer, coordinate=ik.AtomPair(1, 2), factors=list(factors), levels=[level],
-                       conv_tol=1e-11)
+                       scf_threshold_hartree=1e-11)
 
 
 @pytest.fixture(scope="module")
@@ -195,7 +195,7 @@ def test_cli_scheduler_option(client, tmp_path):
     (tmp_path / "g.xyz").write_text(HF_DIMER)
     spec_file = tmp_path / "spec.toml"
     spec_file.write_text('[system]\ngeometry = "g.xyz"\n[scan]\ncoordinate = "atom-pair"\natoms = [1, 2]\n'
-                         'factors = [1.0, 1.3]\n[calculation]\nlevels = ["hf/sto-3g"]\nconv_tol = 1e-11\n')
+                         'factors = [1.0, 1.3]\n[calculation]\nlevels = ["hf/sto-3g"]\nscf_threshold_hartree = 1e-11\n')
     out = tmp_path / "scan.nc"
     code = main(["scan", str(spec_file), "-o", str(out), "--cache", str(tmp_path / "store"), "--quiet",
                  "--scheduler", client.scheduler.address])

@@ -25,7 +25,7 @@ SLACK_S = 15.0
 
 def _spec() -> ik.ScanSpec:
     return ik.ScanSpec(dimer=hf_dimer(), coordinate=ik.AtomPair(1, 2), factors=[1.0, 1.3],
-                       levels=["hf/sto-3g"], conv_tol=1e-11)
+                       levels=["hf/sto-3g"], scf_threshold_hartree=1e-11)
 
 
 def _free_port() -> int:

@@ -194,6 +194,26 @@ def test_file_of_schema_1_is_converted_on_reading(water_scan, tmp_path):
     assert not any(old_name in back.variables for old_name in SAPT_RENAMES_1_TO_2)
 
 
+
+def test_schema_1_spec_threshold_and_label_notes_are_renamed(tmp_path):
+    # schema 1 named the SCF threshold `conv_tol` and marked unfitted SCFs `(no-ri)`
+    import json
+
+    from interkit.data.upgrade import upgrade
+
+    spec = ik.ScanSpec(dimer=s22_dimer("Water_dimer"), factors=[1.0], levels=["hf/sto-3g (exact scf)"])
+    ds = ik.run_scan(spec, executor="serial", progress=False)
+    old = ds.assign_coords(level=["hf/sto-3g (no-ri)"])
+    data = json.loads(old.attrs["spec_json"])
+    data["conv_tol"] = data.pop("scf_threshold_hartree")
+    old.attrs.update(spec_json=json.dumps(data), schema="interkit-scan/1")
+    new, note = upgrade(old, "interkit-scan/2")
+    assert note == "converted from schema interkit-scan/1 to interkit-scan/2"
+    assert list(new["level"].values) == ["hf/sto-3g (exact scf)"]
+    assert ik.spec_of(new).scf_threshold_hartree == spec.scf_threshold_hartree
+    ik.validate(new)
+
+
 def test_validate_with_and_without_the_decomposition(water_scan):
     ik.validate(water_scan)
     names = [n for n in water_scan.data_vars if n.startswith("sapt_") or n in COMPONENTS

@@ -102,7 +102,7 @@ def test_broken_symmetry_energy_equals_a_direct_pyscf_uhf():
     from pyscf import gto, scf
 
     r = 2.5  # overlapping enough that the guess decides the solution
-    ds = _scan(r, "hf/6-31g (no-ri)", dimer_multiplicity=1)  # exact integrals, as below
+    ds = _scan(r, "hf/6-31g (exact scf)", dimer_multiplicity=1)  # exact integrals, as below
     xyz = ds["coordinates"].values[0] * ANGSTROM_TO_BOHR
     mol = gto.M(atom=[("H", tuple(x)) for x in xyz], unit="Bohr", basis="6-31g", spin=0, verbose=0)
     # broken-symmetry guess written here: each atom's UHF density (alpha electron) on

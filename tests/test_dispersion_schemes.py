@@ -20,7 +20,7 @@ def comparison(tmp_path_factory):
     dimer = hf_dimer()
     spec = ik.ScanSpec(dimer=dimer, coordinate=ik.AtomPair(1, 2), factors=[0.95, 1.1],
                        levels=["hf/sto-3g", "b3lyp/sto-3g", "m062x/sto-3g"], dispersion=SCHEMES,
-                       forces=True, conv_tol=1e-10)
+                       forces=True, scf_threshold_hartree=1e-10)
     return spec, ik.run_scan(spec, executor="serial", progress=False)
 
 
@@ -66,11 +66,11 @@ def test_one_scf_serves_every_scheme_and_matches_a_suffix_level(comparison, tmp_
     spec, ds = comparison
     # the scan computed exactly the calculations of the scan without schemes
     plain = ik.ScanSpec(dimer=spec.dimer, coordinate=spec.coordinate, factors=spec.factors,
-                        levels=spec.levels, forces=True, conv_tol=1e-10)
+                        levels=spec.levels, forces=True, scf_threshold_hartree=1e-10)
     assert ds.attrs["calculations_computed"] == len(plan_scan(plain).jobs)
     # a scheme on the shared SCF equals the same scheme run as a level of its own
     single = ik.run_scan(ik.ScanSpec(dimer=spec.dimer, coordinate=spec.coordinate, factors=spec.factors,
-                                     levels=["b3lyp-d3bj/sto-3g"], forces=True, conv_tol=1e-10),
+                                     levels=["b3lyp-d3bj/sto-3g"], forces=True, scf_threshold_hartree=1e-10),
                          executor="serial", progress=False)
     pair = ds.sel(level="b3lyp/sto-3g", dispersion="d3bj")
     np.testing.assert_allclose(pair["e_int"].values, single["e_int"].values[0], atol=1e-6)

@@ -30,7 +30,7 @@ def _scan(dimer, level, coordinate=None, forces=True, **grid):
     coordinate = coordinate or ik.CentreOfMass()
     if not grid:
         grid = {"distances": [coordinate.value(dimer)]}
-    spec = ik.ScanSpec(dimer=dimer, coordinate=coordinate, levels=[level], forces=forces, conv_tol=CONV_TOL,
+    spec = ik.ScanSpec(dimer=dimer, coordinate=coordinate, levels=[level], forces=forces, scf_threshold_hartree=CONV_TOL,
                        **grid)
     ds = ik.run_scan(spec, executor="serial", progress=False)
     assert (ds["status"] != "failed").all(), ds["status_detail"].values

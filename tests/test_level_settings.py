@@ -59,7 +59,7 @@ def test_lanl2dz_ecp_on_real_atoms_matches_direct_pyscf(xyz):
     from interkit.engine.molecule import build_molecule
 
     d = ik.Dimer.from_xyz_string(xyz)
-    spec = ik.ScanSpec(dimer=d, factors=[1.0], levels=["hf/lanl2dz"], conv_tol=1e-10)
+    spec = ik.ScanSpec(dimer=d, factors=[1.0], levels=["hf/lanl2dz"], scf_threshold_hartree=1e-10)
     plan = plan_scan(spec)
     entry = plan.table[(0, 0)]
     for role in ("dimer", "a_dimer_basis", "b_dimer_basis"):
@@ -101,7 +101,7 @@ def test_open_shell_mp2_forces_use_one_integral_treatment():
     from interkit.engine.molecule import build_molecule
 
     d = ik.Dimer.from_xyz_string(H_HF, fragment_a=[0], multiplicities=(2, 1))
-    spec = ik.ScanSpec(dimer=d, factors=[1.0], levels=["mp2/6-31g"], forces=True, conv_tol=1e-10)
+    spec = ik.ScanSpec(dimer=d, factors=[1.0], levels=["mp2/6-31g"], forces=True, scf_threshold_hartree=1e-10)
     plan = plan_scan(spec)
     ds = ik.run_scan(spec, executor="serial", progress=False)
     # source: conventional UMP2/MP2 counterpoise calculation written out here with pyscf

@@ -46,7 +46,7 @@ def test_paragraph_of_a_real_scan_states_what_the_dataset_records(scan):
     assert "3 points" in paragraph and "distance between atoms 1 and 2" in paragraph
     assert f"PySCF program (version {scan.attrs['pyscf_version']})" in paragraph
     assert f"interkit {scan.attrs['interkit_version']}" in paragraph
-    assert "converged to 1e-08 hartree" in paragraph           # spec default conv_tol
+    assert "converged to 1e-08 hartree" in paragraph           # spec default scf_threshold_hartree
     assert "Boys–Bernardi counterpoise scheme" in paragraph
     # the SCF fitting basis is not recorded yet: the default is named and marked
     assert "fitting basis" in paragraph and "(default: pyscf's choice for sto-3g" in paragraph

@@ -160,7 +160,7 @@ def test_correlated_levels_get_their_own_tolerance(saved):
 def test_tolerances_scale_with_the_scf_threshold(saved):
     ds = ik.open_scan(saved[0])
     spec = json.loads(ds.attrs["spec_json"])
-    spec["conv_tol"] = 1e-10
+    spec["scf_threshold_hartree"] = 1e-10
     ds.attrs["spec_json"] = json.dumps(spec)
     assert tolerances.tolerances(ds)["e_int"].value == pytest.approx(3 * 100 * 1e-10 * 627.5094740631)
 

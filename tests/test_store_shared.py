@@ -45,7 +45,7 @@ def _job(i, what="stress test") -> tuple[str, dict]:
 
 def _spec_toml(factors) -> str:
     return ('[system]\ngeometry = "g.xyz"\n[scan]\ncoordinate = "atom-pair"\natoms = [1, 2]\n'
-            f'factors = {list(factors)}\n[calculation]\nlevels = ["hf/def2-svp"]\nconv_tol = 1e-10\n')
+            f'factors = {list(factors)}\n[calculation]\nlevels = ["hf/def2-svp"]\nscf_threshold_hartree = 1e-10\n')
 
 
 def _files(store: Path) -> list[Path]:

@@ -22,7 +22,7 @@ N_JOBS = 8
 
 def _spec(**kw) -> ik.ScanSpec:
     return ik.ScanSpec(dimer=hf_dimer(), coordinate=ik.AtomPair(1, 2), factors=[1.0, 1.3],
-                       levels=["hf/sto-3g"], conv_tol=1e-11, **kw)
+                       levels=["hf/sto-3g"], scf_threshold_hartree=1e-11, **kw)
 
 
 @pytest.fixture(scope="module")

@@ -7,6 +7,8 @@ earlier interkit still redraws every plot and widget without recomputation.
 
 from __future__ import annotations
 
+import json
+
 import xarray as xr
 
 #: schema 1 -> 2: SAPT0 term variables named after their perturbation order
@@ -24,9 +26,31 @@ SAPT_RENAMES_1_TO_2 = {
 }
 
 
+#: schema 1 -> 2: the spec's SCF threshold has a name of our own
+SPEC_RENAMES_1_TO_2 = {"conv_tol": "scf_threshold_hartree"}
+#: schema 1 -> 2: the label note of a level without SCF density fitting
+LABEL_NOTES_1_TO_2 = {"(no-ri)": "(exact scf)"}
+
+
 def _one_to_two(ds: xr.Dataset) -> xr.Dataset:
     present = {old: new for old, new in SAPT_RENAMES_1_TO_2.items() if old in ds.variables}
-    return ds.rename(present) if present else ds
+    ds = ds.rename(present) if present else ds
+    if "spec_json" in ds.attrs:
+        try:
+            spec = json.loads(ds.attrs["spec_json"])
+        except ValueError:
+            spec = None  # validate() names the problem
+        if isinstance(spec, dict):
+            for old, new in SPEC_RENAMES_1_TO_2.items():
+                if old in spec:
+                    spec[new] = spec.pop(old)
+            ds.attrs["spec_json"] = json.dumps(spec)
+    if "level" in ds.coords:
+        labels = [str(x) for x in ds["level"].values]
+        for old, new in LABEL_NOTES_1_TO_2.items():
+            labels = [lab.replace(old, new) for lab in labels]
+        ds = ds.assign_coords(level=xr.DataArray(labels, dims="level", attrs=ds["level"].attrs))
+    return ds
 
 
 #: schema version -> (next version, conversion)

@@ -169,7 +169,7 @@ class LevelOfTheory:
         head = self.functional if self.method == "dft" else self.method
         if self.dispersion:
             head = f"{head}-{self.dispersion}"
-        notes = [] if self.density_fitting else ["no-ri"]
+        notes = [] if self.density_fitting else ["exact scf"]
         if self.frozen_core is False:
             notes.append("all-electron")
         if self.correlation_fitting is False and self.method != "ccsd(t)":
@@ -261,24 +261,54 @@ def _check_setting(name: str, value) -> None:
         LevelOfTheory("dft", "sto-3g", "lda,vwn", grid_pruning=value)
 
 
+#: label notes of the settings that take no value, and the setting each one sets
+_FLAG_NOTES = {"exact scf": ("density_fitting", False), "exact correlation": ("correlation_fitting", False),
+               "all-electron": ("frozen_core", False)}
+#: label notes that carry a value: note word -> setting
+_VALUE_NOTES = {"grid": "grid_level", "pruning": "grid_pruning", "jk-fit": "jk_auxbasis", "ri-fit": "ri_auxbasis"}
+
+
+def _settings_from_notes(notes: str, text: str) -> dict:
+    out = {}
+    for note in (n.strip().lower() for n in notes.split(",")):
+        word, _, value = note.partition(" ")
+        if note in _FLAG_NOTES:
+            key, val = _FLAG_NOTES[note]
+        elif word in _VALUE_NOTES and value.strip():
+            key, val = _VALUE_NOTES[word], value.strip()
+            if key == "grid_level":
+                try:
+                    val = int(val)
+                except ValueError:
+                    raise InputError(f"levels: {text!r}: grid {val!r} is not a whole number") from None
+        else:
+            raise InputError(f"levels: {text!r}: note {note!r} is not one of "
+                             f"{', '.join(list(_FLAG_NOTES) + [w + ' ...' for w in _VALUE_NOTES])}")
+        out[key] = val
+    return out
+
+
 def parse_level(text: str | LevelOfTheory, **settings) -> LevelOfTheory:
     """Parse ``'method/basis'`` (e.g. ``'b3lyp-d3bj/def2-svp'``, ``'mp2/aug-cc-pvdz'``).
 
-    A trailing ``' (no-ri)'`` switches off SCF density fitting. Keyword arguments set
-    the level's numerical settings (``frozen_core=False``, ``grid_level=4``, ...; see
-    :class:`LevelOfTheory`).
+    A label as :attr:`LevelOfTheory.label` writes it reads back to the same level: the
+    notes in parentheses after the basis set the non-default settings, separated by
+    commas: ``exact scf`` (no SCF density fitting), ``exact correlation``,
+    ``all-electron``, ``grid N``, ``pruning NAME``, ``jk-fit BASIS``, ``ri-fit BASIS``;
+    e.g. ``'mp2/def2-svp (exact scf, all-electron)'``. Keyword arguments set the same
+    settings (``frozen_core=False``, ``grid_level=4``, ...; see :class:`LevelOfTheory`).
     """
     if settings:
         return apply_settings(parse_level(text), settings)
+    if isinstance(text, str) and text.strip().endswith(")") and " (" in text:
+        head, _, notes = text.strip()[:-1].rpartition(" (")
+        return apply_settings(parse_level(head), _settings_from_notes(notes, text))
     if isinstance(text, LevelOfTheory):
         return text
     if not isinstance(text, str):
         raise InputError(f"levels: {text!r} is not a 'method/basis' string")
     raw = text.strip()
     density_fitting = True
-    if raw.lower().endswith("(no-ri)"):
-        density_fitting = False
-        raw = raw[: -len("(no-ri)")].strip()
     if raw.count("/") != 1:
         raise InputError(f"levels: {text!r} is not of the form 'method/basis'")
     head, basis = (part.strip() for part in raw.split("/"))

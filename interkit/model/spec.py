@@ -30,7 +30,7 @@ from .levels import (
 SAFE_CONTACT_FRACTION = 0.75
 SAFE_CONTACT_FLOOR_ANGSTROM = 0.5
 #: SCF energy convergence threshold in hartree
-DEFAULT_CONV_TOL_HARTREE = 1e-8
+DEFAULT_SCF_THRESHOLD_HARTREE = 1e-8
 #: a scan is refused when one calculation's estimated peak memory exceeds this (MB);
 #: leaves room for the operating system and a second worker on a 24 GB machine
 DEFAULT_MEMORY_LIMIT_MB = 16000.0
@@ -139,7 +139,7 @@ class ScanSpec:
         every scheme. DFT levels must then be given without a dispersion suffix;
         non-DFT levels carry values under ``'none'`` only, and a scheme without
         parameters for a functional is reported in ``dispersion_status``.
-    conv_tol : float
+    scf_threshold_hartree : float
         SCF energy convergence threshold in hartree (default 1e-8: the error of an
         interaction energy is second order in the density error, below 1e-5 kcal/mol).
         Calculations with gradients converge to at least 1e-9, SAPT0 to 1e-10.
@@ -162,7 +162,7 @@ class ScanSpec:
     decomposition_basis: str = DEFAULT_DECOMPOSITION_BASIS
     sapt_memory_limit_mb: float = DEFAULT_SAPT_MEMORY_LIMIT_MB
     dispersion: Sequence[str] | None = None
-    conv_tol: float = DEFAULT_CONV_TOL_HARTREE
+    scf_threshold_hartree: float = DEFAULT_SCF_THRESHOLD_HARTREE
     name: str = ""
     memory_limit_mb: float = DEFAULT_MEMORY_LIMIT_MB
 
@@ -207,12 +207,12 @@ class ScanSpec:
         self._check_decomposition()
         object.__setattr__(self, "dispersion", _check_dispersion_list(self.dispersion, levels))
         try:
-            tol = float(self.conv_tol)
+            tol = float(self.scf_threshold_hartree)
         except (TypeError, ValueError):
-            raise InputError(f"conv_tol: {self.conv_tol!r} is not a number") from None
+            raise InputError(f"scf_threshold_hartree: {self.scf_threshold_hartree!r} is not a number") from None
         if not (0 < tol <= 1e-6):
-            raise InputError(f"conv_tol: {self.conv_tol!r} must lie in (0, 1e-6] hartree")
-        object.__setattr__(self, "conv_tol", tol)
+            raise InputError(f"scf_threshold_hartree: {self.scf_threshold_hartree!r} must lie in (0, 1e-6] hartree")
+        object.__setattr__(self, "scf_threshold_hartree", tol)
         limit = self.memory_limit_mb
         if isinstance(limit, bool) or not isinstance(limit, (int, float, np.integer, np.floating)) \
                 or not math.isfinite(float(limit)) or float(limit) <= 0:
@@ -314,7 +314,7 @@ class ScanSpec:
             "decomposition_basis": self.decomposition_basis,
             "sapt_memory_limit_mb": self.sapt_memory_limit_mb,
             "dispersion": self.dispersion,
-            "conv_tol": self.conv_tol,
+            "scf_threshold_hartree": self.scf_threshold_hartree,
             "memory_limit_mb": self.memory_limit_mb,
         }
 
@@ -337,7 +337,7 @@ class ScanSpec:
             decomposition_basis=data.get("decomposition_basis", DEFAULT_DECOMPOSITION_BASIS),
             sapt_memory_limit_mb=data.get("sapt_memory_limit_mb", DEFAULT_SAPT_MEMORY_LIMIT_MB),
             dispersion=data.get("dispersion"),
-            conv_tol=data.get("conv_tol", DEFAULT_CONV_TOL_HARTREE),
+            scf_threshold_hartree=data.get("scf_threshold_hartree", DEFAULT_SCF_THRESHOLD_HARTREE),
             name=data.get("name", ""),
             memory_limit_mb=data.get("memory_limit_mb", DEFAULT_MEMORY_LIMIT_MB),
         )
@@ -354,7 +354,7 @@ _TOML_KEYS = {
     "system": {"geometry", "demo", "fragment_a", "charges", "multiplicities", "dimer_multiplicity"},
     "scan": {"coordinate", "atoms", "vector", "distances", "factors", "frames", "values"},
     "calculation": {"levels", "counterpoise", "forces", "decomposition", "decomposition_basis",
-                    "sapt_memory_limit_mb", "dispersion", "conv_tol", "memory_limit_mb", "settings"},
+                    "sapt_memory_limit_mb", "dispersion", "scf_threshold_hartree", "memory_limit_mb", "settings"},
     "calculation.settings": set(LEVEL_SETTINGS),
 }
 

@@ -11,10 +11,10 @@ from .geometry import Dimer
 from .levels import LEVEL_SETTINGS, LevelOfTheory, apply_settings, parse_level
 from .spec import (
     _TOML_KEYS,
-    DEFAULT_CONV_TOL_HARTREE,
     DEFAULT_DECOMPOSITION_BASIS,
     DEFAULT_MEMORY_LIMIT_MB,
     DEFAULT_SAPT_MEMORY_LIMIT_MB,
+    DEFAULT_SCF_THRESHOLD_HARTREE,
     ScanSpec,
 )
 
@@ -97,7 +97,7 @@ def spec_from_mapping(data: dict, base_dir: str | os.PathLike = ".") -> ScanSpec
         decomposition_basis=calc.get("decomposition_basis", DEFAULT_DECOMPOSITION_BASIS),
         sapt_memory_limit_mb=calc.get("sapt_memory_limit_mb", DEFAULT_SAPT_MEMORY_LIMIT_MB),
         dispersion=calc.get("dispersion"),
-        conv_tol=calc.get("conv_tol", DEFAULT_CONV_TOL_HARTREE),
+        scf_threshold_hartree=calc.get("scf_threshold_hartree", DEFAULT_SCF_THRESHOLD_HARTREE),
         name=data.get("name", ""),
         memory_limit_mb=calc.get("memory_limit_mb", DEFAULT_MEMORY_LIMIT_MB),
     )

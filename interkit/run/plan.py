@@ -63,11 +63,11 @@ def _cp_jobs(spec: ScanSpec, geometry, level: LevelOfTheory, outputs, suffix: st
     (qa, qb), (sa, sb) = d0.charges, d0.spins
     # the dimer's own spin (high spin unless dimer_multiplicity says otherwise);
     # the ghosted monomers keep their fragment's spin
-    jobs = {"dimer" + suffix: _job_for(geometry, a + b, (), qa + qb, d0.spin, level, spec.conv_tol,
+    jobs = {"dimer" + suffix: _job_for(geometry, a + b, (), qa + qb, d0.spin, level, spec.scf_threshold_hartree,
                                        outputs=outputs, **_dimer_spin_fields(d0))}
     if spec.counterpoise:
-        jobs["a_dimer_basis" + suffix] = _job_for(geometry, a, b, qa, sa, level, spec.conv_tol, outputs=outputs)
-        jobs["b_dimer_basis" + suffix] = _job_for(geometry, b, a, qb, sb, level, spec.conv_tol, outputs=outputs)
+        jobs["a_dimer_basis" + suffix] = _job_for(geometry, a, b, qa, sa, level, spec.scf_threshold_hartree, outputs=outputs)
+        jobs["b_dimer_basis" + suffix] = _job_for(geometry, b, a, qb, sb, level, spec.scf_threshold_hartree, outputs=outputs)
     return jobs
 
 
@@ -113,8 +113,8 @@ def plan_scan(spec: ScanSpec, check: bool = True) -> ScanPlan:
                 candidates.update(_cp_jobs(spec, dim.translated_b(h * u), level, ("energy",), "_plus"))
                 candidates.update(_cp_jobs(spec, dim.translated_b(-h * u), level, ("energy",), "_minus"))
             own_geometry = d0 if spec.is_rigid else dim
-            candidates["a_own_basis"] = _job_for(own_geometry, a, (), qa, sa, level, spec.conv_tol, centre=True)
-            candidates["b_own_basis"] = _job_for(own_geometry, b, (), qb, sb, level, spec.conv_tol, centre=True)
+            candidates["a_own_basis"] = _job_for(own_geometry, a, (), qa, sa, level, spec.scf_threshold_hartree, centre=True)
+            candidates["b_own_basis"] = _job_for(own_geometry, b, (), qb, sb, level, spec.scf_threshold_hartree, centre=True)
             entry = {}
             for role, job in candidates.items():
                 jobs.setdefault(job.key, job)
@@ -145,7 +145,7 @@ def decomposition_job(spec: ScanSpec, geometry) -> Job:
         charge=int(sum(d0.charges)),
         spin=0,
         level=decomposition_level(spec),
-        conv_tol=min(spec.conv_tol, DECOMPOSITION_CONV_TOL_HARTREE),
+        conv_tol=min(spec.scf_threshold_hartree, DECOMPOSITION_CONV_TOL_HARTREE),
         outputs=(DECOMPOSITION_ROLE,),
         fragment_a=tuple(int(i) for i in d0.fragment_a),
         fragment_charges=tuple(int(q) for q in d0.charges),

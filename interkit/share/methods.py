@@ -267,7 +267,7 @@ def _paragraph(ds: xr.Dataset) -> tuple[str, _Citations]:
     out.append(("The level of theory was " if len(levels) == 1 else "The levels of theory were ")
                + "; ".join(head for head, _ in levels) + ".")
     out += [details for _, details in levels]
-    tol = float(spec.get("conv_tol", 1e-8))
+    tol = float(spec.get("scf_threshold_hartree", 1e-8))
     tol_text = f"SCF energies were converged to {tol:.0e} hartree"
     if spec.get("forces"):
         tol_text += f" ({min(tol, GRADIENT_CONV_TOL_HARTREE):.0e} hartree for calculations with gradients)"

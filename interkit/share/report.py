@@ -303,7 +303,7 @@ def _provenance_section(ds: xr.Dataset) -> str:
             ["schema", prov["schema"]],
             ["physical constants", prov["codata"]],
             ["counterpoise", prov["counterpoise"]],
-            ["SCF energy threshold / hartree", spec.get("conv_tol", "")],
+            ["SCF energy threshold / hartree", spec.get("scf_threshold_hartree", "")],
             ["calculations with a store key", prov["n_store_keys"]]]
     for key, label in (("executor", "executor"), ("workers", "workers"),
                        ("calculations_computed", "calculations computed in the run"),

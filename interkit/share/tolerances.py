@@ -26,16 +26,16 @@ NOT_COMPARED = frozenset({"wall_time_s", "sapt_wall_time_s", "status_detail", "s
 #: them to at least this, whatever the spec says)
 GRADIENT_CONV_TOL_HARTREE = 1e-9
 #: Total energies of HF and DFT levels may move by this many SCF energy thresholds
-#: (``conv_tol``): the SCF stops when successive energies differ by less than
-#: ``conv_tol`` and SCF energies are variational (error second order in the orbitals).
-#: Measured here (pyscf 2.14, HF dimer, def2-SVP, ``conv_tol`` 1e-8): a point computed
+#: (``scf_threshold_hartree``): the SCF stops when successive energies differ by less than
+#: ``scf_threshold_hartree`` and SCF energies are variational (error second order in the orbitals).
+#: Measured here (pyscf 2.14, HF dimer, def2-SVP, ``scf_threshold_hartree`` 1e-8): a point computed
 #: from scratch and the same point computed from its neighbour's density differ by at
 #: most 2.3e-9 hartree (HF, PBE0, B3LYP).
 SCF_TOTAL_FACTOR = 100.0
 #: Total energies of correlated levels (MP2, SCS-MP2, CCSD(T)) may move by this multiple
-#: of ``sqrt(conv_tol)`` hartree: the correlation energy is not variational in the
+#: of ``sqrt(scf_threshold_hartree)`` hartree: the correlation energy is not variational in the
 #: orbitals, so it carries the orbital error at first order, and pyscf's orbital-gradient
-#: threshold defaults to ``sqrt(conv_tol)``. Measured as above (rigid and frame scans):
+#: threshold defaults to ``sqrt(scf_threshold_hartree)``. Measured as above (rigid and frame scans):
 #: up to 6.9e-7 hartree for MP2 and SCS-MP2 (5.5e-4 kcal/mol in the interaction energy),
 #: against 1e-5 hartree allowed at the default threshold.
 CORRELATED_TOTAL_FACTOR = 0.1
@@ -79,7 +79,7 @@ class Tolerance:
 
 def _conv_tol(ds: xr.Dataset) -> float:
     try:
-        return float(json.loads(ds.attrs["spec_json"]).get("conv_tol", 1e-8))
+        return float(json.loads(ds.attrs["spec_json"]).get("scf_threshold_hartree", 1e-8))
     except (KeyError, ValueError, TypeError, AttributeError):
         return 1e-8
 
@@ -98,10 +98,10 @@ def _level_methods(ds: xr.Dataset) -> dict[str, str]:
 def tolerances(ds: xr.Dataset) -> dict[str, Tolerance]:
     """The tolerance of every comparable variable of ``ds`` (see :func:`compared_variables`).
 
-    Energies follow the spec's SCF threshold ``conv_tol``, per level: a total energy of
-    an HF or DFT level may move by ``SCF_TOTAL_FACTOR * conv_tol`` hartree (1e-6 at the
+    Energies follow the spec's SCF threshold ``scf_threshold_hartree``, per level: a total energy of
+    an HF or DFT level may move by ``SCF_TOTAL_FACTOR * scf_threshold_hartree`` hartree (1e-6 at the
     default 1e-8), one of a correlated level by ``CORRELATED_TOTAL_FACTOR *
-    sqrt(conv_tol)`` (1e-5); an interaction energy (three calculations) by three times
+    sqrt(scf_threshold_hartree)`` (1e-5); an interaction energy (three calculations) by three times
     that, in kcal/mol (1.9e-3 and 1.9e-2 kcal/mol). Forces follow the gradient threshold
     (fixed values, see the module constants); numerical forces (central differences)
     inherit the interaction-energy tolerance divided by the step.
