@@ -13,7 +13,7 @@ import time
 import traceback
 
 from ..model.geometry import Dimer
-from ..model.job import Job
+from ..model.job import Job, failed_record
 from .sapt0 import TERM_KEYS, sapt0_terms
 
 #: extra keys of the sSAPT0 variant stored in every record
@@ -71,15 +71,7 @@ def run_decomposition_job(job: Job) -> dict:
         total energy of its own).
     """
     t0 = time.perf_counter()
-    record = {
-        "energy_hartree": float("nan"),
-        "sapt0_hartree": None,
-        "converged": False,
-        "status": "failed",
-        "detail": "",
-        "nao": 0,
-        "basis": job.level.basis,
-    }
+    record = failed_record(sapt0_hartree=None, basis=job.level.basis)
     try:
         dimer = job_dimer(job)
         terms = sapt0_terms(dimer, job.level.basis, max_memory_mb=float(job.memory_limit_mb),

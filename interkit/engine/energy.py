@@ -15,7 +15,7 @@ import numpy as np
 from pyscf import cc, dft, mp, scf
 from pyscf.data import elements
 
-from ..model.job import Job
+from ..model.job import Job, failed_record
 from ..model.levels import SCS_OPPOSITE_SPIN, SCS_SAME_SPIN, LevelOfTheory
 from ..model.spin import BROKEN_SYMMETRY_GUESS
 from .dispersion import dispersion_energy_and_gradient
@@ -197,18 +197,7 @@ def run_energy_job(job: Job, guess=None) -> tuple[dict, object]:
         The converged density matrix, for seeding the next calculation.
     """
     t0 = time.perf_counter()
-    record = {
-        "energy_hartree": float("nan"),
-        "scf_energy_hartree": float("nan"),
-        "correlation_energy_hartree": 0.0,
-        "dispersion_energy_hartree": 0.0,
-        "converged": False,
-        "status": "failed",
-        "detail": "",
-        "scf_cycles": 0,
-        "nao": 0,
-        "guess": "previous point" if guess is not None else "default",
-    }
+    record = failed_record(guess="previous point" if guess is not None else "default")
     density = None
     want_gradient = "gradient" in job.outputs
     broken_symmetry = job.guess == BROKEN_SYMMETRY_GUESS

@@ -281,3 +281,26 @@ class ScanPlan:
             if kept:
                 out.append(kept)
         return out
+
+
+#: longest failure reason a record keeps (characters)
+DETAIL_MAX_CHARS = 500
+
+
+def failed_record(detail: str = "", **fields) -> dict:
+    """The record of a calculation that produced no result: the one layout every part
+    of interkit writes (the engine before it has numbers, executors for lost workers
+    and tasks), so the store and ``assemble`` see a single schema.
+
+    Energies are NaN (never a partial number), ``status`` is ``'failed'``, ``detail``
+    the reason (shortened to ``DETAIL_MAX_CHARS``); ``fields`` adds or overrides entries
+    (e.g. ``role`` or ``sapt0_hartree``).
+    """
+    record = {
+        "energy_hartree": float("nan"), "scf_energy_hartree": float("nan"),
+        "correlation_energy_hartree": 0.0, "dispersion_energy_hartree": 0.0,
+        "converged": False, "status": "failed", "detail": str(detail).replace("\n", " ")[:DETAIL_MAX_CHARS],
+        "scf_cycles": 0, "nao": 0, "wall_time_s": 0.0,
+    }
+    record.update(fields)
+    return record

@@ -55,6 +55,7 @@ from typing import Any
 import numpy as np
 
 from ..errors import ClusterError, InputError, InterkitError, NotAvailableError
+from ..model.job import failed_record
 
 #: retries of a task that raised (lost workers are handled by distributed's allowed-failures)
 DEFAULT_RETRIES = 2
@@ -485,10 +486,4 @@ def _lost_record(role: str, exc: BaseException) -> dict:
 
 
 def _failed_record(role: str, detail: str) -> dict:
-    return {
-        "energy_hartree": float("nan"), "scf_energy_hartree": float("nan"),
-        "correlation_energy_hartree": 0.0, "dispersion_energy_hartree": 0.0,
-        "converged": False, "status": "failed", "role": role,
-        "detail": detail[:500],
-        "scf_cycles": 0, "nao": 0, "wall_time_s": 0.0,
-    }
+    return failed_record(detail, role=role)

@@ -19,7 +19,7 @@ from contextlib import contextmanager
 
 import numpy as np
 
-from ..model.job import Job
+from ..model.job import Job, failed_record
 
 _THREAD_VARS = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
 #: field an executor adds to a record it could not write to the store (the reason);
@@ -216,10 +216,4 @@ def run_processes(chunks, jobs, store_root, report, workers: int, threads_per_wo
 
 
 def _lost_record(exc: BaseException) -> dict:
-    return {
-        "energy_hartree": float("nan"), "scf_energy_hartree": float("nan"),
-        "correlation_energy_hartree": 0.0, "dispersion_energy_hartree": 0.0,
-        "converged": False, "status": "failed",
-        "detail": f"worker process failed: {type(exc).__name__}: {exc}"[:500],
-        "scf_cycles": 0, "nao": 0, "wall_time_s": 0.0,
-    }
+    return failed_record(f"worker process failed: {type(exc).__name__}: {exc}")
