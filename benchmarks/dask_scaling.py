@@ -69,7 +69,7 @@ def main() -> None:
     threadpool_limits(1)
     lib.num_threads(1)
     dimer = ik.load_demo(args.system)
-    contact = ik.demo.demo_catalog()[args.system]["contact"]
+    contact = ik.demo_catalog()[args.system]["contact"]
     spec = ik.ScanSpec(dimer=dimer, coordinate=ik.AtomPair(*contact), factors=FACTORS, levels=[args.level])
     warm = ik.ScanSpec(dimer=dimer, coordinate=ik.AtomPair(*contact), factors=[3.0], levels=[args.level])
     n_tasks = len(plan_scan(spec).jobs)

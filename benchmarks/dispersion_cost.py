@@ -44,7 +44,7 @@ def main() -> None:
     parser.add_argument("--basis", default="def2-svp")
     args = parser.parse_args()
     dimer = ik.load_demo(args.system)
-    contact = ik.demo.demo_catalog()[args.system]["contact"]
+    contact = ik.demo_catalog()[args.system]["contact"]
     common = dict(dimer=dimer, coordinate=ik.AtomPair(*contact), factors=FACTORS)
     one = ik.ScanSpec(levels=[f"{args.functional}-d3bj/{args.basis}"], **common)
     four = ik.ScanSpec(levels=[f"{args.functional}/{args.basis}"], dispersion=["none", "d3zero", "d3bj", "d4"],

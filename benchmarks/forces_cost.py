@@ -50,7 +50,7 @@ def main() -> None:
     parser.add_argument("--repeat", type=int, default=2, help="runs per variant; the shortest counts")
     args = parser.parse_args()
     dimer = ik.load_demo(args.system)
-    contact = ik.demo.demo_catalog()[args.system]["contact"]
+    contact = ik.demo_catalog()[args.system]["contact"]
     print(f"system: {args.system}, {len(FACTORS)} points, counterpoise, processes executor, "
           f"{os.cpu_count()} cores, load average {os.getloadavg()[0]:.1f} at the start")
     print(f"{'level':<24s} {'energy only / s':>16s} {'with forces / s':>16s} {'ratio':>7s} "

@@ -58,7 +58,7 @@ def main() -> None:
     parser.add_argument("--points", type=int, default=10)
     args = parser.parse_args()
     dimer = ik.load_demo(args.system)
-    contact = ik.demo.demo_catalog()[args.system]["contact"]
+    contact = ik.demo_catalog()[args.system]["contact"]
     spec = ik.ScanSpec(dimer=dimer, coordinate=ik.AtomPair(*contact), factors=FACTORS[: args.points],
                        levels=["b3lyp/def2-svp"])
     t0 = time.perf_counter()

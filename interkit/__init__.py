@@ -31,7 +31,7 @@ from .errors import (
     StoreError,
 )
 from .model.coordinates import AtomPair, CentreOfMass, Frames, ScanCoordinate, Vector
-from .model.demo import list_demos, load_demo
+from .model.demo import demo_catalog, list_demos, load_demo
 from .model.geometry import Dimer
 from .model.levels import LevelOfTheory, parse_level
 from .model.spec import ScanSpec
@@ -49,7 +49,7 @@ __all__ = [
     "AtomPair", "CentreOfMass", "analysis", "check_feasibility", "comparison", "ConvergenceError", "fits", "Dimer", "Frames", "InputError",
     "InterkitError", "InterkitWarning", "LevelOfTheory", "NotAvailableError", "ResourceError",
     "ScanCoordinate", "ScanSpec", "StoreError", "Vector", "__version__", "convert_energy",
-    "export_scan", "list_demos", "load_demo", "load_spec_toml", "methods_bibtex", "methods_text",
+    "demo_catalog", "export_scan", "list_demos", "load_demo", "load_spec_toml", "methods_bibtex", "methods_text",
     "open_scan", "parse_level", "rerun_scan", "run_scan", "save_scan", "spec_of", "validate", "verify_scan",
     "write_report",
 ]

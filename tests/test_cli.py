@@ -65,14 +65,14 @@ def test_systems_lists_the_demo_catalog():
 def test_every_demo_system_loads_with_its_catalog_charges():
     for name in ik.list_demos():
         d = ik.load_demo(name)
-        entry = ik.demo.demo_catalog()[name]
+        entry = ik.demo_catalog()[name]
         assert list(d.charges) == entry["charges"] and list(d.multiplicities) == entry["multiplicities"]
         i, j = entry["contact"]
         ik.AtomPair(i, j).check(d)
 
 
 def test_show_reports_where_the_force_vanishes(tmp_path):
-    i, j = ik.demo.demo_catalog()["water_methanol"]["contact"]
+    i, j = ik.demo_catalog()["water_methanol"]["contact"]
     spec = ik.ScanSpec(dimer=ik.load_demo("water_methanol"), coordinate=ik.AtomPair(i, j),
                        factors=[0.9, 1.0, 1.1, 1.25, 1.5], levels=["hf/sto-3g"], forces=True)
     ds = ik.run_scan(spec, progress=False)

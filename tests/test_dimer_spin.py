@@ -181,7 +181,7 @@ def test_spin_square_in_the_dataset_round_trips(tmp_path):
     back = ik.open_scan(tmp_path / "s.nc")
     np.testing.assert_array_equal(back["spin_square"].values, var.values)
     assert back["spin_square"].attrs["units"] == "1"
-    assert ik.results.spec_of(back).dimer.dimer_multiplicity is None
+    assert ik.spec_of(back).dimer.dimer_multiplicity is None
     # closed-shell scans keep their layout: no spin_square variable
     closed = ik.Dimer(("He", "He"), [[0, 0, 0], [0, 0, 3.0]], (0,))
     ds_closed = ik.run_scan(ik.ScanSpec(dimer=closed, distances=[3.0], levels=["hf/sto-3g"]),
@@ -209,7 +209,7 @@ def test_heavy_spin_contamination_is_flagged_in_status():
     assert str(ds["status"].values.item()) == "spin-contaminated"
     assert "<S^2> = 0.900" in str(ds["status_detail"].values.item())
     assert np.isfinite(ds["e_int"].values).all()  # numbers kept, flagged
-    ik.results.validate(ds)
+    ik.validate(ds)
     # broken symmetry: up to M(M+1) + 2 S_small (+0.1) is expected; above it is flagged
     low = ik.ScanSpec(dimer=_h2(4.0, dimer_multiplicity=1), distances=[4.0], levels=[LEVEL])
     plan = plan_scan(low)

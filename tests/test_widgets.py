@@ -326,7 +326,7 @@ def test_cancel_keeps_finished_points(launcher):
 def test_explorer_shows_forces_when_the_scan_has_them(tmp_path):
     from interkit.widgets.forces_panel import FRAGMENT_ARROW_SCALE
 
-    i, j = ik.demo.demo_catalog()["water_methanol"]["contact"]
+    i, j = ik.demo_catalog()["water_methanol"]["contact"]
     spec = ik.ScanSpec(dimer=ik.load_demo("water_methanol"), coordinate=ik.AtomPair(i, j),
                        factors=[0.9, 1.1, 1.4], levels=["hf/sto-3g"], forces=True)
     ds = ik.run_scan(spec, executor="serial", progress=False)

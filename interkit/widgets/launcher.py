@@ -2,16 +2,14 @@
 
 The launcher builds an :class:`interkit.ScanSpec` from its controls and hands it to
 :func:`interkit.run_scan` in a background thread (see :mod:`.runner`), so the kernel
-stays responsive. Bad input shows the InterkitError message in the form.
+stays responsive. Bad input shows the InterkitError message in the form. The form's
+choices, parsing and wording live in :mod:`.launcher_form`; running the scan and its
+progress and result views in :mod:`.launcher_run`.
 """
 
 from __future__ import annotations
 
-import functools
-import html
 import os
-import re
-import time
 
 import ipywidgets as widgets
 import numpy as np
@@ -22,77 +20,29 @@ from ..model.demo import demo_catalog, list_demos, load_demo
 from ..model.geometry import Dimer
 from ..model.levels import parse_level
 from ..model.spec import DEFAULT_MEMORY_LIMIT_MB, ScanSpec
-from .curves import CurvePanel
 from .explorer import ScanExplorer
+from .launcher_form import (
+    COORDINATES,
+    DEFAULT_FACTORS,
+    GRID_MODES,
+    SOURCES,
+    _duration,
+    _shows_errors,
+    dimer_summary,
+    parse_grid,
+    rough_seconds_per_calculation,
+)
+from .launcher_run import RunPanel
 from .runner import BackgroundScan, count_calculations
-from .style import STATUS_STYLE, error_html, note_html
+from .style import error_html, note_html
 from .viewer3d import Molecule3D, scene_from_arrays
 
-SOURCES = ("bundled dimer", "XYZ file", "pasted XYZ")
-COORDINATES = ("atom pair", "centre of mass")
-GRID_MODES = ("factors", "distances (Å)")
-DEFAULT_FACTORS = "0.9, 1.0, 1.1, 1.25, 1.5, 2.0"
-#: very rough seconds per calculation for a 9-atom dimer on one core, by basis family
-_BASE_SECONDS = {"sto-3g": 0.15, "svp": 0.6, "6-31g": 0.5, "tzvp": 4.0, "cc-pvdz": 1.0,
-                 "cc-pvtz": 8.0, "qzvp": 30.0}
-_METHOD_FACTOR = {"hf": 1.0, "mp2": 3.0, "ccsd(t)": 60.0}
+__all__ = ["ScanLauncher", "parse_grid", "rough_seconds_per_calculation"]
+
+_lay = widgets.Layout
 
 
-def rough_seconds_per_calculation(natoms: int, levels) -> float:
-    """A crude guess of the seconds one calculation takes (shown as 'rough')."""
-    worst = 0.0
-    for text in levels:
-        method, _, basis = str(text).lower().partition("/")
-        base = next((v for k, v in _BASE_SECONDS.items() if k in basis), 2.0)
-        factor = _METHOD_FACTOR.get(method.split("-")[0], 2.0)
-        if "aug-" in basis:
-            base *= 3.0
-        worst = max(worst, base * factor * (max(natoms, 2) / 9.0) ** 3)
-    return round(max(worst, 0.05), 2)
-
-
-def parse_grid(text: str, name: str = "grid") -> list[float]:
-    """Numbers separated by commas or spaces; raise InputError naming a bad entry."""
-    items = [t for t in re.split(r"[,\s;]+", str(text).strip()) if t]
-    if not items:
-        raise InputError(f"{name}: no values given")
-    out = []
-    for k, item in enumerate(items):
-        try:
-            out.append(float(item))
-        except ValueError:
-            raise InputError(f"{name}[{k}]: {item!r} is not a number") from None
-    return out
-
-
-def _formula(symbols) -> str:
-    """Hill-order formula, e.g. ['O', 'H', 'H'] -> 'H2O'."""
-    counts = {s: list(symbols).count(s) for s in set(symbols)}
-    order = (["C", "H"] if "C" in counts else []) + sorted(s for s in counts if s not in ("C", "H") or "C" not in counts)
-    return "".join(f"{s}{counts[s] if counts[s] > 1 else ''}" for s in order)
-
-
-def _duration(seconds: float) -> str:
-    if seconds < 90:
-        return f"{seconds:.0f} s"
-    if seconds < 5400:
-        return f"{seconds / 60:.0f} min"
-    return f"{seconds / 3600:.1f} h"
-
-
-def _shows_errors(method):
-    """Run a handler; an InterkitError becomes a message in the form, never a traceback."""
-    @functools.wraps(method)
-    def wrapper(self, *args, **kwargs):
-        try:
-            return method(self, *args, **kwargs)
-        except InterkitError as exc:
-            self.message.value = error_html(str(exc))
-            return None
-    return wrapper
-
-
-class ScanLauncher(widgets.VBox):
+class ScanLauncher(RunPanel, widgets.VBox):
     """A form to set up and run an interaction-energy scan from a notebook.
 
     Parameters
@@ -120,47 +70,69 @@ class ScanLauncher(widgets.VBox):
         self.explorer: ScanExplorer | None = None
         self.scan: BackgroundScan | None = None
         self._last_live = 0.0
-        lay = widgets.Layout
         self.message = widgets.HTML()
         self.message.add_class("interkit-message")
-        # ------------------------------------------------------------ dimer
+        self._build_dimer_source(demo)
+        self._build_coordinate_and_grid()
+        self._build_levels()
+        self._build_level_settings()
+        self._build_store_and_estimate(cache)
+        self._build_run_controls()
+        self._wire()
+        self._source_box = widgets.VBox()
+        self._text_source = ""
+        super().__init__(children=self._layout())
+        self.add_class("interkit-launcher")
+        self._on_source()
+
+    # ------------------------------------------------------------------ building the form
+    def _build_dimer_source(self, demo: str) -> None:
+        """Section 1: where the dimer comes from, its fragments, charges and spins, a 3D preview."""
         self.source = widgets.ToggleButtons(options=list(SOURCES), value=SOURCES[0], description="dimer from",
                                             style={"button_width": "120px"})
         titles = [(f"{demo_catalog()[n].get('title', n)} ({n})", n) for n in list_demos()]
-        self.demo = widgets.Dropdown(options=titles, value=demo, description="bundled", layout=lay(width="440px"))
+        self.demo = widgets.Dropdown(options=titles, value=demo, description="bundled", layout=_lay(width="440px"))
+        self.demo.add_class("interkit-demo")
         self.upload = widgets.FileUpload(accept=".xyz", multiple=False, description="XYZ file")
         self.paste = widgets.Textarea(placeholder="number of atoms\ncomment\nO 0.0 0.0 0.0\n...",
-                                      layout=lay(width="440px", height="120px"))
-        self.paste_button = widgets.Button(description="read pasted XYZ", layout=lay(width="150px"))
+                                      layout=_lay(width="440px", height="120px"))
+        self.paste_button = widgets.Button(description="read pasted XYZ", layout=_lay(width="150px"))
         self.fragment_a = widgets.Text(description="fragment A", placeholder="automatic (e.g. 0, 1, 2)",
-                                       continuous_update=False, layout=lay(width="300px"))
-        self.charges = [widgets.IntText(value=0, description=f"charge {f}", layout=lay(width="150px"))
+                                       continuous_update=False, layout=_lay(width="300px"))
+        self.charges = [widgets.IntText(value=0, description=f"charge {f}", layout=_lay(width="150px"))
                         for f in "AB"]
-        self.mults = [widgets.IntText(value=1, description=f"2S+1 {f}", layout=lay(width="150px"))
+        self.mults = [widgets.IntText(value=1, description=f"2S+1 {f}", layout=_lay(width="150px"))
                       for f in "AB"]
         self.dimer_mult = widgets.Text(value="", description="2S+1 dimer", placeholder="high spin",
                                        tooltip="empty: high spin (S = S_A + S_B); the lowest spin |S_A - S_B| "
                                                "is a broken-symmetry calculation",
-                                       continuous_update=False, layout=lay(width="300px"))
+                                       continuous_update=False, layout=_lay(width="300px"))
         self.dimer_mult.add_class("interkit-dimer-multiplicity")
         self.dimer_info = widgets.HTML()
         self.preview = Molecule3D([scene_from_arrays(["H", "H"], ["A", "B"], [[0, 0, 0], [0, 0, 0.74]])],
                                   width=360, height=280)
-        # ------------------------------------------------------------ scan coordinate and grid
+
+    def _build_coordinate_and_grid(self) -> None:
+        """Section 2: the scan coordinate (atom pair or centres of mass) and its grid."""
         self.coordinate = widgets.RadioButtons(options=list(COORDINATES), value=COORDINATES[0],
                                                description="coordinate")
-        self.atom_a = widgets.Dropdown(description="atom in A", layout=lay(width="260px"))
-        self.atom_b = widgets.Dropdown(description="atom in B", layout=lay(width="260px"))
+        self.atom_a = widgets.Dropdown(description="atom in A", layout=_lay(width="260px"))
+        self.atom_b = widgets.Dropdown(description="atom in B", layout=_lay(width="260px"))
         self.grid_mode = widgets.ToggleButtons(options=list(GRID_MODES), value=GRID_MODES[0], description="grid",
                                                style={"button_width": "110px"})
-        self.grid = widgets.Text(value=DEFAULT_FACTORS, description="values", layout=lay(width="440px"))
-        # ------------------------------------------------------------ calculation
+        self.grid = widgets.Text(value=DEFAULT_FACTORS, description="values", layout=_lay(width="440px"))
+        self.grid.add_class("interkit-grid")
+
+    def _build_levels(self) -> None:
+        """Section 3, first part: levels of theory, counterpoise, workers and extra properties."""
         self.levels = widgets.Text(value="hf/def2-svp", description="levels",
                                    placeholder="comma-separated, e.g. hf/def2-svp, b3lyp-d3bj/def2-svp",
-                                   layout=lay(width="440px"))
+                                   layout=_lay(width="440px"))
+        self.levels.add_class("interkit-levels")
         self.counterpoise = widgets.Checkbox(value=True, description="counterpoise correction", indent=False)
         ncpu = os.cpu_count() or 1
         self.workers = widgets.IntSlider(value=ncpu, min=1, max=max(ncpu, 1), description="workers")
+        self.workers.add_class("interkit-workers")
         self.forces = widgets.Checkbox(value=False, description="forces", indent=False,
                                        tooltip="counterpoise-corrected forces and their electrostatic part")
         self.decomposition = widgets.Checkbox(value=False, description="SAPT0 decomposition", indent=False,
@@ -170,51 +142,42 @@ class ScanLauncher(widgets.VBox):
                                        placeholder="optional: compare schemes, e.g. none, d3bj, d4",
                                        tooltip="post-hoc schemes on one SCF per point (bare DFT functionals); "
                                                "d3zero, d3bj, d4, their -atm variants, none",
-                                       layout=lay(width="440px"))
+                                       layout=_lay(width="440px"))
         self.dispersion.add_class("interkit-dispersion")
-        # numerical settings applied to every level (see LevelOfTheory; defaults = pyscf's)
+
+    def _build_level_settings(self) -> None:
+        """Section 3, second part: numerical settings applied to every level (see LevelOfTheory;
+        defaults = pyscf's) and the memory limit."""
         self.scf_fitting = widgets.Checkbox(value=True, description="fitted SCF", indent=False,
-                                            layout=lay(width="110px"))
+                                            layout=_lay(width="110px"))
         self.frozen_core = widgets.Checkbox(value=True, description="frozen core", indent=False,
-                                            layout=lay(width="110px"))
+                                            layout=_lay(width="110px"))
         self.correlation_fitting = widgets.Checkbox(value=True, description="fitted MP2", indent=False,
-                                                    layout=lay(width="110px"))
+                                                    layout=_lay(width="110px"))
         self.grid_level = widgets.BoundedIntText(value=3, min=0, max=9, description="DFT grid",
-                                                 layout=lay(width="150px"))
+                                                 layout=_lay(width="150px"))
         self.grid_pruning = widgets.Dropdown(options=["nwchem", "sg1", "treutler", "none"], value="nwchem",
-                                             description="pruning", layout=lay(width="200px"))
+                                             description="pruning", layout=_lay(width="200px"))
         self.jk_auxbasis = widgets.Text(description="JK fit", placeholder="default: matches basis",
-                                        layout=lay(width="215px"))
+                                        layout=_lay(width="215px"))
         self.ri_auxbasis = widgets.Text(description="MP2 fit", placeholder="default: the SCF's",
-                                        layout=lay(width="215px"))
+                                        layout=_lay(width="215px"))
         self.memory_limit = widgets.BoundedFloatText(value=DEFAULT_MEMORY_LIMIT_MB, min=1, max=1e7,
-                                                     description="memory MB", layout=lay(width="200px"),
+                                                     description="memory MB", layout=_lay(width="200px"),
                                                      tooltip="refuse calculations estimated above this")
+
+    def _build_store_and_estimate(self, cache) -> None:
+        """Section 3, last part: the result store and the cost estimate."""
         self.cache = widgets.Text(value=os.fspath(cache) if cache else "", description="store",
                                   placeholder="optional folder that keeps finished calculations",
-                                  layout=lay(width="440px"))
+                                  layout=_lay(width="440px"))
         self.seconds_per_calc = widgets.BoundedFloatText(value=1.0, min=0.01, max=1e6, step=0.1,
-                                                         description="s / calc.", layout=lay(width="180px"))
+                                                         description="s / calc.", layout=_lay(width="180px"))
         self.estimate = widgets.HTML()
         self.estimate.add_class("interkit-estimate")
-        for w, cls in ((self.grid, "interkit-grid"), (self.levels, "interkit-levels"),
-                       (self.workers, "interkit-workers"), (self.demo, "interkit-demo")):
-            w.add_class(cls)
-        # ------------------------------------------------------------ run
-        self.run_button = widgets.Button(description="Run scan", button_style="primary", icon="play")
-        self.run_button.add_class("interkit-run")
-        self.cancel_button = widgets.Button(description="Cancel", icon="stop", disabled=True)
-        self.cancel_button.add_class("interkit-cancel")
-        self.progress = widgets.IntProgress(value=0, min=0, max=1, description="progress")
-        self.progress.add_class("interkit-progress")
-        self.progress_label = widgets.HTML()
-        self.progress_label.add_class("interkit-progress-label")
-        self.point_table = widgets.HTML()
-        self.point_table.add_class("interkit-point-status")
-        self.live = widgets.VBox()
-        self.result_box = widgets.VBox()
-        self.result_box.add_class("interkit-result")
-        # ------------------------------------------------------------ wiring
+
+    def _wire(self) -> None:
+        """Connect the controls to their handlers."""
         self.source.observe(self._on_source, "value")
         self.demo.observe(lambda _c: self._load_demo(), "value")
         self.upload.observe(self._on_upload, "value")
@@ -233,8 +196,9 @@ class ScanLauncher(widgets.VBox):
         self.levels.observe(lambda _c: self._guess_seconds(), "value")
         self.run_button.on_click(lambda _b: self.run())
         self.cancel_button.on_click(lambda _b: self.cancel())
-        self._source_box = widgets.VBox()
-        self._text_source = ""
+
+    def _layout(self) -> list:
+        """The launcher's children: the numbered form beside the preview, then run and outputs."""
         h = widgets.HTML
         form = widgets.VBox([
             h("<b>1 · Dimer</b>"), self.source, self._source_box,
@@ -249,14 +213,12 @@ class ScanLauncher(widgets.VBox):
             widgets.HBox([self.grid_level, self.grid_pruning]), widgets.HBox([self.jk_auxbasis, self.ri_auxbasis]),
             self.memory_limit, self.cache,
             widgets.HBox([self.seconds_per_calc, self.estimate]),
-        ], layout=lay(width="470px"))
-        super().__init__(children=[
+        ], layout=_lay(width="470px"))
+        return [
             widgets.HBox([form, widgets.VBox([self.preview, self.message])]),
             widgets.HBox([self.run_button, self.cancel_button, self.progress, self.progress_label]),
             self.point_table, self.live, self.result_box,
-        ])
-        self.add_class("interkit-launcher")
-        self._on_source()
+        ]
 
     # ------------------------------------------------------------------ dimer input
     def _on_source(self, _change=None) -> None:
@@ -350,14 +312,7 @@ class ScanLauncher(widgets.VBox):
         opts = {f: [(f"{i} · {dimer.symbols[i]} · fragment {f}", i) for i in idx]
                 for f, idx in (("A", dimer.fragment_a), ("B", dimer.fragment_b))}
         self.atom_a.options, self.atom_b.options = opts["A"], opts["B"]
-        formula = {f: _formula([dimer.symbols[i] for i in idx])
-                   for f, idx in (("A", dimer.fragment_a), ("B", dimer.fragment_b))}
-        self.dimer_info.value = note_html(
-            f"{dimer.name}: {dimer.natoms} atoms · A {len(dimer.fragment_a)} atoms ({formula['A']}, charge "
-            f"{dimer.charges[0]}, 2S+1 = {dimer.multiplicities[0]}) · B {len(dimer.fragment_b)} atoms "
-            f"({formula['B']}, charge {dimer.charges[1]}, 2S+1 = {dimer.multiplicities[1]}) · dimer "
-            f"2S+1 = {dimer.spin + 1}" + (" (broken symmetry)" if dimer.broken_symmetry else
-                                           " (high spin)" if sum(dimer.spins) else ""))
+        self.dimer_info.value = note_html(dimer_summary(dimer))
         self._guess_seconds()
         self._refresh_preview()
 
@@ -476,93 +431,3 @@ class ScanLauncher(widgets.VBox):
                         decomposition="sapt0" if self.decomposition.value else None,
                         dispersion=[t.strip() for t in self.dispersion.value.split(",") if t.strip()] or None,
                         name=self.dimer.name, **kwargs)
-
-    # ------------------------------------------------------------------ running
-    @_shows_errors
-    def run(self, wait: bool = False) -> BackgroundScan | None:
-        """Start the scan in a background thread (``wait=True`` blocks until it ends)."""
-        if self.scan is not None and self.scan.running:
-            raise InputError("run: a scan is already running; cancel it or wait")
-        spec = self.build_spec()
-        self.message.value = ""
-        executor = "serial" if self.workers.value == 1 else self.executor
-        self.result, self.explorer = None, None
-        self.result_box.children = []
-        self.scan = BackgroundScan(spec, executor=executor, cache=self.cache.value.strip() or None,
-                                   workers=self.workers.value, on_progress=self._on_progress,
-                                   on_done=self._on_done)
-        self.progress.max, self.progress.value = self.scan.total, self.scan.done
-        self.progress.bar_style = ""
-        self.progress_label.value = f"0 of {self.scan.total} calculations"
-        self.run_button.disabled, self.cancel_button.disabled = True, False
-        self._show_points()
-        self.scan.start()
-        if wait:
-            self.scan.wait()
-        return self.scan
-
-    def cancel(self) -> None:
-        """Stop after the running calculations; what finished is kept in the result."""
-        if self.scan is not None and self.scan.running:
-            self.scan.cancel()
-            self.cancel_button.disabled = True
-            self.progress_label.value = "cancelling: waiting for the running calculations…"
-
-    def wait(self, timeout: float | None = None) -> bool:
-        """Block until the running scan ends; True if it has ended."""
-        return True if self.scan is None else self.scan.wait(timeout)
-
-    def _on_progress(self, scan: BackgroundScan) -> None:
-        self.progress.value = scan.done
-        self.progress_label.value = f"{scan.done} of {scan.total} calculations"
-        self._show_points()
-        now = time.perf_counter()
-        if now - self._last_live > 0.5:
-            self._last_live = now
-            self._show_live(scan.partial())
-
-    def _on_done(self, scan: BackgroundScan) -> None:
-        self.run_button.disabled, self.cancel_button.disabled = False, True
-        if scan.error is not None:
-            self.progress.bar_style = "danger"
-            self.message.value = error_html(scan.error)
-            self.progress_label.value = "stopped by an error"
-            return
-        self.result = scan.result
-        cancelled = scan.cancel_event.is_set()
-        self.progress.value = scan.done
-        self.progress.bar_style = "warning" if cancelled else "success"
-        seconds = (scan.finished or 0) - (scan.started or 0)
-        self.progress_label.value = (f"{'cancelled' if cancelled else 'finished'} after {seconds:.1f} s · "
-                                     f"{scan.done} of {scan.total} calculations")
-        self._show_points()
-        self.live.children = []
-        self.explorer = ScanExplorer(self.result)
-        self.result_box.children = [widgets.HTML("<b>Result</b> (also in <code>launcher.result</code>)"),
-                                    self.explorer]
-
-    def _show_points(self) -> None:
-        if self.scan is None:
-            return
-        states = self.scan.point_states()
-        dist = [p.distance for p in self.scan.spec.points]
-        head = "".join(f'<th style="padding:0 6px;font-weight:normal">{d:.2f}</th>' for d in dist)
-        rows = []
-        for li, level in enumerate(self.scan.spec.levels):
-            cells = []
-            for pi in range(len(dist)):
-                mark, colour = STATUS_STYLE[states[li, pi]]
-                cells.append(f'<td title="{states[li, pi]}" data-state="{states[li, pi]}" '
-                             f'style="color:{colour};text-align:center">{mark}</td>')
-            rows.append(f"<tr><td>{html.escape(level.label)}</td>{''.join(cells)}</tr>")
-        legend = " ".join(f'<span style="color:{c}">{m}</span> {k}' for k, (m, c) in STATUS_STYLE.items())
-        self.point_table.value = (f'<table style="font-size:90%"><tr><th>point / Å</th>{head}</tr>'
-                                  f'{"".join(rows)}</table><div style="font-size:80%;color:#555">{legend}</div>')
-
-    def _show_live(self, ds) -> None:
-        panel = CurvePanel(ds, width=5.0, height=3.2)
-        if not np.isfinite(ds["e_int"].values).any() and not np.isfinite(ds["e_int_nocp"].values).any():
-            return
-        panel.redraw([str(x) for x in panel.ds["level"].values], "kcal/mol", False, False, 0)
-        panel.image.add_class("interkit-live-curve")
-        self.live.children = [widgets.HTML("<i>curve so far</i>"), panel.image]
