@@ -120,7 +120,7 @@ def cmd_export(args) -> int:
     from .output import check_output
 
     export_format(args.output, args.format, ("--output", "--format"))   # check before reading the scan
-    check_output(args.output, "--output", (".csv", ".json") if args.format is None else ("",), "export")
+    check_output(args.output, "--output", (".csv", ".json", ".xyz", ".extxyz") if args.format is None else ("",), "export")
     ds = open_scan(args.scan)
     export_scan(ds, args.output, args.format, args.unit, level=args.level)
     print(f"wrote {args.output}")
