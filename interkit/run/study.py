@@ -55,7 +55,7 @@ def merged_jobs(plans) -> dict:
 
 def study_chunks(plans, done: set[str] | dict, n_workers: int) -> list[list[tuple[str, str]]]:
     """Ordered task lists of ``(role, key)`` over all systems, each key once, without
-    ``done`` keys; largest first, so the last chunks to start are the short ones."""
+    ``done`` keys; the most expensive first, so the last chunks to start are short ones."""
     total = sum(len(p.jobs) for p in plans) or 1
     seen: set[str] = set(done)
     out = []
@@ -70,7 +70,9 @@ def study_chunks(plans, done: set[str] | dict, n_workers: int) -> list[list[tupl
                     todo.append((role, key))
             if todo:
                 out.append(todo)
-    out.sort(key=len, reverse=True)  # stable: systems keep their order among equals
+    # longest first (by a rough cost, atoms cubed): the last chunks to start are short ones
+    jobs = {k: j for plan in plans for k, j in plan.jobs.items()}
+    out.sort(key=lambda tasks: sum(len(jobs[k].symbols) ** 3 for _, k in tasks), reverse=True)
     return out
 
 
