@@ -267,6 +267,36 @@ def test_report_widget_and_cli_on_a_saved_study(three_tree, tmp_path, capsys):
     assert "reference: 'mp2/sto-3g'" in capsys.readouterr().err
 
 
+def test_rerun_and_verify_work_on_a_study_file(three_tree, tmp_path):
+    path = tmp_path / "study.nc"
+    save_study(three_tree, path)
+    fresh, check = ik.rerun_study(path, executor="serial", progress=False)
+    assert check.passed and sorted(check.tables) == sorted(THREE)
+    assert fresh.attrs["calculations_computed"] == 15
+    verified = ik.verify_study(path, sample=1, executor="serial")
+    assert verified.passed and "every system within its tolerances" in str(verified)
+
+
+def test_cli_study_run_writes_one_file_and_refuses_bad_input_in_one_line(tmp_path, capsys):
+    from interkit.cli.main import main
+
+    _write_xyz(tmp_path, "Water_dimer", [0.0])
+    toml = tmp_path / "study.toml"
+    toml.write_text('name = "cli"\n[calculation]\nlevels = ["hf/sto-3g"]\n[[systems]]\nname = "w"\n'
+                    'category = "hb"\ngeometry = "Water_dimer.xyz"\nfragment_a = [0, 1, 2]\nfactors = [1.0]\n'
+                    'reference_kcal_per_mol = [-4.989]\n')
+    out = tmp_path / "s.nc"
+    assert main(["study", "run", str(toml), "-o", str(out), "--serial", "--quiet", "--cache", str(tmp_path / "c")]) == 0
+    text = capsys.readouterr().out
+    assert "1 systems, 5 calculations: 5 computed, 0 from the store" in text and "ranking against" in text
+    assert open_study(out)["w"].sizes["distance"] == 1
+    toml.write_text(toml.read_text().replace('factors = [1.0]', 'factors = [1.0, 1.0]'))
+    bad = tmp_path / "bad.nc"
+    assert main(["study", "run", str(toml), "-o", str(bad), "--serial", "--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "systems[0] 'w'" in err and not bad.exists()
+
+
 # ---------------------------------------------------------------------- Dask (batch-system code path)
 def test_dask_jobqueue_local_cluster_equals_serial(tmp_path):
     pytest.importorskip("dask_jobqueue")

@@ -15,7 +15,14 @@ import ipywidgets as widgets
 import numpy as np
 import xarray as xr
 
-from ..analysis.study_stats import POINTS, REGIONS, STORED, error_matrix, rank_methods
+from ..analysis.study_stats import (
+    POINTS,
+    REGIONS,
+    STORED,
+    error_matrix,
+    rank_methods,
+    resolve_study_reference,
+)
 from ..data.study_tree import open_study, system_datasets, validate_study
 from ..errors import InterkitError
 from .style import error_html
@@ -55,10 +62,13 @@ class StudyExplorer(widgets.VBox):
         self.datasets = system_datasets(tree)
         curves = [str(c) for c in tree["curve"].values]
         options = ([STORED] if "reference_e_int" in tree.variables else []) + curves
-        if reference is not None and str(reference) not in options:
-            options.append(str(reference))
-        self.reference_select = widgets.Dropdown(options=options, description="reference",
-                                                 value=str(reference) if reference is not None else options[0],
+        try:
+            chosen = resolve_study_reference(tree, reference)
+        except InterkitError:
+            chosen = options[0] if reference is None else str(reference)
+        if chosen not in options:
+            options.append(chosen)
+        self.reference_select = widgets.Dropdown(options=options, description="reference", value=chosen,
                                                  layout=widgets.Layout(width="360px"))
         self.points_select = widgets.ToggleButtons(options=list(POINTS), value="equilibrium", description="points")
         self.region_select = widgets.Dropdown(options=list(REGIONS), value="all", description="region",
