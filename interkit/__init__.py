@@ -20,7 +20,9 @@ from __future__ import annotations
 
 from . import analysis
 from .analysis import comparison, fits
+from .analysis.study_stats import rank_methods, study_errors, study_statistics
 from .data.schema import open_scan, save_scan, spec_of, validate
+from .data.study_tree import open_study, save_study
 from .errors import (
     ConvergenceError,
     InputError,
@@ -34,14 +36,21 @@ from .model.coordinates import AtomPair, CentreOfMass, Frames, ScanCoordinate, V
 from .model.demo import demo_catalog, list_demos, load_demo
 from .model.geometry import Dimer
 from .model.levels import LevelOfTheory, parse_level
+from .model.s22 import s22_study
 from .model.spec import ScanSpec
 from .model.spec_file import load_spec_toml
+from .model.study import ReferenceValue, Study, StudySystem
+from .model.study_file import load_study_toml
+from .model.study_folder import read_study_folder
 from .run.feasibility import check_feasibility
 from .run.scan import run_scan
+from .run.study import run_study
 from .share.export import export_scan
 from .share.methods import methods_bibtex, methods_text
 from .share.replay import rerun_scan, verify_scan
 from .share.report import write_report
+from .share.study_replay import rerun_study, verify_study
+from .share.study_report import write_study_report
 from .units import convert_energy
 from .version import __version__
 
@@ -52,6 +61,10 @@ __all__ = [
     "demo_catalog", "export_scan", "list_demos", "load_demo", "load_spec_toml", "methods_bibtex", "methods_text",
     "open_scan", "parse_level", "rerun_scan", "run_scan", "save_scan", "spec_of", "validate", "verify_scan",
     "write_report",
+    # studies: many dimers, one comparison
+    "ReferenceValue", "Study", "StudySystem", "load_study_toml", "open_study", "rank_methods", "read_study_folder",
+    "rerun_study", "run_study", "s22_study", "save_study", "study_errors", "study_statistics", "verify_study",
+    "write_study_report",
 ]
 
 
