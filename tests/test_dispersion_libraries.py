@@ -136,10 +136,6 @@ H   0.000000  0.000000  1.350000
 """
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "interkit.engine.dispersion.dispersion_energy_and_gradient builds its pyscf Mole "
-    "with charge 0, so D4 (whose EEQ charges depend on the total charge) is evaluated "
-    "for the neutral system even for ionic fragments"))
 def test_d4_of_an_ionic_dimer_uses_the_fragment_charges():
     """D4 depends on the total charge (Caldeweyher et al. 2019, EEQ partial charges);
     an anion-molecule dimer must be evaluated with charge -1 on the anion."""
