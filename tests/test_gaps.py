@@ -72,7 +72,7 @@ def test_frames_from_toml_with_explicit_values_saved_reopened_and_verified(tmp_p
         f'[scan]\ncoordinate = "frames"\nframes = "frames.xyz"\nvalues = {values}\n'
         f'[calculation]\nlevels = ["{LEVEL}"]\n')
     spec = ik.load_spec_toml(tmp_path / "spec.toml")
-    assert isinstance(spec.coordinate, ik.Frames) and not spec.is_rigid
+    assert isinstance(spec.coordinate, ik.Frames)
     ds = ik.run_scan(spec, executor="serial", progress=False)
     assert list(ds["distance"].values) == values  # the explicit values, not measured ones
     np.testing.assert_allclose(ds["coordinates"].values, np.array(frames), atol=1e-8)
