@@ -55,11 +55,12 @@ def _write_frames(path, frames) -> None:
     path.write_text(text)
 
 
-def _single_point_e_int(coords) -> float:
-    """The same geometry as its own one-point scan (factor 1 of the centre-of-mass
-    coordinate is the input geometry)."""
+def _single_point(coords) -> tuple[float, float]:
+    """(e_int, e_int_nocp) of the same geometry as its own one-point scan (factor 1 of
+    the centre-of-mass coordinate is the input geometry)."""
     spec = ik.ScanSpec(dimer=hf_dimer().with_coordinates(coords), factors=[1.0], levels=[LEVEL])
-    return float(ik.run_scan(spec, executor="serial", progress=False)["e_int"].values[0, 0])
+    ds = ik.run_scan(spec, executor="serial", progress=False)
+    return float(ds["e_int"].values[0, 0]), float(ds["e_int_nocp"].values[0, 0])
 
 
 def test_frames_from_toml_with_explicit_values_saved_reopened_and_verified(tmp_path):
@@ -76,11 +77,14 @@ def test_frames_from_toml_with_explicit_values_saved_reopened_and_verified(tmp_p
     ds = ik.run_scan(spec, executor="serial", progress=False)
     assert list(ds["distance"].values) == values  # the explicit values, not measured ones
     np.testing.assert_allclose(ds["coordinates"].values, np.array(frames), atol=1e-8)
-    # each frame is its own geometry: the same number as a one-point scan of it
-    # (source: the single-point scans; a mix-up of frames or a rigid-scan shortcut that
-    # reuses the first frame's monomers would differ, since B's bond changes)
+    # each frame is its own geometry: the same numbers as a one-point scan of it
+    # (source: the single-point scans; a mix-up of frames, or a rigid-scan shortcut that
+    # reuses the first frame's own-basis monomers in the uncorrected energy, would
+    # differ, since B's bond changes)
     for k, c in enumerate(frames):
-        assert float(ds["e_int"].values[0, k]) == pytest.approx(_single_point_e_int(c), abs=1e-7)
+        e_int, e_nocp = _single_point(c)
+        assert float(ds["e_int"].values[0, k]) == pytest.approx(e_int, abs=1e-7)
+        assert float(ds["e_int_nocp"].values[0, k]) == pytest.approx(e_nocp, abs=1e-7)
     path = tmp_path / "frames.nc"
     ik.save_scan(ds, path)
     xr.testing.assert_identical(ik.open_scan(path), ds)
