@@ -258,7 +258,6 @@ def test_ecp_energies_and_forces_equal_pyscf_and_finite_differences(xyz, basis):
     assert float(ds["e_int"].values[0, 0]) == pytest.approx(e_int, abs=E_TOL_KCAL)
     forces = ds["forces"].values[0, 0]
     np.testing.assert_allclose(forces, want, atol=F_TOL)
-    # the halogen (ECP centre) and the H-bonded hydrogen, by central differences
-    for atom, axis in [(0, 2), (2, 0)]:
-        fd = finite_difference_force(dimer, basis, "hf", atom, axis, ecp=True)
-        assert forces[atom, axis] == pytest.approx(fd, abs=F_TOL), (atom, axis)
+    # the force on the halogen (the ECP centre) along the contact, by central differences
+    fd = finite_difference_force(dimer, basis, "hf", 0, 2, ecp=True)
+    assert forces[0, 2] == pytest.approx(fd, abs=F_TOL)
