@@ -1,11 +1,55 @@
-"""Shared fixtures: S22 geometries from ASE, small dimers, temporary stores."""
+"""Shared fixtures: S22 geometries from ASE, small dimers, temporary stores; the
+:func:`require` rule for test prerequisites."""
 
 from __future__ import annotations
+
+import importlib
+import os
 
 import numpy as np
 import pytest
 
 import interkit as ik
+
+
+def in_ci() -> bool:
+    """True when the environment variable CI is ``true`` (set by ``.ci/run``)."""
+    return os.environ.get("CI", "").strip().lower() == "true"
+
+
+def require(prerequisite, reason: str):
+    """Skip the calling test (or module) when a prerequisite is missing; fail under CI.
+
+    Parameters
+    ----------
+    prerequisite : bool or str
+        A condition that must hold, or the name of a module that must import.
+    reason : str
+        What is missing and how to get it, shown in the skip or failure message.
+
+    Returns
+    -------
+    module or None
+        The imported module when ``prerequisite`` is a module name.
+
+    A missing prerequisite is a local skip but a failure in CI (``CI=true``), so a CI
+    run can never pass by skipping what it was meant to check.
+    """
+    module = None
+    if isinstance(prerequisite, str):
+        try:
+            module = importlib.import_module(prerequisite)
+        except ImportError as exc:
+            ok, reason = False, f"{reason} ({prerequisite} does not import: {exc})"
+        else:
+            ok = True
+    else:
+        ok = bool(prerequisite)
+    if not ok:
+        if in_ci():
+            pytest.fail(f"missing test prerequisite under CI=true: {reason}", pytrace=False)
+        pytest.skip(reason, allow_module_level=True)
+    return module
 
 
 def s22_dimer(name: str) -> ik.Dimer:

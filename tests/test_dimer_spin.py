@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from conftest import require
 
 import interkit as ik
 from interkit.cli import main
@@ -229,7 +230,7 @@ def test_heavy_spin_contamination_is_flagged_in_status():
 
 
 def test_launcher_has_a_dimer_multiplicity_field():
-    W = pytest.importorskip("interkit.widgets")
+    W = require("interkit.widgets", "the notebook layer needs ipywidgets (pip install -e .[test])")
     launcher = W.ScanLauncher(executor="serial")
     launcher.mults[0].value, launcher.mults[1].value = 2, 2
     launcher.load_xyz_text(_h2(4.0).to_xyz_string(), "h2")

@@ -128,6 +128,7 @@ def test_ranking_skips_pairs_without_values(comparison):
     assert len(rows) == 5 + 2
 
 
+@pytest.mark.slow  # about 40 s on a free core (seven B3LYP/def2-TZVP points): make test-full
 def test_b3lyp_needs_dispersion_to_bind_the_methane_dimer():
     """Geometry: S22 methane dimer (ase.data.s22; Jurečka et al., PCCP 8, 1985 (2006)).
     Expectation (common practice): B3LYP alone does not bind dispersion-bound dimers;

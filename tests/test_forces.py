@@ -45,14 +45,20 @@ def _e_int(dimer, level, forces) -> float:
 CASES = [
     ("Water_dimer", "hf/def2-svp", [(0, 0), (1, 1), (3, 0), (4, 2)], False),
     ("Ammonia_dimer", "hf/def2-svp", [(0, 0), (5, 1)], False),
-    ("Water_dimer", "b3lyp-d3bj/def2-svp", [(0, 0), (5, 2)], False),
+    # about 20 s on a free core (DFT grids for every displaced geometry): make test-full
+    pytest.param("Water_dimer", "b3lyp-d3bj/def2-svp", [(0, 0), (5, 2)], False, marks=pytest.mark.slow),
     # DF-MP2 gradients: the derivative of the DF-MP2 energies of energy-only scans
     ("Water_dimer", "mp2/def2-svp", [(0, 0), (4, 1)], False),
 ]
 
 
+def _case_id(case) -> str:
+    values = case.values if hasattr(case, "values") else case
+    return f"{values[0]}-{values[1]}"
+
+
 @pytest.mark.parametrize("name,level,components,energies_from_gradient_jobs", CASES,
-                         ids=[f"{c[0]}-{c[1]}" for c in CASES])
+                         ids=[_case_id(c) for c in CASES])
 def test_analytic_forces_match_finite_differences(name, level, components, energies_from_gradient_jobs):
     dimer = s22_dimer(name)
     coord = ik.CentreOfMass()

@@ -15,7 +15,7 @@ import sys
 
 import numpy as np
 import pytest
-from conftest import HF_DIMER_XYZ, hf_dimer
+from conftest import HF_DIMER_XYZ, hf_dimer, require
 
 import interkit as ik
 from interkit.cli import main
@@ -299,7 +299,7 @@ def test_json_export_writes_null_for_nan(tmp_path):
 
 def test_connect_passes_a_security_object(monkeypatch):
     """`--scheduler` is plain TCP unless a Dask security object is given: connect takes one."""
-    distributed = pytest.importorskip("distributed")
+    distributed = require("distributed", "the Dask executor needs distributed (pip install -e .[dask])")
     import interkit.run.dask as ed
 
     seen = {}

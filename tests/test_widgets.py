@@ -8,6 +8,7 @@ import threading
 import numpy as np
 import pytest
 import traitlets
+from conftest import require
 
 import interkit as ik
 import interkit.widgets as W
@@ -200,12 +201,16 @@ def test_slots_show_forces_and_components_when_present(scan):
     assert "not part of this scan" in plain.components.children[0].value
 
 
-def test_3d_view_is_offline_and_says_when_library_is_missing(explorer, monkeypatch, tmp_path):
-    if viewer3d.library_available():
-        lib = viewer3d.library_widget().outputs[0]["data"]["text/html"]
-        assert "window.$3Dmol" in lib and "createViewer" in lib
-        view = explorer.view3d._view.outputs[0]["data"]["text/html"]
-        assert "http" not in view and explorer.view3d.div_id in view
+def test_3d_view_is_offline(explorer):
+    require(viewer3d.library_available(), f"{viewer3d.LIBRARY_PATH} is missing "
+            "(python -m interkit.widgets.fetch_3dmol, or make install)")
+    lib = viewer3d.library_widget().outputs[0]["data"]["text/html"]
+    assert "window.$3Dmol" in lib and "createViewer" in lib
+    view = explorer.view3d._view.outputs[0]["data"]["text/html"]
+    assert "http" not in view and explorer.view3d.div_id in view
+
+
+def test_3d_view_says_when_library_is_missing(explorer, monkeypatch, tmp_path):
     monkeypatch.setattr(viewer3d, "LIBRARY_PATH", tmp_path / "absent.js")
     view = viewer3d.Molecule3D(explorer.scenes())
     assert not view.available

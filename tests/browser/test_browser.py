@@ -1,7 +1,8 @@
 """The widgets in a real headless Chromium, served by Voilà on 127.0.0.1, offline.
 
-Every request that does not go to 127.0.0.1 is aborted, so a drawn 3D view proves that
-3Dmol.js came inline from the package and not from the network. Screenshots of
+Every request that does not go to 127.0.0.1 is aborted and recorded, and each test ends
+by asserting that none was attempted, so a drawn 3D view proves that 3Dmol.js came
+inline from the package and not from the network. Screenshots of
 failures go to ``test-artifacts/``.
 """
 
@@ -20,21 +21,19 @@ import urllib.request
 from pathlib import Path
 
 import pytest
+from conftest import require
+from offline_chromium import LOOPBACK, offline_context, playwright_api
 
 pytestmark = pytest.mark.browser
 
-CHROMIUM = "/usr/bin/chromium"
 ROOT = Path(__file__).resolve().parents[2]
 ARTIFACTS = ROOT / "test-artifacts"
-CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-                 "--disable-background-networking", "--disable-component-update", "--disable-sync"]
-LOCAL = ("http://127.0.0.1", "ws://127.0.0.1", "data:", "blob:", "about:")
 BACKGROUND_RGB = (0xF4, 0xF6, 0xF9)   # interkit.widgets.style.BACKGROUND_3D
 
-if not os.path.exists(CHROMIUM):
-    pytest.skip(f"{CHROMIUM} is missing (Debian package chromium)", allow_module_level=True)
-playwright_api = pytest.importorskip("playwright.sync_api")
-pytest.importorskip("voila")
+playwright_api()
+require("voila", "the notebook tests serve notebooks with Voilà (pip install -e .[test])")
+require((ROOT / "interkit/widgets/static/3Dmol-min.js").is_file(),
+        "interkit/widgets/static/3Dmol-min.js is missing (python -m interkit.widgets.fetch_3dmol)")
 
 
 def _free_port() -> int:
@@ -93,12 +92,16 @@ def voila(tmp_path_factory, saved_scan, scheme_scan):
                                                                      "display_name": "Python 3"}}),
                    folder / "comparison-view.ipynb")
     port = _free_port()
+    # the template "offline-lab" (tests/browser/voila_offline) is Voila's lab page without
+    # the icon-font stylesheets that Voila's own templates load from a CDN
+    templates = str(Path(__file__).parent / "voila_offline")
     env = dict(os.environ, INTERKIT_SCAN=str(saved_scan), INTERKIT_SCHEME_SCAN=str(scheme_scan),
-               INTERKIT_EXPORT_DIR=str(folder))
+               INTERKIT_EXPORT_DIR=str(folder),
+               JUPYTER_PATH=os.pathsep.join(filter(None, [templates, os.environ.get("JUPYTER_PATH")])))
     log = open(folder / "voila.log", "w")
     proc = subprocess.Popen(
         [sys.executable, "-m", "voila", "--no-browser", f"--port={port}", "--Voila.ip=127.0.0.1",
-         "--ServerApp.ip=127.0.0.1", str(folder)],
+         "--ServerApp.ip=127.0.0.1", "--template=offline-lab", str(folder)],
         cwd=folder, env=env, stdout=log, stderr=subprocess.STDOUT)
     base = f"http://127.0.0.1:{port}"
     try:
@@ -123,26 +126,13 @@ def voila(tmp_path_factory, saved_scan, scheme_scan):
 
 @pytest.fixture
 def page(tmp_path):
-    """A fresh Chromium profile; every non-local request is aborted and recorded."""
-    with playwright_api.sync_playwright() as p:
-        ctx = p.chromium.launch_persistent_context(
-            str(tmp_path / "profile"), executable_path=CHROMIUM, headless=True, args=CHROMIUM_ARGS,
-            viewport={"width": 1300, "height": 1700})
+    """A fresh Chromium profile; every request not to the loopback server is aborted and
+    recorded, and none may have been attempted by the end of the test."""
+    with offline_context(tmp_path / "profile", LOOPBACK, {"width": 1300, "height": 1700}) as (ctx, blocked):
         pg = ctx.new_page()
-        pg.blocked = []
-
-        def route(r):
-            if r.request.url.startswith(LOCAL):
-                r.continue_()
-            else:
-                pg.blocked.append(r.request.url)
-                r.abort()
-
-        pg.route("**/*", route)
-        try:
-            yield pg
-        finally:
-            ctx.close()
+        pg.blocked = blocked
+        yield pg
+        assert blocked == [], f"requests outside 127.0.0.1 were attempted: {blocked}"
 
 
 def _drawn_fraction(png: bytes) -> float:
@@ -169,7 +159,7 @@ def test_explorer_follows_the_slider_offline(voila, page):
         page.wait_for_timeout(300)
         drawn = _drawn_fraction(canvas.screenshot())
         assert drawn > 0.01, f"the 3D canvas looks blank ({drawn:.2%} drawn pixels)"
-        assert not any("3dmol" in u.lower() for u in page.blocked), page.blocked
+        assert page.blocked == [], page.blocked
         uid = page.eval_on_selector(".interkit-explorer .interkit-3d", "el => el.id")
         handle = page.wait_for_selector(".interkit-point-slider .noUi-handle")
         handle.focus()
@@ -258,7 +248,7 @@ def test_correction_comparison_switches_reference_and_exports_offline(voila, pag
         page.wait_for_function(
             "() => document.querySelector('.interkit-correction-comparison').textContent.includes('ranking.csv')",
             timeout=30_000)
-        assert page.blocked == [] or not any("3dmol" in u.lower() for u in page.blocked)
+        assert page.blocked == [], page.blocked
     except Exception:
         _shot(page, "comparison-failure.png")
         raise
