@@ -38,20 +38,22 @@ from .model.spec import ScanSpec
 from .model.spec_file import load_spec_toml
 from .run.feasibility import check_feasibility
 from .run.scan import run_scan
+from .run.store import DEFAULT_STORE
 from .share.export import export_scan
 from .share.methods import methods_bibtex, methods_text
 from .share.replay import rerun_scan, verify_scan
 from .share.report import write_report
+from .share.spec_writer import write_spec
 from .units import convert_energy
 from .version import __version__
 
 __all__ = [
-    "AtomPair", "CentreOfMass", "analysis", "check_feasibility", "comparison", "ConvergenceError", "fits", "Dimer", "Frames", "InputError",
+    "AtomPair", "CentreOfMass", "analysis", "check_feasibility", "comparison", "ConvergenceError", "DEFAULT_STORE", "fits", "Dimer", "Frames", "InputError",
     "InterkitError", "InterkitWarning", "LevelOfTheory", "NotAvailableError", "ResourceError",
     "ScanCoordinate", "ScanSpec", "StoreError", "Vector", "__version__", "convert_energy",
     "demo_catalog", "export_scan", "list_demos", "load_demo", "load_spec_toml", "methods_bibtex", "methods_text",
     "open_scan", "parse_level", "rerun_scan", "run_scan", "save_scan", "spec_of", "validate", "verify_scan",
-    "write_report",
+    "write_report", "write_spec",
 ]
 
 
