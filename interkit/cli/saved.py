@@ -40,7 +40,15 @@ def add_commands(sub, add_run_options) -> None:
     p.add_argument("scan", help="netCDF scan file")
     p.add_argument("-o", "--output", required=True, help="HTML file to write")
     p.add_argument("--reference", default=None,
-                   help="level used as reference in the comparison (default: the highest level of the scan)")
+                   help="curve used as reference in the comparison (default: as interkit compare, the most "
+                        "accurate wavefunction level of the scan, else its first curve)")
+    from ..analysis.error_statistics import REGIONS
+
+    p.add_argument("--region", choices=REGIONS, default="all",
+                   help="points in the statistics, as interkit compare --region (default: all)")
+    p.add_argument("--window", metavar="ANGSTROM", type=float, default=None,
+                   help="half-width of --region window in angstrom (default 0.5)")
+    p.add_argument("--relative", action="store_true", help="errors in per cent of |reference|")
 
     from ..share.export import FORMATS
 
@@ -109,7 +117,8 @@ def cmd_report(args) -> int:
 
     check_output(args.output, "--output", (".html", ".htm"), "HTML")
     ds = open_scan(args.scan)
-    write_report(ds, args.output, reference=args.reference)
+    write_report(ds, args.output, reference=args.reference, region=args.region, window_angstrom=args.window,
+                 relative=args.relative)
     print(f"wrote {args.output}")
     return 0
 
