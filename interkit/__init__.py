@@ -6,11 +6,12 @@ Public API::
     dimer = ik.Dimer.from_xyz("demo_systems/water_methanol.xyz")
     spec = ik.ScanSpec(dimer=dimer, coordinate=ik.AtomPair(1, 5),
                        factors=[0.9, 1.0, 1.2, 1.5, 2.0], levels=["hf/def2-svp"])
-    ds = ik.run_scan(spec, cache=".interkit-cache")
+    ds = ik.run_scan(spec)                      # keeps a store in .interkit-cache (cache=None: none)
     ik.save_scan(ds, "scan.nc")
     ik.verify_scan("scan.nc", sample=3)        # recompute 3 points from scratch, compare
     ik.write_report(ds, "report.html")         # self-contained HTML, opens offline
     ik.export_scan(ds, "scan.csv")             # tidy CSV; .json: QCSchema molecules
+    ik.write_spec(spec, "scan.toml")           # a spec file for `interkit scan` (same calculations)
 
 Computed interaction energies are model results with method and basis-set errors;
 validate them before using them in design decisions.
