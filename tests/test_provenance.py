@@ -292,7 +292,7 @@ def test_report_and_exports_accept_a_scan_file(saved, tmp_path):
     assert float(e_int[0]["value"]) == pytest.approx(float(ds["e_int"].values[0, 0]) * 4.184, rel=1e-9)
     doc = json.loads(open(ik.export_scan(path, tmp_path / "s.json"), encoding="utf-8").read())
     assert len(doc["points"]) == 3
-    with pytest.raises(ik.InputError, match="path: .*should end in .csv or .json \\(or give fmt\\)"):
+    with pytest.raises(ik.InputError, match="path: .*should end in .csv, .json.* \\(or give fmt\\)"):
         ik.export_scan(path, tmp_path / "s.txt")
     with pytest.raises(ik.InputError, match="path: folder .* does not exist"):
         ik.write_report(path, tmp_path / "nowhere" / "r.html")

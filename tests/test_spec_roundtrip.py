@@ -106,6 +106,7 @@ def test_the_dataset_keeps_the_spec_as_toml_and_interkit_spec_extracts_it(tmp_pa
     ds = ik.run_scan(spec, executor="serial", progress=False, cache=None)
     assert ds.attrs["spec_toml"] == spec.to_toml()
     ik.save_scan(ds, tmp_path / "scan.nc")
+    assert ik.open_scan(tmp_path / "scan.nc").attrs["spec_toml"] == spec.to_toml()   # survives the file
     assert main(["spec", str(tmp_path / "scan.nc"), "-o", str(tmp_path / "again.toml")]) == 0
     again = ik.load_spec_toml(tmp_path / "again.toml")
     assert _keys(again) == _keys(spec)
@@ -114,6 +115,9 @@ def test_the_dataset_keeps_the_spec_as_toml_and_interkit_spec_extracts_it(tmp_pa
     assert saved == set(_keys(again))
     assert main(["spec", str(tmp_path / "scan.nc"), "-o", str(tmp_path / "bad.txt")]) == 2
     assert not (tmp_path / "bad.txt").exists()
+    capsys.readouterr()
+    assert main(["spec", str(tmp_path / "scan.nc")]) == 0     # without -o: printed
+    assert capsys.readouterr().out == spec.to_toml()
 
 
 def test_launcher_saves_the_spec_of_its_form(tmp_path):

@@ -182,7 +182,7 @@ def test_progress_callback_error_is_reported_once_and_the_scan_completes(executo
 # -- late errors: records survive an error after the calculations -------------------------------
 
 def test_error_after_the_calculations_carries_the_records(monkeypatch, reference):
-    import interkit.run as run_module
+    import interkit.run.scan as run_module
 
     def broken(*args, **kwargs):
         raise RuntimeError("assembly failed")

@@ -55,7 +55,7 @@ def add_commands(sub, add_run_options) -> None:
     p = sub.add_parser("export", help="write the scan as a tidy CSV table, JSON with QCSchema molecules, or XYZ geometries (.xyz; .extxyz with energies and forces)")
     p.add_argument("scan", help="netCDF scan file")
     p.add_argument("-o", "--output", required=True, help="file to write (.csv, .json, .xyz or .extxyz)")
-    p.add_argument("--format", choices=FORMATS, default=None, help="csv or json (default: from the suffix)")
+    p.add_argument("--format", choices=FORMATS, default=None, help="csv, json, xyz or extxyz (default: from the suffix)")
     p.add_argument("--unit", default="kcal/mol", help="energy unit of the CSV (default: %(default)s)")
     p.add_argument("--level", default=None, help="extxyz: curve whose energy and forces are written")
 
@@ -125,11 +125,11 @@ def cmd_report(args) -> int:
 
 def cmd_export(args) -> int:
     from ..data.schema import open_scan
-    from ..share.export import export_format, export_scan
+    from ..share.export import FORMATS, export_format, export_scan
     from .output import check_output
 
     export_format(args.output, args.format, ("--output", "--format"))   # check before reading the scan
-    check_output(args.output, "--output", (".csv", ".json") if args.format is None else ("",), "export")
+    check_output(args.output, "--output", tuple(f".{f}" for f in FORMATS) if args.format is None else ("",), "export")
     ds = open_scan(args.scan)
     export_scan(ds, args.output, args.format, args.unit, level=args.level)
     print(f"wrote {args.output}")
