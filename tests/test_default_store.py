@@ -77,3 +77,13 @@ def test_launcher_and_background_scan_use_the_default_store(tmp_path, monkeypatc
     assert scan.error is None
     assert _entries(tmp_path / "store") == 8
     assert len(BackgroundScan(_spec(), executor="serial").records) == 8    # found in the store before running
+
+
+def test_the_command_line_follows_the_same_folder_rule(tmp_path, monkeypatch):
+    from interkit.cli.main import _build_parser
+
+    argv = ["scan", "spec.toml", "-o", "scan.nc"]
+    monkeypatch.delenv("INTERKIT_CACHE", raising=False)
+    assert _build_parser().parse_args(argv).cache == ".interkit-cache"
+    monkeypatch.setenv("INTERKIT_CACHE", str(tmp_path / "shared"))
+    assert _build_parser().parse_args(argv).cache == str(tmp_path / "shared")
