@@ -40,7 +40,7 @@ def _guess_share(store: str) -> float:
 
 
 def _timed(spec, warm, executor, repeat: int):
-    ik.run_scan(warm, executor=executor, progress=False)
+    ik.run_scan(warm, executor=executor, progress=False, cache=None)
     best, ds, share = float("inf"), None, float("nan")
     for _ in range(repeat):
         with tempfile.TemporaryDirectory() as store:

@@ -6,11 +6,12 @@ Public API::
     dimer = ik.Dimer.from_xyz("demo_systems/water_methanol.xyz")
     spec = ik.ScanSpec(dimer=dimer, coordinate=ik.AtomPair(1, 5),
                        factors=[0.9, 1.0, 1.2, 1.5, 2.0], levels=["hf/def2-svp"])
-    ds = ik.run_scan(spec, cache=".interkit-cache")
+    ds = ik.run_scan(spec)                      # keeps a store in .interkit-cache (cache=None: none)
     ik.save_scan(ds, "scan.nc")
     ik.verify_scan("scan.nc", sample=3)        # recompute 3 points from scratch, compare
     ik.write_report(ds, "report.html")         # self-contained HTML, opens offline
     ik.export_scan(ds, "scan.csv")             # tidy CSV; .json: QCSchema molecules
+    ik.write_spec(spec, "scan.toml")           # a spec file for `interkit scan` (same calculations)
 
 Computed interaction energies are model results with method and basis-set errors;
 validate them before using them in design decisions.
@@ -44,23 +45,25 @@ from .model.study_file import load_study_toml
 from .model.study_folder import read_study_folder
 from .run.feasibility import check_feasibility
 from .run.scan import run_scan
+from .run.store import DEFAULT_STORE
 from .run.study import run_study
 from .share.export import export_scan
 from .share.methods import methods_bibtex, methods_text
 from .share.replay import rerun_scan, verify_scan
 from .share.report import write_report
+from .share.spec_writer import write_spec
 from .share.study_replay import rerun_study, verify_study
 from .share.study_report import write_study_report
 from .units import convert_energy
 from .version import __version__
 
 __all__ = [
-    "AtomPair", "CentreOfMass", "analysis", "check_feasibility", "comparison", "ConvergenceError", "fits", "Dimer", "Frames", "InputError",
+    "AtomPair", "CentreOfMass", "analysis", "check_feasibility", "comparison", "ConvergenceError", "DEFAULT_STORE", "fits", "Dimer", "Frames", "InputError",
     "InterkitError", "InterkitWarning", "LevelOfTheory", "NotAvailableError", "ResourceError",
     "ScanCoordinate", "ScanSpec", "StoreError", "Vector", "__version__", "convert_energy",
     "demo_catalog", "export_scan", "list_demos", "load_demo", "load_spec_toml", "methods_bibtex", "methods_text",
     "open_scan", "parse_level", "rerun_scan", "run_scan", "save_scan", "spec_of", "validate", "verify_scan",
-    "write_report",
+    "write_report", "write_spec",
     # studies: many dimers, one comparison
     "ReferenceValue", "Study", "StudySystem", "load_study_toml", "open_study", "rank_methods", "read_study_folder",
     "rerun_study", "run_study", "s22_study", "save_study", "study_errors", "study_statistics", "verify_study",

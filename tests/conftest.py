@@ -62,6 +62,26 @@ def s22_dimer(name: str) -> ik.Dimer:
     return ik.Dimer.from_ase(atoms, fragment_a=range(n_a), name=name)
 
 
+@pytest.fixture(autouse=True, scope="session")
+def _session_default_store(tmp_path_factory):
+    """The default store of module- and session-scoped fixtures: a temporary folder."""
+    old = os.environ.get("INTERKIT_CACHE")
+    os.environ["INTERKIT_CACHE"] = str(tmp_path_factory.mktemp("session-default-store"))
+    yield
+    if old is None:
+        os.environ.pop("INTERKIT_CACHE", None)
+    else:
+        os.environ["INTERKIT_CACHE"] = old
+
+
+@pytest.fixture(autouse=True)
+def _default_store(_session_default_store, tmp_path_factory, monkeypatch):
+    """run_scan keeps a store by default (``$INTERKIT_CACHE``, else ``.interkit-cache`` in
+    the current folder): every test gets its own empty default store in a temporary
+    folder, so tests neither write into the repository nor see each other's results."""
+    monkeypatch.setenv("INTERKIT_CACHE", str(tmp_path_factory.mktemp("default-store")))
+
+
 @pytest.fixture
 def water_dimer() -> ik.Dimer:
     return s22_dimer("Water_dimer")

@@ -165,7 +165,7 @@ def test_blas_threads_are_set_on_the_workers(client):
     probe_all()  # forget what earlier tests set
     for n in (2, 1):
         ik.run_scan(_spec(factors=(1.0,), level="hf/sto-3g"), executor=DaskExecutor(client, blas_threads=n),
-                    progress=False)
+                    progress=False, cache=None)   # no store: both runs compute on the workers
         report = probe_all()
         ran = [v for v in report if v[0] is not None]
         assert ran, report

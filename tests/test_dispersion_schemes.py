@@ -166,7 +166,7 @@ def test_correction_comparison_widget(comparison, tmp_path):
     path = w.export()
     with open(path, newline="") as fh:
         lines = list(csv.reader(fh))
-    assert lines[0] == ["# reference: hf/sto-3g"] and len(lines) == 2 + 2
+    assert lines[0][0].startswith("# reference: hf/sto-3g (given)") and len(lines) == 2 + 2
     # an external CSV reference; a bad path is an inline error, not an exception
     ref = tmp_path / "ref.csv"
     ref.write_text("distance_angstrom,e_int_kcal_per_mol\n" + "\n".join(

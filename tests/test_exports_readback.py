@@ -53,6 +53,7 @@ def test_every_csv_header_follows_the_column_convention(scan, tmp_path):
         reference = "hf/3-21g"
         reference_file = None
         reference_curve = None
+        region, window, relative = "all", None, False
         table = str(tmp_path / "ranking.csv")
 
     nc = tmp_path / "s.nc"

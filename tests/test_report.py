@@ -58,8 +58,8 @@ def test_report_is_self_contained_and_escapes_labels(scan, tmp_path):
     assert ds.attrs["pyscf_version"] in text and "CODATA 2018" in text
     # 2 levels x (4 points x 3 counterpoise calculations + 2 own-basis monomers)
     assert 'calculations with a store key</td><td class="text">28</td>' in text
-    # the reference is the larger basis; its comparison row names the other level
-    assert "Reference: <b>hf/def2-svp</b>" in text
+    # the one rule (model.levels.default_reference): no wavefunction level, so the first curve
+    assert "Reference: <b>hf/sto-3g</b>" in text
 
 
 def test_report_numbers_come_from_the_dataset(scan):
@@ -68,7 +68,7 @@ def test_report_numbers_come_from_the_dataset(scan):
     for level in ("hf/sto-3g", "hf/def2-svp"):
         for v in ds["e_int"].sel(level=level).values:
             assert f"<td>{v:.3f}</td>" in text
-    rows = ik.comparison.ranking_table(ds, reference_level="hf/def2-svp")
+    rows = ik.comparison.ranking_table(ds, reference_level="hf/sto-3g")
     assert f"<td>{rows[0]['rmse_kcal_per_mol']:.3f}</td>" in text
 
 
@@ -76,15 +76,20 @@ def test_reference_choice():
     import xarray as xr
 
     def levels(*names):
-        return xr.Dataset(coords={"level": list(names)})
+        values = np.full((len(names), 2), -1.0)
+        return xr.Dataset({"e_int": (("level", "distance"), values, {"units": "kcal/mol"})},
+                          coords={"level": list(names), "distance": [3.0, 3.5]})
 
+    # the one rule of report, compare and widget (model.levels.default_reference): the most
+    # accurate wavefunction method (CCSD(T), then MP2, then SCS-MP2), its first level; else the first curve
     assert report.choose_reference(levels("hf/def2-svp", "mp2/aug-cc-pvdz", "b3lyp-d3bj/def2-tzvp")) \
         == "mp2/aug-cc-pvdz"
     assert report.choose_reference(levels("ccsd(t)/cc-pvdz", "mp2/aug-cc-pvtz")) == "ccsd(t)/cc-pvdz"
-    assert report.choose_reference(levels("mp2/cc-pvdz", "mp2/aug-cc-pvdz", "mp2/def2-svp")) == "mp2/aug-cc-pvdz"
+    assert report.choose_reference(levels("mp2/cc-pvdz", "mp2/aug-cc-pvdz", "mp2/def2-svp")) == "mp2/cc-pvdz"
+    assert report.choose_reference(levels("b3lyp/def2-svp", "hf/def2-svp")) == "b3lyp/def2-svp"
     assert report.choose_reference(levels("hf/sto-3g")) is None
     assert report.choose_reference(levels("hf/sto-3g", "hf/def2-svp"), "hf/sto-3g") == "hf/sto-3g"
-    with pytest.raises(ik.InputError, match="--reference: 'mp2/x' is not a level"):
+    with pytest.raises(ik.InputError, match="--reference: 'mp2/x' is not a curve"):
         report.choose_reference(levels("hf/sto-3g", "hf/def2-svp"), "mp2/x")
 
 

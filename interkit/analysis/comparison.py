@@ -7,217 +7,33 @@ signed error means the method binds more strongly than the reference there.
 from __future__ import annotations
 
 import math
-from dataclasses import asdict, dataclass
-from pathlib import Path
+from dataclasses import dataclass, field
 
 import numpy as np
 import xarray as xr
-from scipy.interpolate import CubicSpline
 
 from ..errors import InputError
 from ..model.levels import REFERENCE_PREFERENCE, default_reference  # noqa: F401  (part of this module's API)
-from .minima import find_minimum
-
-DISTANCE_COLUMN = "distance_angstrom"
-ENERGY_COLUMN = "e_int_kcal_per_mol"
-
-
-@dataclass(frozen=True)
-class CurveComparison:
-    """Statistics of one curve against a reference sampled at the same distances.
-
-    Attributes
-    ----------
-    n_compared : int
-        Points where both curves are finite.
-    n_skipped : int
-        Points skipped because either value is NaN.
-    mae_kcal_per_mol : float
-        Mean absolute error.
-    rmse_kcal_per_mol : float
-        Root-mean-square error.
-    max_abs_error_kcal_per_mol : float
-        Largest absolute error.
-    max_abs_error_at_angstrom : float
-        Distance of the largest absolute error.
-    mean_signed_error_kcal_per_mol : float
-        Mean of ``method - reference``.
-    reference_lowest_point_angstrom : float
-        Distance of the reference's lowest sampled (compared) point.
-    error_at_reference_lowest_point_kcal_per_mol : float
-        Error at that point.
-    reference_minimum_angstrom : float
-        Interpolated minimum of the reference (:func:`interkit.analysis.minima.find_minimum`).
-    error_at_reference_minimum_kcal_per_mol : float
-        Method (natural cubic spline through its compared points) minus reference at the
-        reference's interpolated minimum; NaN with fewer than 4 compared points.
-    minimum_shift_angstrom : float
-        Method minimum position minus reference minimum position (both interpolated).
-    well_depth_error_kcal_per_mol : float
-        Method well depth minus reference well depth (positive = deeper well).
-    """
-
-    n_compared: int
-    n_skipped: int
-    mae_kcal_per_mol: float
-    rmse_kcal_per_mol: float
-    max_abs_error_kcal_per_mol: float
-    max_abs_error_at_angstrom: float
-    mean_signed_error_kcal_per_mol: float
-    reference_lowest_point_angstrom: float
-    error_at_reference_lowest_point_kcal_per_mol: float
-    reference_minimum_angstrom: float
-    error_at_reference_minimum_kcal_per_mol: float
-    minimum_shift_angstrom: float
-    well_depth_error_kcal_per_mol: float
-
-    def to_dict(self) -> dict:
-        return asdict(self)
-
-
-def curve_errors(distance, energy, reference) -> CurveComparison:
-    """Compare a curve with a reference curve sampled at the same distances.
-
-    Parameters
-    ----------
-    distance : array-like
-        Distances in angstrom (positive; any order, no repeats).
-    energy : array-like
-        Method interaction energies in kcal/mol (NaN = missing).
-    reference : array-like
-        Reference interaction energies in kcal/mol at the same distances (NaN = missing).
-
-    Returns
-    -------
-    CurveComparison
-
-    Raises
-    ------
-    InputError
-        Mismatched lengths, non-positive or repeated distances, or no point where both
-        curves are finite.
-    """
-    r = np.asarray(distance, dtype=float)
-    e = np.asarray(energy, dtype=float)
-    ref = np.asarray(reference, dtype=float)
-    if r.ndim != 1:
-        raise InputError(f"distance: expected a 1-D array, got shape {r.shape}")
-    if e.shape != r.shape:
-        raise InputError(f"energy: length {e.size} does not match distance length {r.size}")
-    if ref.shape != r.shape:
-        raise InputError(f"reference: length {ref.size} does not match distance length {r.size}")
-    if not np.all(np.isfinite(r)):
-        raise InputError(f"distance: non-finite value {r[~np.isfinite(r)][0]!r}")
-    if np.any(r <= 0):
-        raise InputError(f"distance: value {r[r <= 0][0]!r} angstrom is not positive")
-    if len(np.unique(r)) != len(r):
-        raise InputError("distance: repeated values")
-    ok = np.isfinite(e) & np.isfinite(ref)
-    n = int(ok.sum())
-    if n == 0:
-        raise InputError("energy: no point where both energy and reference are finite")
-    order = np.argsort(r[ok])
-    r, e, ref = r[ok][order], e[ok][order], ref[ok][order]
-    err = e - ref
-    k_max = int(np.argmax(np.abs(err)))
-    k_ref = int(np.argmin(ref))
-    m_ref = find_minimum(r, ref)
-    m_met = find_minimum(r, e)
-    at_min = math.nan
-    if n >= 4 and np.isfinite(m_ref.r_min_angstrom):
-        spline = CubicSpline(r, e, bc_type="natural")
-        at_min = float(spline(m_ref.r_min_angstrom)) - m_ref.e_min_kcal_per_mol
-    return CurveComparison(
-        n_compared=n,
-        n_skipped=int(ok.size - n),
-        mae_kcal_per_mol=float(np.mean(np.abs(err))),
-        rmse_kcal_per_mol=float(np.sqrt(np.mean(err**2))),
-        max_abs_error_kcal_per_mol=float(abs(err[k_max])),
-        max_abs_error_at_angstrom=float(r[k_max]),
-        mean_signed_error_kcal_per_mol=float(np.mean(err)),
-        reference_lowest_point_angstrom=float(r[k_ref]),
-        error_at_reference_lowest_point_kcal_per_mol=float(err[k_ref]),
-        reference_minimum_angstrom=m_ref.r_min_angstrom,
-        error_at_reference_minimum_kcal_per_mol=at_min,
-        minimum_shift_angstrom=m_met.r_min_angstrom - m_ref.r_min_angstrom,
-        well_depth_error_kcal_per_mol=m_met.well_depth_kcal_per_mol - m_ref.well_depth_kcal_per_mol,
-    )
-
-
-@dataclass(frozen=True)
-class ReferenceCurve:
-    """An external reference curve.
-
-    Attributes
-    ----------
-    distance_angstrom : numpy.ndarray
-        Increasing distances of the finite reference points.
-    e_int_kcal_per_mol : numpy.ndarray
-        Reference interaction energies.
-    source : str
-        Where the curve was read from.
-    """
-
-    distance_angstrom: np.ndarray
-    e_int_kcal_per_mol: np.ndarray
-    source: str = ""
-
-    def on(self, distance) -> np.ndarray:
-        """Reference energies (kcal/mol) at ``distance`` (angstrom) by a natural cubic
-        spline; NaN outside the reference's distance range (never extrapolated)."""
-        x = np.asarray(distance, dtype=float)
-        out = np.full(x.shape, np.nan)
-        r, e = self.distance_angstrom, self.e_int_kcal_per_mol
-        inside = np.isfinite(x) & (x >= r[0]) & (x <= r[-1])
-        if inside.any():
-            out[inside] = CubicSpline(r, e, bc_type="natural")(x[inside])
-        return out
-
-
-def reference_from_csv(path, curve: str | None = None) -> ReferenceCurve:
-    """Read a reference curve from a CSV file.
-
-    The first non-blank line not starting with ``#`` is a header that follows the column
-    convention of :mod:`interkit.data.columns`: ``distance_angstrom`` and
-    ``e_int_kcal_per_mol`` (or ``e_int`` in another energy unit, e.g. ``e_int_kj_per_mol``;
-    other columns are ignored), or a tidy table (``variable``, ``value``, ``unit``). Every
-    CSV curve table interkit exports reads back this way. Rows whose energy is empty or
-    ``nan`` are dropped.
-
-    Parameters
-    ----------
-    path : str or pathlib.Path
-        CSV file.
-    curve : str, optional
-        With several curves in the table (columns ``curve`` or ``level`` [+
-        ``dispersion``]), the folded label of the one to read; by default the most
-        accurate wavefunction level (:func:`default_reference`).
-
-    Returns
-    -------
-    ReferenceCurve
-        Use :meth:`ReferenceCurve.on` to interpolate onto a scan's distances.
-
-    Raises
-    ------
-    InputError
-        Missing file or column, a row with a missing or non-numeric value, non-positive
-        or repeated distances, or fewer than 2 finite points.
-    """
-    from ..data.columns import read_curve_table
-
-    p = Path(path)
-    r, e, label = read_curve_table(p, curve)
-    ok = np.isfinite(e)
-    r, e = r[ok], e[ok]
-    if len(r) < 2:
-        raise InputError(f"{p.name}: column {ENERGY_COLUMN!r} has {len(r)} finite value(s); need at least 2")
-    order = np.argsort(r)
-    r, e = r[order], e[order]
-    if np.any(np.diff(r) == 0):
-        raise InputError(f"{p.name}: column {DISTANCE_COLUMN!r} repeats the value "
-                         f"{r[:-1][np.diff(r) == 0][0]!r}")
-    return ReferenceCurve(r, e, f"{p} [{label}]" if label else str(p))
+from .error_statistics import (  # noqa: F401  (part of this module's API)
+    DEFAULT_WINDOW_ANGSTROM,
+    NEAR_ZERO_KCAL_PER_MOL,
+    REGIONS,
+    CurveComparison,
+    check_region,
+    curve_errors,
+    curve_statistics,
+    region_mask,
+    statistics_columns,
+)
+from .reference_curves import (  # noqa: F401  (part of this module's API)
+    DISTANCE_COLUMN,
+    ENERGY_COLUMN,
+    ReferenceCurve,
+    curve_pairs,
+    reference_from_csv,
+    reference_from_file,
+    reference_from_scan,
+)
 
 
 def _energy_array(ds: xr.Dataset, variable: str) -> xr.DataArray:
@@ -282,7 +98,9 @@ def resolve_reference(ds: xr.Dataset, reference_level: str | None = None, refere
 
 
 def ranking_table(ds: xr.Dataset, reference_level: str | None = None, reference=None,
-                  variable: str = "e_int", reference_dispersion: str | None = None) -> list[dict]:
+                  variable: str = "e_int", reference_dispersion: str | None = None, region: str = "all",
+                  window_angstrom: float | None = None, relative: bool = False,
+                  near_zero_kcal_per_mol: float = NEAR_ZERO_KCAL_PER_MOL) -> list[dict]:
     """Rank the curves of a scan Dataset by RMSE against a reference.
 
     Parameters
@@ -302,14 +120,20 @@ def ranking_table(ds: xr.Dataset, reference_level: str | None = None, reference=
     reference_dispersion : str, optional
         With a ``dispersion`` dimension, the scheme of the reference level to use; by
         default ``"none"`` if it has finite values there, else the first scheme that does.
+    region, window_angstrom, relative, near_zero_kcal_per_mol :
+        The points and the kind of error of the statistics (see
+        :mod:`interkit.analysis.error_statistics`; default every point, kcal/mol).
 
     Returns
     -------
     list of dict
-        One row per curve, sorted by ``rmse_kcal_per_mol`` (curves with no comparable
-        point last): ``rank``, ``level`` [, ``dispersion``], ``status`` and the fields of
-        :class:`CurveComparison`.
+        One row per curve, sorted by its RMSE (``rmse_kcal_per_mol``, or ``rmse_percent``
+        with ``relative``; curves with no comparable point last): ``rank``, ``level``
+        [, ``dispersion``], ``status``, the whole-curve fields of :class:`CurveComparison`
+        and the statistics of :func:`curve_statistics` over the region (which replace
+        the whole-curve MAE, RMSE, largest and mean signed errors and ``n_compared``).
     """
+    check_region(region, window_angstrom)
     da = _energy_array(ds, variable)
     has_disp = "dispersion" in da.dims
     levels = [str(v) for v in ds["level"].values]
@@ -334,85 +158,114 @@ def ranking_table(ds: xr.Dataset, reference_level: str | None = None, reference=
                 if level == reference_level and (np.array_equal(values, ref, equal_nan=True)
                                                  or np.isnan(values).all()):
                     continue  # the reference itself, or a scheme it does not have
+            values = curve.transpose("distance").values
             try:
-                stats = curve_errors(distance, curve.transpose("distance").values, ref).to_dict()
+                stats = curve_errors(distance, values, ref).to_dict()
+                stats.update(curve_statistics(distance, values, ref, region, window_angstrom, relative,
+                                              near_zero_kcal_per_mol))
                 row["status"] = "ok"
             except InputError as exc:
-                nan_stats = {k: math.nan for k in CurveComparison.__dataclass_fields__}
-                nan_stats.update(n_compared=0, n_skipped=int(distance.size))
-                stats = nan_stats
+                stats = {k: math.nan for k in CurveComparison.__dataclass_fields__}
+                stats.update({k: math.nan for k, _, _ in statistics_columns(relative)})
+                stats.update(n_compared=0, n_skipped=int(distance.size))
                 row["status"] = str(exc)
             row.update(stats)
             rows.append(row)
-    rows.sort(key=lambda d: (not np.isfinite(d["rmse_kcal_per_mol"]), d["rmse_kcal_per_mol"]
-                             if np.isfinite(d["rmse_kcal_per_mol"]) else 0.0))
+    key = "rmse_percent" if relative else "rmse_kcal_per_mol"
+    rows.sort(key=lambda d: (not np.isfinite(d[key]), d[key] if np.isfinite(d[key]) else 0.0))
     return [{"rank": i + 1, **row} for i, row in enumerate(rows)]
 
 
+@dataclass(frozen=True)
+class ComparisonTable:
+    """The statistics table of a scan's curves against one reference curve.
+
+    Attributes
+    ----------
+    reference : str
+        Folded label of the reference curve, or ``"external curve (<source>)"``.
+    chosen_by : str
+        ``"given"`` or ``"default rule"`` (:func:`interkit.model.levels.default_reference`).
+    region : str
+        ``"all"``, ``"bound"`` or ``"window"``.
+    region_text : str
+        The region in words (with the window and the reference minimum).
+    relative : bool
+        Errors in per cent of ``|reference|`` instead of kcal/mol.
+    variable : str
+        The energy compared (``e_int``, or ``e_int_nocp`` for a scan without counterpoise).
+    columns : list of (str, str, str)
+        (column name, header, unit) of the statistics, in order.
+    rows : list of dict
+        :func:`ranking_table` rows with their folded label under ``"curve"``.
+    """
+
+    reference: str
+    chosen_by: str
+    region: str
+    region_text: str
+    relative: bool
+    variable: str
+    columns: list = field(default_factory=list)
+    rows: list = field(default_factory=list)
+
+    def csv_rows(self) -> list[list]:
+        """Comment line, header and rows of the CSV form (column convention of
+        :mod:`interkit.data.columns`)."""
+        keys = ["rank", "curve"] + [k for k, _, _ in self.columns] + ["n_compared", "status"]
+        head = [f"# reference: {self.reference} ({self.chosen_by}); region: {self.region_text}; "
+                f"errors: {'per cent of |reference|' if self.relative else 'kcal/mol'}, curve minus reference"]
+        return [head, keys] + [[row.get(k, "") for k in keys] for row in self.rows]
 
 
-def curve_pairs(ds: xr.Dataset, variable: str | None = None) -> dict[str, tuple[str, str | None]]:
-    """Folded label -> (level, scheme or None) of every curve with values of ``variable``
-    (default ``e_int``, or ``e_int_nocp`` for a scan run without counterpoise)."""
-    from ..data.dispersion import scheme_label
-    from ..model.levels import parse_level
-
-    if variable is None:
-        variable = "e_int_nocp" if ds.attrs.get("counterpoise", "") == "none" else "e_int"
-    out = {}
-    if "dispersion" in ds.dims:
-        from ..data.dispersion import available_pairs
-
-        for level, scheme in available_pairs(ds):
-            if np.isfinite(ds[variable].sel(level=level, dispersion=scheme).values).any():
-                out[scheme_label(parse_level(level), scheme)] = (level, scheme)
-    else:
-        for level in ds["level"].values:
-            if np.isfinite(ds[variable].sel(level=level).values).any():
-                out[str(level)] = (str(level), None)
-    return out
-
-
-def reference_from_scan(path, curve: str | None = None) -> ReferenceCurve:
-    """A reference curve taken from another saved scan (netCDF written by ``save_scan``).
+def comparison_table(ds: xr.Dataset, reference: str | None = None, external: ReferenceCurve | None = None,
+                     region: str = "all", window_angstrom: float | None = None, relative: bool = False,
+                     near_zero_kcal_per_mol: float = NEAR_ZERO_KCAL_PER_MOL) -> ComparisonTable:
+    """The one statistics table of the report, ``interkit compare`` and the comparison widget.
 
     Parameters
     ----------
-    path : str or pathlib.Path
-        The scan file, e.g. a CCSD(T) scan of the same dimer along the same coordinate.
-    curve : str, optional
-        Folded label of the curve (e.g. ``'ccsd(t)/aug-cc-pvtz'`` or
-        ``'b3lyp-d3bj/def2-tzvp'``); by default the most accurate wavefunction level.
+    ds : xarray.Dataset
+        A scan (``e_int`` compared, or ``e_int_nocp`` for a scan without counterpoise).
+    reference : str, optional
+        Folded label of the reference curve of ``ds`` (e.g. ``'mp2/def2-svp'`` or
+        ``'b3lyp-d3bj/def2-svp'``); by default the one rule
+        :func:`interkit.model.levels.default_reference` over the scan's curves.
+    external : ReferenceCurve, optional
+        An external reference curve instead (then ``reference`` must be None).
+    region, window_angstrom, relative, near_zero_kcal_per_mol :
+        See :mod:`interkit.analysis.error_statistics`.
 
     Returns
     -------
-    ReferenceCurve
-        Its finite points, interpolated onto another scan's distances by
-        :meth:`ReferenceCurve.on`.
+    ComparisonTable
     """
-    from ..data.schema import open_scan
+    variable = "e_int_nocp" if ds.attrs.get("counterpoise", "") == "none" else "e_int"
+    window = check_region(region, window_angstrom)
+    options = dict(variable=variable, region=region, window_angstrom=window, relative=relative,
+                   near_zero_kcal_per_mol=near_zero_kcal_per_mol)
+    pairs = curve_pairs(ds, variable)
+    if external is not None:
+        if reference is not None:
+            raise InputError("reference: give a curve of the scan or an external curve, not both")
+        ref, label = resolve_reference(ds, reference=external, variable=variable)
+        rows, chosen_by = ranking_table(ds, reference=external, **options), "given"
+    else:
+        if not pairs:
+            raise InputError("scan: no curve has a finite interaction energy to compare")
+        label = reference if reference is not None else default_reference(list(pairs))
+        chosen_by = "given" if reference is not None else "default rule"
+        if label not in pairs:
+            raise InputError(f"reference: {label!r} is not a curve of the scan ({', '.join(pairs)})")
+        level, scheme = pairs[label]
+        ref, _ = resolve_reference(ds, reference_level=level, reference_dispersion=scheme, variable=variable)
+        rows = ranking_table(ds, reference_level=level, reference_dispersion=scheme, **options)
+    from ..data.dispersion import scheme_label
+    from ..model.levels import parse_level
 
-    ds = open_scan(path)
-    pairs = curve_pairs(ds)
-    if not pairs:
-        raise InputError(f"reference scan {str(path)!r}: no curve has values")
-    label = curve if curve is not None else default_reference(list(pairs))
-    if label not in pairs:
-        raise InputError(f"reference curve: {label!r} is not a curve of {str(path)!r} ({', '.join(pairs)})")
-    level, scheme = pairs[label]
-    da = ds["e_int_nocp" if ds.attrs.get("counterpoise", "") == "none" else "e_int"].sel(level=level)
-    if scheme is not None:
-        da = da.sel(dispersion=scheme)
-    r, e = ds["distance"].values, da.transpose("distance").values
-    keep = np.isfinite(e)
-    if keep.sum() < 2:
-        raise InputError(f"reference curve {label!r} of {str(path)!r}: fewer than 2 finite points")
-    return ReferenceCurve(r[keep], e[keep], f"{Path(path).name} [{label}]")
-
-
-def reference_from_file(path, curve: str | None = None) -> ReferenceCurve:
-    """A reference curve from a CSV file (:func:`reference_from_csv`) or a saved scan
-    (``.nc``, :func:`reference_from_scan`); ``curve`` chooses the curve of either."""
-    if str(path).lower().endswith(".nc"):
-        return reference_from_scan(path, curve)
-    return reference_from_csv(path, curve)
+    for row in rows:
+        scheme = row.get("dispersion")
+        row["curve"] = scheme_label(parse_level(row["level"]), scheme) if scheme else row["level"]
+    _, region_text = region_mask(ds["distance"].values, ref, region, window)
+    return ComparisonTable(label, chosen_by, region, region_text, bool(relative), variable,
+                           statistics_columns(relative), rows)

@@ -1,28 +1,26 @@
 """``interkit compare``: rank the curves of a saved scan against a reference.
 
     interkit compare scan.nc [--reference LABEL | --reference-file FILE [--reference-curve LABEL]]
-                             [--table out.csv]
+                             [--region all|bound|window] [--window X] [--relative] [--table out.csv]
 
 The reference is a curve of the same scan, named by its folded label (e.g.
 ``mp2/def2-svp`` or ``b3lyp-d3bj/def2-svp``), or an external curve: a CSV file with
 columns ``distance_angstrom`` and ``e_int_kcal_per_mol``, or another saved scan (``.nc``;
 ``--reference-curve`` picks its curve); by default the most accurate wavefunction level
-of the scan.
+of the scan (:func:`interkit.model.levels.default_reference`, the rule of the report and
+the comparison widget too). The table is
+:func:`interkit.analysis.comparison.comparison_table`'s, the same as the report's.
 """
 
 from __future__ import annotations
 
 import csv
 
-#: columns of the printed and written ranking (row key, header)
-COLUMNS = (("rmse_kcal_per_mol", "RMSE"), ("mae_kcal_per_mol", "MAE"),
-           ("max_abs_error_kcal_per_mol", "max|err|"),
-           ("error_at_reference_minimum_kcal_per_mol", "err@min"),
-           ("minimum_shift_angstrom", "ΔR_min/Å"), ("well_depth_error_kcal_per_mol", "ΔDe"))
-
 
 def add_commands(sub) -> None:
     """Register ``compare`` on the ``interkit`` sub-command parser."""
+    from ..analysis.error_statistics import DEFAULT_WINDOW_ANGSTROM, REGIONS
+
     p = sub.add_parser("compare", help="rank the curves of a scan (functionals x dispersion schemes) "
                                        "against a reference curve")
     p.add_argument("scan", help="netCDF scan file")
@@ -35,51 +33,60 @@ def add_commands(sub) -> None:
     p.add_argument("--reference-curve", metavar="LABEL",
                    help="curve of the --reference-file scan or CSV table (default: its most accurate "
                         "wavefunction level)")
+    p.add_argument("--region", choices=REGIONS, default="all",
+                   help="points in the statistics: all, bound (reference E_int < 0) or window "
+                        "(within --window of the reference minimum) (default: all)")
+    p.add_argument("--window", metavar="ANGSTROM", type=float, default=None,
+                   help=f"half-width of --region window in angstrom (default {DEFAULT_WINDOW_ANGSTROM:g})")
+    p.add_argument("--relative", action="store_true",
+                   help="errors in per cent of |reference| (points with |reference| < 0.1 kcal/mol left out)")
     p.add_argument("--table", metavar="CSV", help="also write the ranking to this CSV file")
     p.set_defaults(handler=run_compare)
 
 
-def _ranking(ds, args) -> tuple[list[dict], str]:
-    from ..analysis.comparison import (
-        curve_pairs,
-        default_reference,
-        ranking_table,
-        reference_from_file,
-        resolve_reference,
-    )
+def _table(ds, args):
+    from ..analysis.comparison import comparison_table, reference_from_file
     from ..errors import InputError
 
     if args.reference_curve and not args.reference_file:
         raise InputError("--reference-curve: give --reference-file as well")
-    if args.reference_file:
-        curve = reference_from_file(args.reference_file, args.reference_curve)
-        _, label = resolve_reference(ds, reference=curve, variable=_variable(ds))
-        return ranking_table(ds, reference=curve, variable=_variable(ds)), label
-    pairs = curve_pairs(ds, _variable(ds))
-    if not pairs:
-        raise InputError(f"scan {args.scan!r}: no curve has a finite interaction energy to compare")
-    choice = args.reference or default_reference(list(pairs))
-    if choice not in pairs:
-        raise InputError(f"--reference: {choice!r} is not a curve of the scan ({', '.join(pairs)})")
-    level, scheme = pairs[choice]
-    return ranking_table(ds, reference_level=level, reference_dispersion=scheme, variable=_variable(ds)), choice
+    if args.window is not None and args.region != "window":
+        raise InputError(f"--window: {args.window:g} given, but --region is {args.region!r}, not 'window'")
+    external = reference_from_file(args.reference_file, args.reference_curve) if args.reference_file else None
+    try:
+        return comparison_table(ds, reference=args.reference, external=external, region=args.region,
+                                window_angstrom=args.window, relative=args.relative)
+    except InputError as exc:
+        text = str(exc)
+        for word, option in (("reference:", "--reference:"), ("window_angstrom:", "--window:"),
+                             ("region:", "--region:")):
+            if text.startswith(word):
+                text = option + text[len(word):]
+        raise InputError(text) from None
 
 
-def _variable(ds) -> str:
-    """``e_int``, or the uncorrected ``e_int_nocp`` of a scan run without counterpoise."""
-    return "e_int_nocp" if ds.attrs.get("counterpoise", "") == "none" else "e_int"
-
-
-def _label(row: dict) -> str:
-    from ..data.dispersion import scheme_label
-    from ..model.levels import parse_level
-
-    scheme = row.get("dispersion")
-    return scheme_label(parse_level(row["level"]), scheme) if scheme else row["level"]
+def format_table(table) -> list[str]:
+    """The printed lines of a :class:`~interkit.analysis.comparison.ComparisonTable`."""
+    unit = "per cent of |reference|" if table.relative else "kcal/mol"
+    lines = [f"reference: {table.reference} ({table.chosen_by}); errors in {unit} (curve minus reference); "
+             f"ΔR_min in Å",
+             f"region: {table.region_text}"]
+    if table.variable == "e_int_nocp":
+        lines.append("the scan ran without counterpoise correction: the uncorrected curves (e_int_nocp) are compared")
+    width = max([26] + [len(r["curve"]) + 2 for r in table.rows])
+    widths = [max(10, len(h) + 2) for _, h, _ in table.columns]
+    lines.append(f"{'rank':>4s}  {'curve':<{width}s}"
+                 + "".join(f"{h:>{w}s}" for (_, h, _), w in zip(table.columns, widths)) + f"{'points':>8s}")
+    for row in table.rows:
+        cells = "".join(f"{row[k]:>{w}.3f}" if row[k] == row[k] else f"{'–':>{w}s}"
+                        for (k, _, _), w in zip(table.columns, widths))
+        lines.append(f"{row['rank']:>4d}  {row['curve']:<{width}s}{cells}{row['n_compared']:>8d}"
+                     + ("" if row["status"] == "ok" else f"  ({row['status']})"))
+    return lines
 
 
 def run_compare(args) -> int:
-    """Print the ranking (kcal/mol, angstrom); optionally write it as CSV."""
+    """Print the ranking (kcal/mol or per cent, angstrom); optionally write it as CSV."""
     from ..data.schema import open_scan
 
     if args.table:
@@ -87,15 +94,8 @@ def run_compare(args) -> int:
 
         check_output(args.table, "--table", (".csv",), "CSV")
     ds = open_scan(args.scan)
-    rows, label = _ranking(ds, args)
-    width = max([26] + [len(_label(r)) + 2 for r in rows])
-    print(f"reference: {label}; errors in kcal/mol (curve minus reference)")
-    if _variable(ds) == "e_int_nocp":
-        print("the scan ran without counterpoise correction: the uncorrected curves (e_int_nocp) are compared")
-    print(f"{'rank':>4s}  {'curve':<{width}s}" + "".join(f"{h:>10s}" for _, h in COLUMNS))
-    for row in rows:
-        cells = "".join(f"{row[k]:>10.3f}" if row[k] == row[k] else f"{'–':>10s}" for k, _ in COLUMNS)
-        print(f"{row['rank']:>4d}  {_label(row):<{width}s}{cells}")
+    table = _table(ds, args)
+    print("\n".join(format_table(table)))
     if "dispersion_status" in ds.variables:
         for level in ds["level"].values:
             for scheme in ds["dispersion"].values:
@@ -104,12 +104,7 @@ def run_compare(args) -> int:
                     print(f"note: {level} with {scheme}: {status}")
     print("Note: " + ds.attrs.get("caution", ""))
     if args.table:
-        keys = ["rank", "curve"] + [k for k, _ in COLUMNS] + ["n_compared", "status"]
         with open(args.table, "w", newline="", encoding="utf-8") as fh:
-            out = csv.writer(fh)
-            out.writerow([f"# reference: {label}"])
-            out.writerow(keys)
-            for row in rows:
-                out.writerow([row["rank"], _label(row)] + [row.get(k, "") for k in keys[2:]])
+            csv.writer(fh).writerows(table.csv_rows())
         print(f"wrote {args.table}")
     return 0

@@ -4,6 +4,7 @@
     interkit inspect FILE.xyz [--charges QA QB] [--multiplicities MA MB] [--fragment-a I ...]
                               [--frame N] [--contacts N]
     interkit systems                                 # demo dimers with their suggested contact
+    interkit spec scan.nc [-o scan.toml]             # the spec of a saved scan as a TOML file
 
 Atom numbers are 0-based everywhere (as in the Python API and the spec files).
 """
@@ -39,6 +40,7 @@ def add_commands(sub) -> None:
     p.add_argument("--frame", type=int, default=0, help="frame of a multi-frame file (default: 0)")
     p.add_argument("--contacts", type=int, default=DEFAULT_CONTACTS,
                    help="number of closest A-B pairs to list (default: %(default)s)")
+    add_spec_command(sub)
 
 
 def _ranges(indices) -> str:
@@ -145,3 +147,32 @@ def cmd_systems(args) -> int:
 
 
 HANDLERS = {"methods": cmd_methods, "inspect": cmd_inspect, "systems": cmd_systems}
+
+
+def add_spec_command(sub) -> None:
+    """Register ``spec``: the spec of a saved scan as a TOML spec file."""
+    p = sub.add_parser("spec", help="write the spec of a saved scan as a TOML spec file "
+                                    "(runs again with interkit scan)")
+    p.add_argument("scan", help="netCDF scan file")
+    p.add_argument("-o", "--output", default=None, help="TOML file to write (default: print it)")
+
+
+def cmd_spec(args) -> int:
+    from ..share.spec_writer import spec_toml_of
+
+    if args.output is not None:
+        from .output import check_output
+
+        check_output(args.output, "--output", (".toml",), "TOML spec file")
+    text = spec_toml_of(args.scan)
+    if args.output is None:
+        print(text, end="")
+        return 0
+    from ..fileio import atomic_write_text
+
+    atomic_write_text(args.output, text)
+    print(f"wrote {args.output}")
+    return 0
+
+
+HANDLERS["spec"] = cmd_spec

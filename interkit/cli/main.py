@@ -92,7 +92,14 @@ def _build_parser() -> argparse.ArgumentParser:
     return parser
 
 
-def _add_run_options(p, default_cache: str | None = ".interkit-cache") -> None:
+_STORE_RULE = object()  # default of _add_run_options: the folder rule of run.store
+
+
+def _add_run_options(p, default_cache=_STORE_RULE) -> None:
+    if default_cache is _STORE_RULE:  # $INTERKIT_CACHE, else .interkit-cache (as run_scan)
+        from ..run.store import DEFAULT_STORE_FOLDER, STORE_ENV_VARIABLE
+
+        default_cache = os.environ.get(STORE_ENV_VARIABLE, "").strip() or DEFAULT_STORE_FOLDER
     p.add_argument("--workers", type=int, default=None, help="worker processes (default: all cores)")
     p.add_argument("--cache", default=default_cache,
                    help="result store folder (default: %(default)s); finished calculations are reused")

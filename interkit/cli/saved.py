@@ -40,14 +40,22 @@ def add_commands(sub, add_run_options) -> None:
     p.add_argument("scan", help="netCDF scan file")
     p.add_argument("-o", "--output", required=True, help="HTML file to write")
     p.add_argument("--reference", default=None,
-                   help="level used as reference in the comparison (default: the highest level of the scan)")
+                   help="curve used as reference in the comparison (default: as interkit compare, the most "
+                        "accurate wavefunction level of the scan, else its first curve)")
+    from ..analysis.error_statistics import REGIONS
+
+    p.add_argument("--region", choices=REGIONS, default="all",
+                   help="points in the statistics, as interkit compare --region (default: all)")
+    p.add_argument("--window", metavar="ANGSTROM", type=float, default=None,
+                   help="half-width of --region window in angstrom (default 0.5)")
+    p.add_argument("--relative", action="store_true", help="errors in per cent of |reference|")
 
     from ..share.export import FORMATS
 
     p = sub.add_parser("export", help="write the scan as a tidy CSV table, JSON with QCSchema molecules, or XYZ geometries (.xyz; .extxyz with energies and forces)")
     p.add_argument("scan", help="netCDF scan file")
     p.add_argument("-o", "--output", required=True, help="file to write (.csv, .json, .xyz or .extxyz)")
-    p.add_argument("--format", choices=FORMATS, default=None, help="csv or json (default: from the suffix)")
+    p.add_argument("--format", choices=FORMATS, default=None, help="csv, json, xyz or extxyz (default: from the suffix)")
     p.add_argument("--unit", default="kcal/mol", help="energy unit of the CSV (default: %(default)s)")
     p.add_argument("--level", default=None, help="extxyz: curve whose energy and forces are written")
 
@@ -109,18 +117,19 @@ def cmd_report(args) -> int:
 
     check_output(args.output, "--output", (".html", ".htm"), "HTML")
     ds = open_scan(args.scan)
-    write_report(ds, args.output, reference=args.reference)
+    write_report(ds, args.output, reference=args.reference, region=args.region, window_angstrom=args.window,
+                 relative=args.relative)
     print(f"wrote {args.output}")
     return 0
 
 
 def cmd_export(args) -> int:
     from ..data.schema import open_scan
-    from ..share.export import export_format, export_scan
+    from ..share.export import FORMATS, export_format, export_scan
     from .output import check_output
 
     export_format(args.output, args.format, ("--output", "--format"))   # check before reading the scan
-    check_output(args.output, "--output", (".csv", ".json", ".xyz", ".extxyz") if args.format is None else ("",), "export")
+    check_output(args.output, "--output", tuple(f".{f}" for f in FORMATS) if args.format is None else ("",), "export")
     ds = open_scan(args.scan)
     export_scan(ds, args.output, args.format, args.unit, level=args.level)
     print(f"wrote {args.output}")

@@ -272,6 +272,7 @@ def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: s
             "title": f"interaction-energy scan: {spec.name}",
             "schema": SCHEMA_VERSION,
             "spec_json": spec.to_json(),
+            **_spec_toml_attr(spec),
             "counterpoise": "Boys-Bernardi" if spec.counterpoise else "none",
             "scan_coordinate": spec.coordinate.describe(),
             "charges": json.dumps(list(d0.charges)),
@@ -410,6 +411,16 @@ def open_scan(path: str | os.PathLike) -> xr.Dataset:
         warnings.warn(f"scan file {path!r}: {note}", InterkitWarning, stacklevel=2)
     validate(ds)
     return ds
+
+
+def _spec_toml_attr(spec) -> dict:
+    """``{"spec_toml": <the spec as a TOML file>}`` (the layout of ``interkit scan``'s spec
+    files; ``interkit spec`` extracts it), or nothing for a spec TOML cannot hold (e.g.
+    frames measured along a vector): ``spec_json`` has the spec all the same."""
+    try:
+        return {"spec_toml": spec.to_toml()}
+    except InputError:
+        return {}
 
 
 def spec_of(ds: xr.Dataset):

@@ -342,6 +342,14 @@ class ScanSpec:
             memory_limit_mb=data.get("memory_limit_mb", DEFAULT_MEMORY_LIMIT_MB),
         )
 
+    def to_toml(self) -> str:
+        """The spec as TOML text that :func:`interkit.load_spec_toml` reads back to the same
+        calculations (geometry and frames written into the text; see
+        :mod:`interkit.model.spec_toml_writer`)."""
+        from .spec_toml_writer import spec_to_toml
+
+        return spec_to_toml(self)
+
     @classmethod
     def from_json(cls, text: str) -> ScanSpec:
         """Inverse of :meth:`to_json`."""
@@ -351,8 +359,8 @@ class ScanSpec:
 # ---------------------------------------------------------------------- TOML files
 _TOML_KEYS = {
     "": {"name", "system", "scan", "calculation"},
-    "system": {"geometry", "demo", "fragment_a", "charges", "multiplicities", "dimer_multiplicity"},
-    "scan": {"coordinate", "atoms", "vector", "distances", "factors", "frames", "values"},
+    "system": {"geometry", "demo", "xyz", "name", "fragment_a", "charges", "multiplicities", "dimer_multiplicity"},
+    "scan": {"coordinate", "atoms", "vector", "distances", "factors", "frames", "frames_xyz", "values"},
     "calculation": {"levels", "counterpoise", "forces", "decomposition", "decomposition_basis",
                     "sapt_memory_limit_mb", "dispersion", "scf_threshold_hartree", "memory_limit_mb", "settings"},
     "calculation.settings": set(LEVEL_SETTINGS),

@@ -39,19 +39,29 @@ def spec_from_mapping(data: dict, base_dir: str | os.PathLike = ".") -> ScanSpec
     system, scan, calc = data["system"], data["scan"], data["calculation"]
     kwargs = {k: system[k] for k in ("fragment_a", "charges", "multiplicities", "dimer_multiplicity")
               if k in system}
-    if ("geometry" in system) == ("demo" in system):
-        raise InputError("system: give exactly one of system.geometry (an XYZ file) or system.demo")
-    for key in ("geometry", "demo"):
-        if key in system and not isinstance(system[key], str):
-            raise InputError(f"system.{key}: {system[key]!r} is not a "
-                             f"{'file name' if key == 'geometry' else 'demo system name'}")
+    given = [key for key in ("geometry", "demo", "xyz") if key in system]
+    if len(given) != 1:
+        raise InputError("system: give exactly one of system.geometry (an XYZ file), system.xyz "
+                         f"(XYZ text) or system.demo (given: {', '.join(given) or 'none'})")
+    what = {"geometry": "file name", "demo": "demo system name", "xyz": "block of XYZ text"}
+    for key in given:
+        if not isinstance(system[key], str):
+            raise InputError(f"system.{key}: {repr(system[key])[:60]} is not a {what[key]}")
     if "geometry" in system:
         path = os.path.join(os.fspath(base_dir), str(system["geometry"]))
         dimer = Dimer.from_xyz(path, **kwargs)
+    elif "xyz" in system:
+        dimer = _dimer_from_text(system["xyz"], str(data.get("name") or "dimer"), kwargs)
     else:
         from .demo import load_demo
 
         dimer = load_demo(str(system["demo"]), **kwargs)
+    if "name" in system:  # the dimer's own label (default: file name, demo name or the scan's name)
+        if not isinstance(system["name"], str):
+            raise InputError(f"system.name: {system['name']!r} is not a string")
+        import dataclasses
+
+        dimer = dataclasses.replace(dimer, name=system["name"])
     kind = scan.get("coordinate", "centre-of-mass")
     if kind == "centre-of-mass":
         coordinate: ScanCoordinate = CentreOfMass()
@@ -66,15 +76,7 @@ def spec_from_mapping(data: dict, base_dir: str | os.PathLike = ".") -> ScanSpec
             raise InputError(f"scan.vector: {vector!r} is not a list of three numbers")
         coordinate = Vector(tuple(vector))
     elif kind == "frames":
-        if "frames" not in scan:
-            raise InputError("scan.frames: a frames scan needs a multi-frame XYZ file")
-        if not isinstance(scan["frames"], str):
-            raise InputError(f"scan.frames: {scan['frames']!r} is not the name of an XYZ file")
-        if "atoms" in scan and (not isinstance(scan["atoms"], list) or len(scan["atoms"]) != 2):
-            raise InputError(f"scan.atoms: {scan['atoms']!r} is not a pair of atom indices")
-        measure = AtomPair(*scan["atoms"]) if "atoms" in scan else CentreOfMass()
-        coordinate = Frames(os.path.join(os.fspath(base_dir), str(scan["frames"])), measure,
-                            scan.get("values"))
+        coordinate = _frames(scan, base_dir)
     else:
         raise InputError(
             f"scan.coordinate: {kind!r} is not one of centre-of-mass, atom-pair, vector, frames"
@@ -101,6 +103,40 @@ def spec_from_mapping(data: dict, base_dir: str | os.PathLike = ".") -> ScanSpec
         name=data.get("name", ""),
         memory_limit_mb=calc.get("memory_limit_mb", DEFAULT_MEMORY_LIMIT_MB),
     )
+
+
+def _dimer_from_text(text: str, name: str, kwargs: dict) -> Dimer:
+    from .geometry import parse_xyz
+
+    frames = parse_xyz(text, "system.xyz")
+    if len(frames) != 1:
+        raise InputError(f"system.xyz: {len(frames)} frames; give one geometry (frames go in scan.frames_xyz)")
+    f = frames[0]
+    return Dimer.from_atoms(f.symbols, f.coordinates, kwargs.get("fragment_a"), kwargs.get("charges", (0, 0)),
+                            kwargs.get("multiplicities", (1, 1)), name, kwargs.get("dimer_multiplicity"))
+
+
+def _frames(scan: dict, base_dir) -> Frames:
+    """The Frames coordinate of a ``[scan]`` table: ``frames`` (a multi-frame XYZ file) or
+    ``frames_xyz`` (the frames as XYZ text), measured by ``atoms`` or the centres of mass."""
+    given = [key for key in ("frames", "frames_xyz") if key in scan]
+    if len(given) != 1:
+        raise InputError("scan.frames: a frames scan needs exactly one of scan.frames (a multi-frame XYZ "
+                         f"file) or scan.frames_xyz (XYZ text) (given: {', '.join(given) or 'none'})")
+    key = given[0]
+    if not isinstance(scan[key], str):
+        raise InputError(f"scan.{key}: {repr(scan[key])[:60]} is not "
+                         f"{'the name of an XYZ file' if key == 'frames' else 'a block of XYZ text'}")
+    if "atoms" in scan and (not isinstance(scan["atoms"], list) or len(scan["atoms"]) != 2):
+        raise InputError(f"scan.atoms: {scan['atoms']!r} is not a pair of atom indices")
+    measure = AtomPair(*scan["atoms"]) if "atoms" in scan else CentreOfMass()
+    if key == "frames":
+        return Frames(os.path.join(os.fspath(base_dir), str(scan["frames"])), measure, scan.get("values"))
+    from .geometry import parse_xyz
+
+    frames = parse_xyz(scan["frames_xyz"], "scan.frames_xyz")
+    return Frames([f.coordinates for f in frames], measure, scan.get("values"),
+                  symbols=[f.symbols for f in frames])
 
 
 def _levels_with_settings(items: list, common) -> list[LevelOfTheory]:
@@ -138,7 +174,10 @@ def load_spec_toml(path: str | os.PathLike) -> ScanSpec:
 
         name = "water-methanol"
         [system]
-        geometry = "water_methanol.xyz"     # or: demo = "water_methanol"
+        geometry = "water_methanol.xyz"     # or: demo = "water_methanol", or the geometry
+                                            # itself: xyz = '''<XYZ text>''' (as written by
+                                            # ScanSpec.to_toml / interkit spec)
+        name = "water-methanol"             # optional label of the dimer
         charges = [0, 0]
         multiplicities = [1, 1]             # 2S+1 of fragments A and B
         dimer_multiplicity = 1              # optional; default high spin, S = S_A + S_B;
@@ -148,6 +187,9 @@ def load_spec_toml(path: str | os.PathLike) -> ScanSpec:
         coordinate = "atom-pair"            # centre-of-mass | atom-pair | vector | frames
         atoms = [1, 5]
         factors = [0.9, 1.0, 1.2, 1.5, 2.0] # or distances = [...] in angstrom
+                                            # frames: frames = "path.xyz" (multi-frame file)
+                                            # or frames_xyz = '''<XYZ frames>''', with
+                                            # optional atoms = [i, j] and values = [...]
         [calculation]
         levels = ["hf/def2-svp", { level = "mp2/cc-pvdz", frozen_core = false }]
         counterpoise = true

@@ -17,7 +17,7 @@ from ..model.job import ScanPlan
 from ..model.spec import ScanSpec
 from .executors import NOT_STORED_FIELD, run_processes, run_serial
 from .plan import plan_scan
-from .store import ResultStore
+from .store import DEFAULT_STORE, ResultStore, resolve_cache
 
 ProgressCallback = Callable[[int, int, str, dict], None]
 
@@ -86,7 +86,7 @@ def _make_progress_unguarded(progress, total: int):
 def run_scan(
     spec: ScanSpec,
     executor: str = "processes",
-    cache: str | os.PathLike | None = None,
+    cache: str | os.PathLike | None = DEFAULT_STORE,
     progress: bool | ProgressCallback = True,
     workers: int | None = None,
     cancel: threading.Event | None = None,
@@ -102,10 +102,13 @@ def run_scan(
         one BLAS/OpenMP thread each; ``'serial'`` runs in this process; a Dask client
         (or :class:`~interkit.run.dask.DaskExecutor`) runs one calculation per
         task on its cluster (see :mod:`interkit.run.dask`).
-    cache : path-like, optional
+    cache : path-like, None or DEFAULT_STORE
         Directory of a :class:`~interkit.run.store.ResultStore`. Finished calculations are
         written there at once; a rerun (or a resumed, killed run) computes only what
-        is missing.
+        is missing. The default, :data:`interkit.DEFAULT_STORE`, is the folder of
+        :func:`~interkit.run.store.default_store_folder`: ``$INTERKIT_CACHE`` if set, else
+        ``.interkit-cache`` in the current folder (as on the command line). ``None``
+        keeps no store (every calculation runs, nothing is written).
     progress : bool or callable
         True shows a tqdm bar; a callable receives ``(done, total, key, record)``.
     workers : int, optional
@@ -146,6 +149,7 @@ def run_scan(
         raise InputError(f"workers: {workers!r} is not a positive integer")
     if dask_executor is not None:  # the cluster decides; chunks follow its threads
         n_workers = max(1, sum(dask_executor.worker_threads().values()))
+    cache = resolve_cache(cache)
     plan = plan_scan(spec)  # with the feasibility checks: refuses before any calculation
     store = ResultStore(cache) if cache is not None else None
     records: dict[str, dict] = {}

@@ -397,3 +397,57 @@ def format_size(n: int) -> str:
         if n >= factor:
             return f"{n / factor:.1f} {unit}"
     return f"{n} B"
+
+
+# ---------------------------------------------------------------------- the default store
+#: environment variable naming the default store folder (see :func:`default_store_folder`)
+STORE_ENV_VARIABLE = "INTERKIT_CACHE"
+#: the default store folder, relative to the current folder (the CLI's ``--cache`` default)
+DEFAULT_STORE_FOLDER = ".interkit-cache"
+
+
+class _DefaultStore:
+    """The type of :data:`DEFAULT_STORE` (one instance)."""
+
+    _instance = None
+
+    def __new__(cls):
+        if cls._instance is None:
+            cls._instance = super().__new__(cls)
+        return cls._instance
+
+    def __repr__(self) -> str:
+        return "DEFAULT_STORE"
+
+    def __reduce__(self):  # pickles (worker processes) to the same instance
+        return (_DefaultStore, ())
+
+
+#: ``cache=DEFAULT_STORE`` (the default of :func:`interkit.run_scan` and the launcher) means
+#: the folder of :func:`default_store_folder`; ``cache=None`` keeps no store
+DEFAULT_STORE = _DefaultStore()
+
+
+def default_store_folder() -> str:
+    """The default result store folder: ``$INTERKIT_CACHE`` when that environment variable
+    is set and not empty, else ``.interkit-cache`` in the current folder (the same folder
+    as the command line's ``--cache`` default), as an absolute path.
+
+    The store sits beside the work, not in a per-user folder, so a project's results
+    travel with it, a shared project folder shares them, and ``interkit store info
+    .interkit-cache`` finds them where the command line puts them too.
+    """
+    folder = os.environ.get(STORE_ENV_VARIABLE, "").strip() or DEFAULT_STORE_FOLDER
+    return os.path.abspath(os.path.expanduser(folder))
+
+
+def resolve_cache(cache) -> str | os.PathLike | None:
+    """The store folder ``cache`` stands for: :data:`DEFAULT_STORE` ->
+    :func:`default_store_folder`; None -> None (no store); a path -> the path. (A sentinel
+    object, not a string such as ``"default"``, marks the default, so that every string
+    stays a folder name.)"""
+    if cache is DEFAULT_STORE:
+        return default_store_folder()
+    if cache is not None and not isinstance(cache, (str, os.PathLike)):
+        raise InputError(f"cache: {cache!r} is not a folder, None (no store) or interkit.DEFAULT_STORE")
+    return cache

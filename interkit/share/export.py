@@ -282,7 +282,8 @@ def scan_document(ds: xr.Dataset) -> dict:
         }
     dims = {str(d): _json_value(np.asarray(ds[d].values)) for d in ds.dims if d in ds.coords}
     prov = provenance_summary(ds)
-    prov["attrs"] = {k: _json_attr(v) for k, v in sorted(ds.attrs.items()) if k != "spec_json"}
+    prov["attrs"] = {k: _json_attr(v) for k, v in sorted(ds.attrs.items())
+                     if k not in ("spec_json", "spec_toml")}   # the spec is in prov["spec"]
     return {
         "schema_name": EXPORT_SCHEMA_NAME,
         "schema_version": EXPORT_SCHEMA_VERSION,

@@ -19,16 +19,12 @@ import html
 import io
 import json
 import os
-import re
 from datetime import datetime, timezone
 
 import numpy as np
 import xarray as xr
 
 from ..errors import InputError
-
-#: heuristic ranks of methods when choosing a reference level (higher = more trusted)
-METHOD_RANK = {"ccsd(t)": 4.0, "scs-mp2": 3.0, "mp2": 3.0, "dft": 2.0, "hf": 1.0}
 
 STYLE = """
 body { font-family: system-ui, -apple-system, "Segoe UI", sans-serif; color: #1e2328;
@@ -73,48 +69,23 @@ def levels_view(ds: xr.Dataset) -> xr.Dataset:
     return flatten_dispersion(ds)
 
 
-def _basis_rank(basis: str) -> float:
-    """Rough size rank of a basis set name (zeta level, plus 0.5 for diffuse functions)."""
-    b = basis.lower()
-    rank = 0.0
-    m = re.search(r"cc-p(?:w?c)?v(\d|[dtq])z", b)
-    if m:
-        zeta = m.group(1)
-        rank = float({"d": 2, "t": 3, "q": 4}.get(zeta, zeta))
-        rank += 0.5 if b.startswith(("aug-", "jun-", "jul-", "may-", "apr-", "d-aug-")) else 0.0
-    elif b.startswith("def2-"):
-        rank = {"sv(p)": 1.5, "svp": 2, "svpd": 2.5, "tzvp": 3, "tzvpp": 3.2, "tzvpd": 3.5, "tzvppd": 3.6,
-                "qzvp": 4, "qzvpp": 4.2, "qzvpd": 4.5, "qzvppd": 4.6}.get(b[5:], 1.0)
-    elif b.startswith("sto-"):
-        rank = 1.0
-    elif b.startswith("6-311"):
-        rank = 3.0 + 0.5 * ("+" in b)
-    elif b.startswith(("6-31", "3-21")):
-        rank = 2.0 + 0.5 * ("+" in b)
-    return float(rank)
-
-
-def level_rank(label: str) -> tuple[float, float]:
-    """Heuristic trust of a level label: (method rank, basis rank); higher is better."""
-    head, _, tail = str(label).partition("/")
-    head = head.strip().lower()
-    basis = re.split(r"[\s+]", tail.strip(), maxsplit=1)[0] if tail else ""
-    method = head if head in METHOD_RANK else "dft"
-    return METHOD_RANK[method], _basis_rank(basis)
-
-
 def choose_reference(ds: xr.Dataset, reference: str | None = None) -> str | None:
-    """The reference level of the comparison: ``reference`` if given (checked), else the
-    highest level by :func:`level_rank` (the later level on a tie); None with one level."""
-    levels = [str(x) for x in ds["level"].values]
+    """The reference curve of the comparison: ``reference`` if given (checked), else the one
+    rule of the report, ``interkit compare`` and the comparison widget,
+    :func:`interkit.model.levels.default_reference` (the most accurate wavefunction level,
+    else the first curve); None with fewer than two curves. ``ds`` may have a
+    ``dispersion`` dimension: curves are named by their folded labels."""
+    from ..analysis.comparison import curve_pairs
+    from ..model.levels import default_reference
+
+    labels = list(curve_pairs(ds))
     if reference is not None:
-        if reference not in levels:
-            raise InputError(f"--reference: {reference!r} is not a level of the scan ({', '.join(levels)})")
+        if reference not in labels:
+            raise InputError(f"--reference: {reference!r} is not a curve of the scan ({', '.join(labels)})")
         return reference
-    if len(levels) < 2:
+    if len(labels) < 2:
         return None
-    ranked = sorted(enumerate(levels), key=lambda kv: (level_rank(kv[1]), kv[0]))
-    return ranked[-1][1]
+    return default_reference(labels)
 
 
 # ---------------------------------------------------------------------- pieces
@@ -256,27 +227,26 @@ def _decomposition_section(ds: xr.Dataset, level: str | None) -> str:
             + _table(header, rows, text=()))
 
 
-def _comparison_section(ds: xr.Dataset, reference: str | None, explicit: bool) -> str:
+def _comparison_section(ds: xr.Dataset, reference: str | None, explicit: bool, options: dict) -> str:
+    """The statistics table of :func:`interkit.analysis.comparison.comparison_table` (the
+    one ``interkit compare`` prints) for the original ``ds`` (not the flattened view)."""
     if reference is None:
         return ""
-    from ..analysis.comparison import ranking_table
+    from ..analysis.comparison import comparison_table
 
-    variable = "e_int" if ds.attrs.get("counterpoise", "") != "none" else "e_int_nocp"
-    rows = []
-    for row in ranking_table(ds, reference_level=reference, variable=variable):
-        rows.append([row["rank"], row["level"], _num(row["rmse_kcal_per_mol"]), _num(row["mae_kcal_per_mol"]),
-                     _num(row["max_abs_error_kcal_per_mol"]), _num(row["mean_signed_error_kcal_per_mol"]),
-                     _num(row["well_depth_error_kcal_per_mol"]), _num(row["minimum_shift_angstrom"]),
-                     row["n_compared"], "" if row["status"] == "ok" else row["status"]])
+    table = comparison_table(ds, reference=reference, **options)
+    rows = [[row["rank"], row["curve"], *(_num(row[k]) for k, _, _ in table.columns), row["n_compared"],
+             "" if row["status"] == "ok" else row["status"]] for row in table.rows]
     how = "chosen with --reference" if explicit else (
-        "chosen as the highest level in this scan by a rough rule (method, then basis-set size); "
+        "chosen by the default rule: the most accurate wavefunction level in the scan, else its first curve; "
         "pass another with --reference")
+    unit = "per cent of |reference|" if table.relative else "kcal/mol"
+    header = ["rank", "curve"] + [f"{h} / {u}" for _, h, u in table.columns] + ["points", "note"]
     return ("<h2>Levels against a reference</h2>"
-            f'<p class="note">Reference: <b>{_e(reference)}</b> ({_e(how)}). Errors are method minus '
-            "reference at common points, kcal/mol; a positive well-depth error means a deeper well. "
-            "The reference is itself a model result.</p>"
-            + _table(["rank", "level", "RMSE", "MAE", "max |error|", "mean signed", "well-depth error",
-                      "minimum shift / Å", "points", "note"], rows, text=(1, 9)))
+            f'<p class="note">Reference: <b>{_e(table.reference)}</b> '
+            f"({_e(how)}). Region: {_e(table.region_text)}. Errors are curve minus reference, {_e(unit)}; "
+            "a positive well-depth error ΔDe means a deeper well. The reference is itself a model result.</p>"
+            + _table(header, rows, text=(1, len(header) - 1)).replace("<table", '<table class="statistics"', 1))
 
 
 def _status_section(ds: xr.Dataset) -> str:
@@ -324,7 +294,8 @@ def _provenance_section(ds: xr.Dataset) -> str:
 
 
 # ---------------------------------------------------------------------- the document
-def render_report(ds: xr.Dataset, reference: str | None = None) -> str:
+def render_report(ds: xr.Dataset, reference: str | None = None, region: str = "all",
+                  window_angstrom: float | None = None, relative: bool = False) -> str:
     """The HTML text of the report of a scan Dataset.
 
     Parameters
@@ -332,8 +303,11 @@ def render_report(ds: xr.Dataset, reference: str | None = None) -> str:
     ds : xarray.Dataset
         A scan Dataset (e.g. from :func:`interkit.open_scan`).
     reference : str, optional
-        Level used as reference in the comparison; default: the highest level by
-        :func:`level_rank` when there are several.
+        Curve used as reference in the comparison (folded label); default: the one rule
+        :func:`interkit.model.levels.default_reference`, when there are several curves.
+    region, window_angstrom, relative :
+        Points and kind of error of the statistics table (see
+        :mod:`interkit.analysis.error_statistics`); as ``interkit compare``.
 
     Returns
     -------
@@ -345,7 +319,8 @@ def render_report(ds: xr.Dataset, reference: str | None = None) -> str:
 
     validate(ds)
     view = levels_view(ds)
-    ref = choose_reference(view, reference)
+    ref = choose_reference(ds, reference)
+    options = {"region": region, "window_angstrom": window_angstrom, "relative": relative}
     try:
         name = json.loads(ds.attrs["spec_json"]).get("name", "")
     except (KeyError, ValueError):
@@ -364,7 +339,7 @@ def render_report(ds: xr.Dataset, reference: str | None = None) -> str:
         _minimum_section(view),
         _force_section(view, ref),
         _decomposition_section(view, ref or (levels[0] if levels else None)),
-        _comparison_section(view, ref, explicit=reference is not None),
+        _comparison_section(ds, ref, reference is not None, options),
         _status_section(view),
         _provenance_section(ds),
     ]
@@ -378,7 +353,8 @@ def render_report(ds: xr.Dataset, reference: str | None = None) -> str:
             "no number in it was recomputed.</footer></body></html>\n")
 
 
-def write_report(ds, path: str | os.PathLike, reference: str | None = None) -> str:
+def write_report(ds, path: str | os.PathLike, reference: str | None = None, region: str = "all",
+                 window_angstrom: float | None = None, relative: bool = False) -> str:
     """Write the HTML report of a scan (see :func:`render_report`) to one file.
 
     The file is self-contained: figures are inline PNG images, the style sheet is
@@ -393,8 +369,10 @@ def write_report(ds, path: str | os.PathLike, reference: str | None = None) -> s
         HTML file to write (atomically: a temporary file in the same folder, then a
         rename); its folder must exist.
     reference : str, optional
-        Level used as reference in the comparison of levels (default: the highest
-        level of the scan by :func:`level_rank`).
+        Curve used as reference in the comparison (default: the one rule
+        :func:`interkit.model.levels.default_reference`).
+    region, window_angstrom, relative :
+        As in :func:`render_report`.
 
     Returns
     -------
@@ -409,7 +387,7 @@ def write_report(ds, path: str | os.PathLike, reference: str | None = None) -> s
         from .provenance import load_saved
 
         ds = load_saved(ds)[0]
-    text = render_report(ds, reference)
+    text = render_report(ds, reference, region, window_angstrom, relative)
     from ..fileio import atomic_write_text
 
     return atomic_write_text(path, text)

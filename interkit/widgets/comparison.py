@@ -2,12 +2,15 @@
 
 Pick the reference (a curve of the same scan, e.g. MP2 or CCSD(T), or an external curve
 from CSV), choose the curves to show, and read the overlay, the error curves and the
-ranking by RMSE; the ranking table can be written to CSV.
+ranking by RMSE; the ranking table can be written to CSV. The table, its default
+reference and its region and relative-error choices are those of the report and
+``interkit compare`` (:func:`interkit.analysis.comparison.comparison_table`).
 """
 
 from __future__ import annotations
 
 import csv
+import dataclasses
 import html
 import io
 import os
@@ -19,29 +22,24 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 from ..analysis.comparison import (
+    ComparisonTable,
     ReferenceCurve,
+    comparison_table,
     curve_pairs,
     default_reference,
-    ranking_table,
     reference_from_file,
 )
-from ..data.dispersion import flatten_dispersion, scheme_label
+from ..analysis.error_statistics import DEFAULT_WINDOW_ANGSTROM, REGIONS, statistics_columns
+from ..data.dispersion import flatten_dispersion
 from ..data.schema import open_scan, validate
 from ..errors import InputError, InterkitError
-from ..model.levels import parse_level
 from ..plot.comparison import compared_curves, plot_comparison
 from ..units import convert_energy
 from .style import DISPLAY_UNITS, error_html, note_html
 
-#: ranking columns: (row key, header, is an energy)
-TABLE_COLUMNS = (
-    ("rmse_kcal_per_mol", "RMSE", True),
-    ("mae_kcal_per_mol", "MAE", True),
-    ("max_abs_error_kcal_per_mol", "max |error|", True),
-    ("error_at_reference_minimum_kcal_per_mol", "error at ref. minimum", True),
-    ("minimum_shift_angstrom", "minimum shift / Å", False),
-    ("well_depth_error_kcal_per_mol", "well-depth error", True),
-)
+#: ranking columns of kcal/mol errors: (row key, header, is an energy); the same as the
+#: report's and ``interkit compare``'s (:func:`~interkit.analysis.error_statistics.statistics_columns`)
+TABLE_COLUMNS = tuple((key, header, unit == "kcal/mol") for key, header, unit in statistics_columns(False))
 EXTERNAL_PREFIX = "external: "
 
 
@@ -90,6 +88,14 @@ class CorrectionComparison(widgets.VBox):
         self.reference_select.add_class("interkit-reference")
         self.curve_select = widgets.SelectMultiple(options=labels, value=tuple(labels), rows=min(8, len(labels)),
                                                    description="curves", layout=widgets.Layout(width="360px"))
+        self.region_select = widgets.Dropdown(options=list(REGIONS), value="all", description="region",
+                                              tooltip="all points, bound region (reference E_int < 0), or a "
+                                                      "window around the reference minimum",
+                                              layout=widgets.Layout(width="200px"))
+        self.window = widgets.BoundedFloatText(value=DEFAULT_WINDOW_ANGSTROM, min=0.01, max=100.0, step=0.1,
+                                               description="± Å", layout=widgets.Layout(width="150px"))
+        self.relative = widgets.Checkbox(value=False, description="relative errors (% of |reference|)")
+        self.table_data: ComparisonTable | None = None
         self.unit_select = widgets.ToggleButtons(options=list(DISPLAY_UNITS), value="kcal/mol", description="unit",
                                                  style={"button_width": "72px"})
         self.csv_path = widgets.Text(placeholder="reference curve: CSV (distance_angstrom, e_int_kcal_per_mol) or saved scan .nc",
@@ -105,12 +111,14 @@ class CorrectionComparison(widgets.VBox):
         self.table = widgets.HTML()
         self.table.add_class("interkit-ranking")
 
-        for control in (self.reference_select, self.curve_select, self.unit_select):
+        for control in (self.reference_select, self.curve_select, self.unit_select, self.region_select,
+                        self.window, self.relative):
             control.observe(lambda _change: self.refresh(), names="value")
         self.load_button.on_click(lambda _b: self._load_csv())
         self.export_button.on_click(lambda _b: self.export())
         super().__init__([
             widgets.HBox([self.reference_select, self.unit_select]),
+            widgets.HBox([self.region_select, self.window, self.relative]),
             widgets.HBox([self.curve_select,
                           widgets.VBox([widgets.HBox([self.csv_path, self.load_button]), self.export_button,
                                         self.message])]),
@@ -125,6 +133,14 @@ class CorrectionComparison(widgets.VBox):
         label = EXTERNAL_PREFIX + os.path.basename(curve.source or "curve")
         self.externals[label] = curve
         return label
+
+    def _table_args(self) -> dict:
+        """Arguments of :func:`comparison_table` for the current choices."""
+        choice = self.reference_select.value
+        args = {"external": self.externals[choice]} if choice in self.externals else {"reference": choice}
+        region = self.region_select.value
+        return dict(args, region=region, window_angstrom=float(self.window.value) if region == "window" else None,
+                    relative=bool(self.relative.value))
 
     def _reference_args(self) -> dict:
         choice = self.reference_select.value
@@ -150,11 +166,12 @@ class CorrectionComparison(widgets.VBox):
         args = self._reference_args()
         unit = self.unit_select.value
         try:
-            rows = ranking_table(self.ds, **args)
+            self.table_data = comparison_table(self.ds, **self._table_args())
         except InterkitError as exc:
             self.message.value = error_html(str(exc))
             return
-        self.rows = [dict(row, curve=self._row_label(row)) for row in rows]
+        self.message.value = ""
+        self.rows = [dict(row) for row in self.table_data.rows]
         shown = set(self.curve_select.value)
         self.rows = [row for row in self.rows if row["curve"] in shown]
         for k, row in enumerate(self.rows):
@@ -167,23 +184,25 @@ class CorrectionComparison(widgets.VBox):
         self.image.value = buf.getvalue()
         self.table.value = self._table_html(unit)
 
-    def _row_label(self, row: dict) -> str:
-        scheme = row.get("dispersion")
-        return scheme_label(parse_level(row["level"]), scheme) if scheme else row["level"]
-
     def _table_html(self, unit: str) -> str:
-        head = "".join(f"<th>{html.escape(h if not energy else f'{h} / {unit}')}</th>"
-                       for _, h, energy in TABLE_COLUMNS)
+        table = self.table_data
+        columns = [(k, h, u) for k, h, u in table.columns]
+        shown_units = [unit if u == "kcal/mol" else u for _, _, u in columns]   # energies in the chosen unit
+        head = "".join(f"<th>{html.escape(h + ' / ' + su)}</th>" for (_, h, _), su in zip(columns, shown_units))
         body = []
         for row in self.rows:
             cells = []
-            for key, _, energy in TABLE_COLUMNS:
+            for key, _, u in columns:
                 v = row.get(key, float("nan"))
-                v = convert_energy(v, "kcal/mol", unit) if energy else v
+                v = convert_energy(v, "kcal/mol", unit) if u == "kcal/mol" else v
                 cells.append(f"<td>{v:.3f}</td>" if np.isfinite(v) else "<td>–</td>")
-            body.append(f"<tr><td>{row['rank']}</td><td>{html.escape(row['curve'])}</td>{''.join(cells)}</tr>")
-        return ('<table class="interkit-ranking-table" style="border-collapse:collapse;font-size:90%">'
-                f"<thead><tr><th>rank</th><th>curve</th>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>")
+            body.append(f"<tr><td>{row['rank']}</td><td>{html.escape(row['curve'])}</td>{''.join(cells)}"
+                        f"<td>{row['n_compared']}</td></tr>")
+        return (f'<div style="font-size:85%">reference: {html.escape(table.reference)} ({table.chosen_by}); '
+                f"region: {html.escape(table.region_text)}</div>"
+                '<table class="interkit-ranking-table" style="border-collapse:collapse;font-size:90%">'
+                f"<thead><tr><th>rank</th><th>curve</th>{head}<th>points</th></tr></thead>"
+                f"<tbody>{''.join(body)}</tbody></table>")
 
     def export(self, path: str | os.PathLike | None = None) -> str:
         """Write the ranking table (kcal/mol, angstrom) to CSV; return the path."""
@@ -192,13 +211,9 @@ class CorrectionComparison(widgets.VBox):
         if not os.path.isdir(folder):
             self.message.value = error_html(f"export: folder {folder!r} does not exist")
             raise InputError(f"export: folder {folder!r} does not exist")
-        keys = ["rank", "curve", "level", "dispersion"] + [k for k, _, _ in TABLE_COLUMNS] + ["n_compared", "status"]
+        shown = dataclasses.replace(self.table_data, rows=self.rows)   # the curves shown, in kcal/mol
         with open(path, "w", newline="", encoding="utf-8") as fh:
-            out = csv.writer(fh)
-            out.writerow([f"# reference: {self.reference_select.value}"])
-            out.writerow(keys)
-            for row in self.rows:
-                out.writerow([row.get(k, "") for k in keys])
+            csv.writer(fh).writerows(shown.csv_rows())
         self.message.value = note_html(f"wrote {path}")
         return path
 

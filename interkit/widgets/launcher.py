@@ -20,6 +20,7 @@ from ..model.demo import demo_catalog, list_demos, load_demo
 from ..model.geometry import Dimer
 from ..model.levels import parse_level
 from ..model.spec import DEFAULT_MEMORY_LIMIT_MB, ScanSpec
+from ..run.store import DEFAULT_STORE, resolve_cache
 from .explorer import ScanExplorer
 from .launcher_form import (
     COORDINATES,
@@ -51,8 +52,11 @@ class ScanLauncher(RunPanel, widgets.VBox):
         Bundled dimer selected at start.
     executor : {'processes', 'serial'}
         How :func:`interkit.run_scan` runs the calculations (one worker is always serial).
-    cache : path-like, optional
-        Result store folder (finished calculations are reused by later runs).
+    cache : path-like, None or DEFAULT_STORE
+        Result store folder (finished calculations are reused by later runs); by default
+        the folder of :func:`interkit.run.store.default_store_folder` (``$INTERKIT_CACHE``,
+        else ``.interkit-cache`` in the current folder, as :func:`interkit.run_scan`).
+        None (or an empty "store" field) keeps no store.
 
     Attributes
     ----------
@@ -63,7 +67,7 @@ class ScanLauncher(RunPanel, widgets.VBox):
     """
 
     def __init__(self, demo: str = "water_methanol", executor: str = "processes",
-                 cache: str | os.PathLike | None = None):
+                 cache: str | os.PathLike | None = DEFAULT_STORE):
         self.executor = executor
         self.dimer: Dimer | None = None
         self.result = None
@@ -168,8 +172,9 @@ class ScanLauncher(RunPanel, widgets.VBox):
 
     def _build_store_and_estimate(self, cache) -> None:
         """Section 3, last part: the result store and the cost estimate."""
+        cache = resolve_cache(cache)
         self.cache = widgets.Text(value=os.fspath(cache) if cache else "", description="store",
-                                  placeholder="optional folder that keeps finished calculations",
+                                  placeholder="empty: no store (finished calculations are not kept)",
                                   layout=_lay(width="440px"))
         self.seconds_per_calc = widgets.BoundedFloatText(value=1.0, min=0.01, max=1e6, step=0.1,
                                                          description="s / calc.", layout=_lay(width="180px"))
@@ -217,6 +222,7 @@ class ScanLauncher(RunPanel, widgets.VBox):
         return [
             widgets.HBox([form, widgets.VBox([self.preview, self.message])]),
             widgets.HBox([self.run_button, self.cancel_button, self.progress, self.progress_label]),
+            widgets.HBox([self.spec_path, self.save_spec_button]),
             self.point_table, self.live, self.result_box,
         ]
 

@@ -7,6 +7,7 @@
 from __future__ import annotations
 
 import html
+import os
 import time
 
 import ipywidgets as widgets
@@ -17,7 +18,7 @@ from .curves import CurvePanel
 from .explorer import ScanExplorer
 from .launcher_form import _shows_errors
 from .runner import BackgroundScan
-from .style import STATUS_STYLE, error_html
+from .style import STATUS_STYLE, error_html, note_html
 
 
 def point_status_html(level_labels, distances_angstrom, states) -> str:
@@ -54,6 +55,26 @@ class RunPanel:
         self.live = widgets.VBox()
         self.result_box = widgets.VBox()
         self.result_box.add_class("interkit-result")
+        self.spec_path = widgets.Text(value="scan.toml", description="spec file",
+                                      layout=widgets.Layout(width="300px"))
+        self.save_spec_button = widgets.Button(description="Save spec", icon="save",
+                                               tooltip="write the form's spec as a TOML file for interkit scan")
+        self.save_spec_button.add_class("interkit-save-spec")
+        self.save_spec_button.on_click(lambda _b: self.save_spec())
+
+    @_shows_errors
+    def save_spec(self, path=None) -> str:
+        """Write the spec the form describes as a TOML spec file (``path``, default the
+        "spec file" field); ``interkit scan FILE -o scan.nc`` runs the same calculations."""
+        from ..share.spec_writer import write_spec
+
+        target = os.fspath(path) if path is not None else self.spec_path.value.strip()
+        if not target:
+            raise InputError("spec file: give a file name ending in .toml")
+        written = write_spec(self.build_spec(), target)
+        self.message.value = note_html(f"spec written to {written}; run it with: "
+                                       f"interkit scan {written} -o scan.nc")
+        return written
 
     @_shows_errors
     def run(self, wait: bool = False) -> BackgroundScan | None:

@@ -20,6 +20,7 @@ from ..errors import InterkitError
 from ..model.spec import ScanSpec
 from ..run.plan import plan_scan
 from ..run.scan import posthoc_dispersion, run_scan
+from ..run.store import DEFAULT_STORE, resolve_cache
 
 
 def count_calculations(n_levels: int, n_points: int, counterpoise: bool = True) -> int:
@@ -36,7 +37,8 @@ class BackgroundScan:
     ----------
     spec : ScanSpec
     executor, cache, workers :
-        Passed to :func:`interkit.run_scan`.
+        Passed to :func:`interkit.run_scan` (``cache``: the default store by default,
+        None for none).
     on_progress : callable, optional
         Called as ``on_progress(scan)`` (from the worker thread) after each finished
         calculation.
@@ -53,11 +55,12 @@ class BackgroundScan:
         Message of an :class:`~interkit.errors.InterkitError` (or other exception).
     """
 
-    def __init__(self, spec: ScanSpec, executor: str = "processes", cache: str | os.PathLike | None = None,
+    def __init__(self, spec: ScanSpec, executor: str = "processes", cache: str | os.PathLike | None = DEFAULT_STORE,
                  workers: int | None = None, on_progress: Callable | None = None,
                  on_done: Callable | None = None):
         self.spec = spec
         self.plan = plan_scan(spec)  # feasibility checks: refuse before the background thread starts
+        cache = resolve_cache(cache)
         self.executor, self.cache, self.workers = executor, cache, workers
         self.on_progress, self.on_done = on_progress, on_done
         self.cancel_event = threading.Event()
