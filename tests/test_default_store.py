@@ -10,7 +10,7 @@ from __future__ import annotations
 import os
 
 import pytest
-from conftest import hf_dimer
+from conftest import hf_dimer, require
 
 import interkit as ik
 
@@ -65,7 +65,7 @@ def test_cache_of_another_type_is_refused():
 
 
 def test_launcher_and_background_scan_use_the_default_store(tmp_path, monkeypatch):
-    pytest.importorskip("ipywidgets")
+    require("ipywidgets", "the notebook layer needs ipywidgets (pip install -e .[test])")
     from interkit.widgets.launcher import ScanLauncher
     from interkit.widgets.runner import BackgroundScan
 

@@ -25,6 +25,7 @@ import re
 from pathlib import Path
 
 import pytest
+from conftest import require
 
 README = Path(__file__).resolve().parents[1] / "README.md"
 SKIP_MARK = "# readme-test: skip"
@@ -96,7 +97,7 @@ def test_every_readme_python_block_runs(tmp_path, monkeypatch):
 
     matplotlib.use("Agg")
     import matplotlib.pyplot
-    pytest.importorskip("ipywidgets")
+    require("ipywidgets", "the notebook layer needs ipywidgets (pip install -e .[test])")
     monkeypatch.chdir(tmp_path)
     monkeypatch.setenv("OMP_NUM_THREADS", "1")
     namespace: dict = {"__name__": "readme"}

@@ -12,7 +12,7 @@ import math
 
 import numpy as np
 import pytest
-from conftest import hf_dimer
+from conftest import hf_dimer, require
 
 import interkit as ik
 
@@ -121,7 +121,7 @@ def test_the_dataset_keeps_the_spec_as_toml_and_interkit_spec_extracts_it(tmp_pa
 
 
 def test_launcher_saves_the_spec_of_its_form(tmp_path):
-    pytest.importorskip("ipywidgets")
+    require("ipywidgets", "the notebook layer needs ipywidgets (pip install -e .[test])")
     from interkit.widgets.launcher import ScanLauncher
 
     launcher = ScanLauncher(executor="serial", cache=None)

@@ -13,7 +13,7 @@ import re
 import numpy as np
 import pytest
 import xarray as xr
-from conftest import hf_dimer
+from conftest import hf_dimer, require
 
 import interkit as ik
 
@@ -179,7 +179,7 @@ def test_report_and_compare_agree(two_level_scan, tmp_path, capsys, options):
 
 
 def test_widget_uses_the_same_table(two_level_scan, tmp_path):
-    pytest.importorskip("ipywidgets")
+    require("ipywidgets", "the notebook layer needs ipywidgets (pip install -e .[test])")
     from interkit.analysis.comparison import comparison_table
     from interkit.widgets.comparison import CorrectionComparison
 

@@ -13,6 +13,7 @@ import threading
 import numpy as np
 import pytest
 import xarray as xr
+from conftest import require
 
 import interkit as ik
 from interkit.data.study_tree import build_study_tree, open_study, save_study, system_datasets
@@ -299,7 +300,7 @@ def test_cli_study_run_writes_one_file_and_refuses_bad_input_in_one_line(tmp_pat
 
 # ---------------------------------------------------------------------- Dask (batch-system code path)
 def test_dask_jobqueue_local_cluster_equals_serial(tmp_path):
-    pytest.importorskip("dask_jobqueue")
+    require("dask_jobqueue", "the batch-system path needs dask-jobqueue (pip install -e .[dask])")
     from dask_jobqueue.local import LocalCluster
     from distributed import Client
 
