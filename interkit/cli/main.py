@@ -76,6 +76,9 @@ def _build_parser() -> argparse.ArgumentParser:
     from .extras import add_commands as add_extras
 
     add_extras(sub)
+    from .volumes import add_commands as add_volumes
+
+    add_volumes(sub)
 
     p = sub.add_parser("store", help="inspect or shrink a result store (the --cache folder)")
     store_sub = p.add_subparsers(dest="store_command", metavar="ACTION", parser_class=_Parser)
@@ -349,6 +352,9 @@ def main(argv: list[str] | None = None) -> int:
     from .extras import HANDLERS as EXTRA_HANDLERS
 
     handlers.update(EXTRA_HANDLERS)   # methods, inspect, and systems with its contacts
+    from .volumes import HANDLERS as VOLUME_HANDLERS
+
+    handlers.update(VOLUME_HANDLERS)   # cube
     try:
         return handlers[args.command](args)
     except InterkitError as exc:
