@@ -88,7 +88,7 @@ class PointDensities:
         mats = [self.matrices[n] for n in CP_ROLES] + [self.deformation_matrix]
         return dict(zip(VOLUME_NAMES, dens.electron_counts(self.mol, mats, grid_level)))
 
-    def profile(self, spacing_bohr: float = 0.2, margin_bohr: float = 4.0) -> tuple[np.ndarray, np.ndarray]:
+    def profile(self, spacing_bohr: float = 0.15, margin_bohr: float = 4.0) -> tuple[np.ndarray, np.ndarray]:
         """Δρ integrated over planes perpendicular to the scan direction.
 
         Returns
