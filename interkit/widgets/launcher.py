@@ -20,6 +20,7 @@ from ..model.demo import demo_catalog, list_demos, load_demo
 from ..model.geometry import Dimer
 from ..model.levels import parse_level
 from ..model.spec import DEFAULT_MEMORY_LIMIT_MB, ScanSpec
+from .contact_picking import ContactPicker
 from .explorer import ScanExplorer
 from .launcher_form import (
     COORDINATES,
@@ -110,7 +111,7 @@ class ScanLauncher(RunPanel, widgets.VBox):
         self.dimer_mult.add_class("interkit-dimer-multiplicity")
         self.dimer_info = widgets.HTML()
         self.preview = Molecule3D([scene_from_arrays(["H", "H"], ["A", "B"], [[0, 0, 0], [0, 0, 0.74]])],
-                                  width=360, height=280)
+                                  width=360, height=280, pickable=True)
 
     def _build_coordinate_and_grid(self) -> None:
         """Section 2: the scan coordinate (atom pair or centres of mass) and its grid."""
@@ -195,6 +196,7 @@ class ScanLauncher(RunPanel, widgets.VBox):
             w.observe(lambda _c: self.update_estimate(), "value")
         self.levels.observe(lambda _c: self._guess_seconds(), "value")
         self.run_button.on_click(lambda _b: self.run())
+        self.picker = ContactPicker(self)   # two clicks in the preview set atom_a and atom_b
         self.cancel_button.on_click(lambda _b: self.cancel())
 
     def _layout(self) -> list:
@@ -313,6 +315,8 @@ class ScanLauncher(RunPanel, widgets.VBox):
                 for f, idx in (("A", dimer.fragment_a), ("B", dimer.fragment_b))}
         self.atom_a.options, self.atom_b.options = opts["A"], opts["B"]
         self.dimer_info.value = note_html(dimer_summary(dimer))
+        if getattr(self, "picker", None) is not None:
+            self.picker.reset()
         self._guess_seconds()
         self._refresh_preview()
 
