@@ -25,7 +25,7 @@ from .style import GAIN_COLOUR, LOSS_COLOUR, error_html, note_html
 
 #: grid step of the volume sent to the 3D view (bohr)
 VIEW_SPACING_BOHR = 0.35
-DEFAULT_ISOVALUE = 0.002
+DEFAULT_ISOVALUE = 0.001
 
 
 def profile_png(position, profile, contact_angstrom: float, title: str) -> bytes:

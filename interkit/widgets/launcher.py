@@ -119,6 +119,8 @@ class ScanLauncher(RunPanel, widgets.VBox):
                                                description="coordinate")
         self.atom_a = widgets.Dropdown(description="atom in A", layout=_lay(width="260px"))
         self.atom_b = widgets.Dropdown(description="atom in B", layout=_lay(width="260px"))
+        self.atom_a.add_class("interkit-atom-a")
+        self.atom_b.add_class("interkit-atom-b")
         self.grid_mode = widgets.ToggleButtons(options=list(GRID_MODES), value=GRID_MODES[0], description="grid",
                                                style={"button_width": "110px"})
         self.grid = widgets.Text(value=DEFAULT_FACTORS, description="values", layout=_lay(width="440px"))

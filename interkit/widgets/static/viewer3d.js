@@ -40,6 +40,7 @@ function render({ model, el }) {
   const v = window.$3Dmol.createViewer(box, {backgroundColor: style.background});
   const entry = {viewer: v, frame: null, shown: 0, zoomed: false, surfaces: 0, clicks: 0};
   window.interkitViews = window.interkitViews || {};
+  entry.scene = function () { return model.get("frames")[entry.frame || 0]; };
   window.interkitViews[uid] = entry;
   let fragmentOfModel = {}, volumeShapes = [], pickShapes = [];
   const elementMap = Object.assign({}, style.elements);
@@ -56,6 +57,7 @@ function render({ model, el }) {
     const i = atomIndex(atom);
     if (i === null || i === undefined) return;
     entry.clicks += 1;
+    entry.lastPicked = i;
     model.set("picked", model.get("picked").concat([i]).slice(-2));
     model.set("clicks", entry.clicks);
     model.save_changes();
@@ -144,7 +146,7 @@ function render({ model, el }) {
   };
   entry.load = function (frames, frame) {
     build(frames);
-    if (!entry.zoomed) { v.setFrame(frame); v.zoomTo(); entry.zoomed = true; }
+    if (!entry.zoomed) { v.setFrame(frame); v.zoomTo(); v.zoom(1.3); entry.zoomed = true; }
     entry.go(frame);
     if ((model.get("volume") || {}).cube) drawVolume();
   };
