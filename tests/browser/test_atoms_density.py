@@ -20,8 +20,12 @@ pytestmark = pytest.mark.browser
 
 # the server, driver and screenshot helpers of the other browser tests (and their
 # `page` fixture: a fresh Chromium profile with every non-local request aborted)
-from test_browser import _drawn_fraction, _free_port, _shot  # noqa: E402
-from test_browser import page as _offline_page  # noqa: E402,F401
+from test_browser import (  # noqa: E402
+    _drawn_fraction,
+    _free_port,
+    _shot,
+    page,  # noqa: E402,F401
+)
 
 NOTEBOOK = """\
 import os
@@ -108,16 +112,16 @@ def notebook_page_url(request, served_folder):
         _stop(proc, log)
 
 
-def _open(page, kind, url):
-    page.goto(url, timeout=120_000)
+def _open(pg, kind, url):
+    pg.goto(url, timeout=120_000)
     if kind == "jupyterlab":
-        page.wait_for_selector(".jp-Notebook .jp-Cell", timeout=120_000)
-        page.wait_for_function("() => document.querySelector('.jp-Notebook-ExecutionIndicator, "
+        pg.wait_for_selector(".jp-Notebook .jp-Cell", timeout=120_000)
+        pg.wait_for_function("() => document.querySelector('.jp-Notebook-ExecutionIndicator, "
                                ".jp-Notebook') !== null")
-        page.wait_for_timeout(1500)   # kernel start
-        page.click(".lm-MenuBar-item:has-text('Run')")
-        page.click(".lm-Menu-item:has-text('Run All Cells')")
-    page.wait_for_function("() => Object.values(window.interkitViews || {}).filter(v => v.shown > 0).length >= 2",
+        pg.wait_for_timeout(1500)   # kernel start
+        pg.click(".lm-MenuBar-item:has-text('Run')")
+        pg.click(".lm-Menu-item:has-text('Run All Cells')")
+    pg.wait_for_function("() => Object.values(window.interkitViews || {}).filter(v => v.shown > 0).length >= 2",
                            timeout=180_000)
 
 
@@ -141,22 +145,22 @@ def _number(option_text: str) -> int:
     return int(re.match(r"\d+", option_text.strip()).group())
 
 
-def _selected(page, cls):
-    return page.eval_on_selector(f".interkit-launcher .{cls} select", "el => el.selectedOptions[0].textContent")
+def _selected(pg, cls):
+    return pg.eval_on_selector(f".interkit-launcher .{cls} select", "el => el.selectedOptions[0].textContent")
 
 
-def _click_atom(page, uid, fragment, avoid):
+def _click_atom(pg, uid, fragment, avoid):
     """Click the most isolated atom of ``fragment`` on screen; return the atom the view reports."""
-    page.eval_on_selector(f"#{uid}", "el => el.scrollIntoView({block: 'center'})")
-    page.wait_for_timeout(300)
-    target = page.evaluate(PICK_JS, [uid, fragment, avoid])
-    clicks = page.evaluate("uid => window.interkitViews[uid].clicks", uid)
-    page.mouse.click(target["x"], target["y"])
-    page.wait_for_function("([uid, n]) => window.interkitViews[uid].clicks > n", arg=[uid, clicks], timeout=20_000)
-    return page.evaluate("uid => window.interkitViews[uid].lastPicked", uid)
+    pg.eval_on_selector(f"#{uid}", "el => el.scrollIntoView({block: 'center'})")
+    pg.wait_for_timeout(300)
+    target = pg.evaluate(PICK_JS, [uid, fragment, avoid])
+    clicks = pg.evaluate("uid => window.interkitViews[uid].clicks", uid)
+    pg.mouse.click(target["x"], target["y"])
+    pg.wait_for_function("([uid, n]) => window.interkitViews[uid].clicks > n", arg=[uid, clicks], timeout=20_000)
+    return pg.evaluate("uid => window.interkitViews[uid].lastPicked", uid)
 
 
-def test_clicking_two_atoms_sets_the_contact_and_density_surfaces_draw(notebook_page_url, page):
+def test_clicking_two_atoms_sets_the_contact_and_density_surfaces_draw(notebook_page_url, page):  # noqa: F811
     kind, url = notebook_page_url
     try:
         _open(page, kind, url)
