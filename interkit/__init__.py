@@ -36,6 +36,7 @@ from .model.geometry import Dimer
 from .model.levels import LevelOfTheory, parse_level
 from .model.spec import ScanSpec
 from .model.spec_file import load_spec_toml
+from .run.densities import compute_point_densities, load_point_densities
 from .run.feasibility import check_feasibility
 from .run.scan import run_scan
 from .share.export import export_scan
@@ -51,7 +52,7 @@ __all__ = [
     "ScanCoordinate", "ScanSpec", "StoreError", "Vector", "__version__", "convert_energy",
     "demo_catalog", "export_scan", "list_demos", "load_demo", "load_spec_toml", "methods_bibtex", "methods_text",
     "open_scan", "parse_level", "rerun_scan", "run_scan", "save_scan", "spec_of", "validate", "verify_scan",
-    "write_report",
+    "write_report", "compute_point_densities", "load_point_densities",
 ]
 
 

@@ -149,3 +149,9 @@ def test_spec_records_keep_densities_only_when_set():
     # common practice: a new optional field leaves older spec JSON unchanged
     assert "keep_densities" not in json.loads(_spec(False).to_json())
     assert ik.ScanSpec.from_json(_spec(True).to_json()).keep_densities is True
+
+
+def test_keep_densities_must_be_true_or_false():
+    # one line naming the field (product rule for bad input)
+    with pytest.raises(ik.InputError, match="keep_densities: 'yes'"):
+        ik.ScanSpec(dimer=load_demo("water_methanol"), factors=[1.0], levels=[LEVEL], keep_densities="yes")

@@ -13,6 +13,7 @@
     interkit compare scan.nc [--reference LABEL | --reference-file FILE.csv|.nc] [--table out.csv]
     interkit methods scan.nc [--bibtex refs.bib]     # methods paragraph for a paper
     interkit inspect FILE.xyz [--charges QA QB]       # atoms, fragments, closest A-B contacts
+    interkit cube scan.nc --point K -o DIR            # densities of one point as cube files
     interkit --version
 
 The saved-file commands (rerun, verify, report, export) live in :mod:`interkit.cli.saved`;
