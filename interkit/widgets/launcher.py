@@ -210,6 +210,8 @@ class ScanLauncher(RunPanel, widgets.VBox):
             self.dimer_mult,
             self.dimer_info,
             h("<b>2 · Scan coordinate and grid</b>"), self.coordinate, widgets.HBox([self.atom_a, self.atom_b]),
+            h(note_html("atom numbers from 0, as in the API; or click an atom of A, then one of B, "
+                        "in the 3D preview")),
             self.grid_mode, self.grid,
             h("<b>3 · Calculation</b>"), self.levels, self.counterpoise, self.workers,
             self.dispersion, widgets.HBox([self.forces, self.decomposition]),
