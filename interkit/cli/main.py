@@ -13,6 +13,7 @@
     interkit compare scan.nc [--reference LABEL | --reference-file FILE.csv|.nc] [--table out.csv]
     interkit methods scan.nc [--bibtex refs.bib]     # methods paragraph for a paper
     interkit inspect FILE.xyz [--charges QA QB]       # atoms, fragments, closest A-B contacts
+    interkit cube scan.nc --point K -o DIR            # densities of one point as cube files
     interkit --version
 
 The saved-file commands (rerun, verify, report, export) live in :mod:`interkit.cli.saved`;
@@ -79,6 +80,10 @@ def _build_parser() -> argparse.ArgumentParser:
     from .study import add_commands as add_study
 
     add_study(sub, _add_run_options)
+
+    from .volumes import add_commands as add_volumes
+
+    add_volumes(sub)
 
     p = sub.add_parser("store", help="inspect or shrink a result store (the --cache folder)")
     store_sub = p.add_subparsers(dest="store_command", metavar="ACTION", parser_class=_Parser)
@@ -362,6 +367,10 @@ def main(argv: list[str] | None = None) -> int:
     from .study import HANDLERS as STUDY_HANDLERS
 
     handlers.update(STUDY_HANDLERS)   # interkit study run/rank/verify/rerun/report
+
+    from .volumes import HANDLERS as VOLUME_HANDLERS
+
+    handlers.update(VOLUME_HANDLERS)   # cube
     try:
         return handlers[args.command](args)
     except InterkitError as exc:

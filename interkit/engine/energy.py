@@ -250,6 +250,11 @@ def run_energy_job(job: Job, guess=None) -> tuple[dict, object]:
                 energy_hartree=e_scf + e_corr + float(e_disp),
                 converged=True,
             )
+            if getattr(job, "keep_density", False):
+                # optional and additive: the SCF density for deformation densities
+                from .density import encode_matrix
+
+                record["density_matrix"] = encode_matrix(density)
     except Exception as exc:  # a failed calculation must not stop the scan
         record["status"] = "failed"
         last = traceback.extract_tb(exc.__traceback__)[-1]

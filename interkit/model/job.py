@@ -101,6 +101,10 @@ class Job:
     ecp : tuple of (str, str)
         Effective core potential of each real element whose basis definition carries
         one, as (symbol, ECP name); filled from pyscf's basis library when not given.
+    keep_density : bool
+        Also return the converged SCF density matrix in the record
+        (``density_matrix``, about nao² × 8 bytes); it changes what the record holds,
+        not the numbers, so it is not part of :meth:`describe` or the key.
     """
 
     symbols: tuple[str, ...]
@@ -118,6 +122,7 @@ class Job:
     memory_limit_mb: float = field(default=4000.0, compare=False)
     key: str = field(default="", compare=False)
     ecp: tuple[tuple[str, str], ...] | None = None
+    keep_density: bool = field(default=False, compare=False)
 
     def __post_init__(self):
         if self.ecp is None:

@@ -102,6 +102,7 @@ def spec_from_mapping(data: dict, base_dir: str | os.PathLike = ".") -> ScanSpec
         scf_threshold_hartree=calc.get("scf_threshold_hartree", DEFAULT_SCF_THRESHOLD_HARTREE),
         name=data.get("name", ""),
         memory_limit_mb=calc.get("memory_limit_mb", DEFAULT_MEMORY_LIMIT_MB),
+        keep_densities=calc.get("keep_densities", False),
     )
 
 
@@ -197,6 +198,7 @@ def load_spec_toml(path: str | os.PathLike) -> ScanSpec:
         decomposition_basis = "jun-cc-pvdz" # optional
         sapt_memory_limit_mb = 8000         # optional
         memory_limit_mb = 16000             # optional: refuse calculations estimated above it
+        keep_densities = false              # optional: keep density matrices in the store
         [calculation.settings]              # optional: numerical settings of every level
         density_fitting = true              # fitted SCF Coulomb/exchange
         frozen_core = true                  # MP2, SCS-MP2, CCSD(T)

@@ -8,6 +8,8 @@ a canonical position (centroid at the origin), so a rigid scan computes each onl
 
 from __future__ import annotations
 
+import dataclasses
+
 import numpy as np
 
 from ..model.job import (
@@ -68,6 +70,9 @@ def _cp_jobs(spec: ScanSpec, geometry, level: LevelOfTheory, outputs, suffix: st
     if spec.counterpoise:
         jobs["a_dimer_basis" + suffix] = _job_for(geometry, a, b, qa, sa, level, spec.scf_threshold_hartree, outputs=outputs)
         jobs["b_dimer_basis" + suffix] = _job_for(geometry, b, a, qb, sb, level, spec.scf_threshold_hartree, outputs=outputs)
+    if getattr(spec, "keep_densities", False) and not suffix:
+        # the records then carry the density matrices (same keys, same numbers)
+        jobs = {role: dataclasses.replace(job, keep_density=True) for role, job in jobs.items()}
     return jobs
 
 

@@ -19,6 +19,7 @@ from ..data.schema import open_scan, validate
 from ..errors import InterkitError
 from ..units import convert_energy
 from .curves import CurvePanel, component_figure, level_colour
+from .density_panel import DensityPanel
 from .exports import EXPORT_SUFFIXES, write_csv, write_netcdf, write_report_file, write_shared
 from .forces_panel import ForcePanel, force_arrows, scale_legend
 from .style import DISPLAY_UNITS, FRAGMENT_COLOURS, SCAN_LINE_COLOUR, error_html, note_html
@@ -49,6 +50,9 @@ class ScanExplorer(widgets.VBox):
         Initial display unit (kcal/mol, kJ/mol, eV or cm-1).
     export_dir : path-like, optional
         Folder the export buttons write to (default: the working directory).
+    cache : path-like, optional
+        Result store with the scan's density matrices, for the deformation-density panel
+        (:mod:`interkit.widgets.density_panel`; default ``.interkit-cache`` if present).
 
     Attributes
     ----------
@@ -69,7 +73,7 @@ class ScanExplorer(widgets.VBox):
     show_bsse = traitlets.Bool(False)
 
     def __init__(self, ds: xr.Dataset | str | os.PathLike, unit: str = "kcal/mol",
-                 export_dir: str | os.PathLike | None = None):
+                 export_dir: str | os.PathLike | None = None, cache: str | os.PathLike | None = None):
         if isinstance(ds, (str, os.PathLike)):
             ds = open_scan(ds)
         validate(ds)
@@ -154,6 +158,8 @@ class ScanExplorer(widgets.VBox):
             self.arrow_legend.value = f'<div style="font-size:85%;color:#444">{scale_legend("atoms")}</div>'
             left_parts += [self.arrow_mode, self.arrow_legend]
             right_parts.append(self.force_panel.image)   # force slot: net force on B along the scan
+        self.density = DensityPanel(self, cache)   # deformation density of the point (on demand)
+        left_parts.append(self.density)
         right = widgets.VBox(right_parts + [self.components])
         left = widgets.VBox(left_parts)
         controls = widgets.VBox([

@@ -21,6 +21,7 @@ from ..model.geometry import Dimer
 from ..model.levels import parse_level
 from ..model.spec import DEFAULT_MEMORY_LIMIT_MB, ScanSpec
 from ..run.store import DEFAULT_STORE, resolve_cache
+from .contact_picking import ContactPicker
 from .explorer import ScanExplorer
 from .launcher_form import (
     COORDINATES,
@@ -114,7 +115,7 @@ class ScanLauncher(RunPanel, widgets.VBox):
         self.dimer_mult.add_class("interkit-dimer-multiplicity")
         self.dimer_info = widgets.HTML()
         self.preview = Molecule3D([scene_from_arrays(["H", "H"], ["A", "B"], [[0, 0, 0], [0, 0, 0.74]])],
-                                  width=360, height=280)
+                                  width=360, height=280, pickable=True)
 
     def _build_coordinate_and_grid(self) -> None:
         """Section 2: the scan coordinate (atom pair or centres of mass) and its grid."""
@@ -122,6 +123,8 @@ class ScanLauncher(RunPanel, widgets.VBox):
                                                description="coordinate")
         self.atom_a = widgets.Dropdown(description="atom in A", layout=_lay(width="260px"))
         self.atom_b = widgets.Dropdown(description="atom in B", layout=_lay(width="260px"))
+        self.atom_a.add_class("interkit-atom-a")
+        self.atom_b.add_class("interkit-atom-b")
         self.grid_mode = widgets.ToggleButtons(options=list(GRID_MODES), value=GRID_MODES[0], description="grid",
                                                style={"button_width": "110px"})
         self.grid = widgets.Text(value=DEFAULT_FACTORS, description="values", layout=_lay(width="440px"))
@@ -200,6 +203,7 @@ class ScanLauncher(RunPanel, widgets.VBox):
             w.observe(lambda _c: self.update_estimate(), "value")
         self.levels.observe(lambda _c: self._guess_seconds(), "value")
         self.run_button.on_click(lambda _b: self.run())
+        self.picker = ContactPicker(self)   # two clicks in the preview set atom_a and atom_b
         self.cancel_button.on_click(lambda _b: self.cancel())
 
     def _layout(self) -> list:
@@ -211,6 +215,8 @@ class ScanLauncher(RunPanel, widgets.VBox):
             self.dimer_mult,
             self.dimer_info,
             h("<b>2 · Scan coordinate and grid</b>"), self.coordinate, widgets.HBox([self.atom_a, self.atom_b]),
+            h(note_html("atom numbers from 0, as in the API; or click an atom of A, then one of B, "
+                        "in the 3D preview")),
             self.grid_mode, self.grid,
             h("<b>3 · Calculation</b>"), self.levels, self.counterpoise, self.workers,
             self.dispersion, widgets.HBox([self.forces, self.decomposition]),
@@ -319,6 +325,8 @@ class ScanLauncher(RunPanel, widgets.VBox):
                 for f, idx in (("A", dimer.fragment_a), ("B", dimer.fragment_b))}
         self.atom_a.options, self.atom_b.options = opts["A"], opts["B"]
         self.dimer_info.value = note_html(dimer_summary(dimer))
+        if getattr(self, "picker", None) is not None:
+            self.picker.reset()
         self._guess_seconds()
         self._refresh_preview()
 

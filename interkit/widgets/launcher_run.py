@@ -135,7 +135,7 @@ class RunPanel:
                                      f"{scan.done} of {scan.total} calculations")
         self._show_points()
         self.live.children = []
-        self.explorer = ScanExplorer(self.result)
+        self.explorer = ScanExplorer(self.result, cache=self.cache.value.strip() or None)
         self.result_box.children = [widgets.HTML("<b>Result</b> (also in <code>launcher.result</code>)"),
                                     self.explorer]
 
