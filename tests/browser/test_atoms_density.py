@@ -13,6 +13,7 @@ import subprocess
 import sys
 import time
 import urllib.request
+from pathlib import Path
 
 import pytest
 
@@ -95,7 +96,12 @@ def notebook_page_url(request, served_folder):
     work.mkdir()
     shutil.copy(folder / "atoms.ipynb", work / "atoms.ipynb")   # JupyterLab autosaves its copy
     if request.param == "voila":
-        args = ["voila", "--no-browser", "--Voila.ip=127.0.0.1", "--ServerApp.ip=127.0.0.1", str(work)]
+        # Voila's lab page without the icon-font stylesheets its own templates load from a
+        # CDN (tests/browser/voila_offline), as in test_browser.py
+        templates = str(Path(__file__).parent / "voila_offline")
+        env = dict(env, JUPYTER_PATH=os.pathsep.join(filter(None, [templates, env.get("JUPYTER_PATH")])))
+        args = ["voila", "--no-browser", "--Voila.ip=127.0.0.1", "--ServerApp.ip=127.0.0.1",
+                "--template=offline-lab", str(work)]
         proc, log, base = _serve(args, folder, env, "voila")
         url = base + "/voila/render/atoms.ipynb"
     else:
