@@ -1,7 +1,7 @@
 """``interkit compare``: rank the curves of a saved scan against a reference.
 
     interkit compare scan.nc [--reference LABEL | --reference-file FILE [--reference-curve LABEL]]
-                             [--table out.csv]
+                             [--table out.csv] [--unit kJ/mol]
 
 The reference is a curve of the same scan, named by its folded label (e.g.
 ``mp2/def2-svp`` or ``b3lyp-d3bj/def2-svp``), or an external curve: a CSV file with
@@ -36,6 +36,9 @@ def add_commands(sub) -> None:
                    help="curve of the --reference-file scan or CSV table (default: its most accurate "
                         "wavefunction level)")
     p.add_argument("--table", metavar="CSV", help="also write the ranking to this CSV file")
+    from .output import add_unit_options
+
+    add_unit_options(p, forces=False)
     p.set_defaults(handler=run_compare)
 
 
@@ -78,9 +81,19 @@ def _label(row: dict) -> str:
     return scheme_label(parse_level(row["level"]), scheme) if scheme else row["level"]
 
 
+def _shown(row: dict, key: str, unit: str) -> float:
+    """A ranking value in the display unit (energies converted, distances kept)."""
+    from ..units import convert_energy
+
+    value = row[key]
+    return convert_energy(value, "kcal/mol", unit) if key.endswith("_kcal_per_mol") and value == value else value
+
+
 def run_compare(args) -> int:
-    """Print the ranking (kcal/mol, angstrom); optionally write it as CSV."""
+    """Print the ranking (energies in ``--unit``, angstrom); optionally write it as CSV
+    (kcal/mol, the column names say so)."""
     from ..data.schema import open_scan
+    from ..model.level_names import display_label
 
     if args.table:
         from .output import check_output
@@ -88,20 +101,23 @@ def run_compare(args) -> int:
         check_output(args.table, "--table", (".csv",), "CSV")
     ds = open_scan(args.scan)
     rows, label = _ranking(ds, args)
-    width = max([26] + [len(_label(r)) + 2 for r in rows])
-    print(f"reference: {label}; errors in kcal/mol (curve minus reference)")
+    unit = getattr(args, "unit", "kcal/mol")
+    width = max([26] + [len(display_label(_label(r))) + 2 for r in rows])
+    shown_ref = display_label(label) + (f" (--reference {label})" if display_label(label) != label else "")
+    print(f"reference: {shown_ref}; errors in {unit} (curve minus reference)")
     if _variable(ds) == "e_int_nocp":
         print("the scan ran without counterpoise correction: the uncorrected curves (e_int_nocp) are compared")
     print(f"{'rank':>4s}  {'curve':<{width}s}" + "".join(f"{h:>10s}" for _, h in COLUMNS))
     for row in rows:
-        cells = "".join(f"{row[k]:>10.3f}" if row[k] == row[k] else f"{'–':>10s}" for k, _ in COLUMNS)
-        print(f"{row['rank']:>4d}  {_label(row):<{width}s}{cells}")
+        cells = "".join(f"{_shown(row, k, unit):>10.3f}" if row[k] == row[k] else f"{'–':>10s}"
+                        for k, _ in COLUMNS)
+        print(f"{row['rank']:>4d}  {display_label(_label(row)):<{width}s}{cells}")
     if "dispersion_status" in ds.variables:
         for level in ds["level"].values:
             for scheme in ds["dispersion"].values:
                 status = str(ds["dispersion_status"].sel(level=level, dispersion=scheme).values)
                 if status.startswith("unavailable"):
-                    print(f"note: {level} with {scheme}: {status}")
+                    print(f"note: {display_label(str(level))} with {scheme}: {status}")
     print("Note: " + ds.attrs.get("caution", ""))
     if args.table:
         keys = ["rank", "curve"] + [k for k, _ in COLUMNS] + ["n_compared", "status"]

@@ -49,6 +49,8 @@ def add_commands(sub, add_run_options) -> None:
     p.add_argument("-o", "--output", required=True, help="file to write (.csv, .json, .xyz or .extxyz)")
     p.add_argument("--format", choices=FORMATS, default=None, help="csv or json (default: from the suffix)")
     p.add_argument("--unit", default="kcal/mol", help="energy unit of the CSV (default: %(default)s)")
+    p.add_argument("--force-unit", default=None,
+                   help="force unit of the CSV (default: the one matching --unit)")
     p.add_argument("--level", default=None, help="extxyz: curve whose energy and forces are written")
 
 
@@ -122,7 +124,7 @@ def cmd_export(args) -> int:
     export_format(args.output, args.format, ("--output", "--format"))   # check before reading the scan
     check_output(args.output, "--output", (".csv", ".json") if args.format is None else ("",), "export")
     ds = open_scan(args.scan)
-    export_scan(ds, args.output, args.format, args.unit, level=args.level)
+    export_scan(ds, args.output, args.format, args.unit, level=args.level, force_unit=args.force_unit)
     print(f"wrote {args.output}")
     return 0
 

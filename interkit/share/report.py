@@ -155,13 +155,15 @@ def _table(header: list[str], rows: list[list], text: tuple[int, ...] = (0,)) ->
     return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
 
 
-def _energy_section(ds: xr.Dataset) -> str:
+def _energy_section(ds: xr.Dataset, unit: str = "kcal/mol") -> str:
+    from ..model.level_names import display_label
     from ..plot.curves import plot_curves
+    from ..units import convert_energy
 
     levels = [str(x) for x in ds["level"].values]
     cp = ds.attrs.get("counterpoise", "") != "none"
     parts = ["<h2>Interaction-energy curves</h2>",
-             _figure(lambda ax: plot_curves(ds, ax=ax, show_uncorrected=cp),
+             _figure(lambda ax: plot_curves(ds, ax=ax, show_uncorrected=cp, unit=unit),
                      "Counterpoise-corrected interaction energy (solid) and uncorrected (dashed) against "
                      "the scan coordinate; shaded bands mark failed points." if cp else
                      "Interaction energy (no counterpoise correction) against the scan coordinate.",
@@ -173,16 +175,19 @@ def _energy_section(ds: xr.Dataset) -> str:
         row = [_num(r), _num(factor[i])]
         for lv in levels:
             st = str(ds["status"].sel(level=lv).values[i])
-            row.append(("failed", "failed") if st == "failed" else _num(ds[variable].sel(level=lv).values[i]))
+            row.append(("failed", "failed") if st == "failed" else
+                       _num(convert_energy(float(ds[variable].sel(level=lv).values[i]), "kcal/mol", unit)))
         rows.append(row)
     title = "counterpoise-corrected" if cp else "uncorrected"
-    parts.append(f'<p class="note">Interaction energy, {title}, kcal/mol (negative = bound).</p>')
-    parts.append(_table(["distance / Å", "factor"] + levels, rows, text=()))
+    parts.append(f'<p class="note">Interaction energy, {title}, {_e(unit)} (negative = bound).</p>')
+    parts.append(_table(["distance / Å", "factor"] + [display_label(lv) for lv in levels], rows, text=()))
     return "".join(parts)
 
 
-def _minimum_section(ds: xr.Dataset) -> str:
+def _minimum_section(ds: xr.Dataset, unit: str = "kcal/mol") -> str:
     from ..analysis.minima import minimum_table
+    from ..model.level_names import display_label
+    from ..units import convert_energy
 
     variable = "e_int" if ds.attrs.get("counterpoise", "") != "none" else "e_int_nocp"
     rows = []
@@ -190,30 +195,32 @@ def _minimum_section(ds: xr.Dataset) -> str:
         note = [] if row["interior"] else ["minimum at the edge of the grid"]
         if row["failed_points"]:
             note.append(f"{row['failed_points']} failed point(s)")
-        rows.append([row["level"], _num(row["r_min_angstrom"]), _num(row["e_min_kcal_per_mol"]),
-                     _num(row["well_depth_kcal_per_mol"]),
-                     _num(row["force_constant_kcal_per_mol_per_angstrom2"], ".2f"), row["n_points"],
-                     "; ".join(note)])
+        rows.append([display_label(row["level"]), _num(row["r_min_angstrom"]),
+                     _num(convert_energy(row["e_min_kcal_per_mol"], "kcal/mol", unit)),
+                     _num(convert_energy(row["well_depth_kcal_per_mol"], "kcal/mol", unit)),
+                     _num(convert_energy(row["force_constant_kcal_per_mol_per_angstrom2"], "kcal/mol", unit), ".2f"),
+                     row["n_points"], "; ".join(note)])
     return ("<h2>Minimum and well depth</h2>"
             '<p class="note">Natural cubic spline through the finite points; the force constant is its '
             "curvature at the minimum.</p>"
-            + _table(["level", "R_min / Å", "E_min / kcal/mol", "well depth / kcal/mol",
-                      "force constant / kcal/mol/Å²", "points", "note"], rows, text=(0, 6)))
+            + _table(["level", "R_min / Å", f"E_min / {unit}", f"well depth / {unit}",
+                      f"force constant / {unit}/Å²", "points", "note"], rows, text=(0, 6)))
 
 
-def _force_section(ds: xr.Dataset, level: str | None) -> str:
+def _force_section(ds: xr.Dataset, level: str | None, force_unit: str = "kcal/mol/angstrom") -> str:
     if "force_along" not in ds.variables:
         return ""
     from ..analysis.minima import force_zero_crossing
+    from ..model.level_names import display_label
     from ..plot.curves import plot_forces
 
     rows = []
     for lv in ds["level"].values:
         r0 = force_zero_crossing(ds["distance"].values, ds["force_along"].sel(level=lv).values)
         method = str(ds["force_method"].sel(level=lv).values) if "force_method" in ds.variables else ""
-        rows.append([str(lv), _num(r0) if np.isfinite(r0) else "no sign change", method])
+        rows.append([display_label(str(lv)), _num(r0) if np.isfinite(r0) else "no sign change", method])
     parts = ["<h2>Forces between the fragments</h2>",
-             _figure(lambda ax: plot_forces(ds, ax=ax),
+             _figure(lambda ax: plot_forces(ds, ax=ax, force_unit=force_unit),
                      "Net counterpoise-corrected force on fragment B along the coordinate (positive = "
                      "repulsive); dashed: −dE/dR of a spline through the energies, which should lie on it.",
                      "force curves"),
@@ -223,8 +230,9 @@ def _force_section(ds: xr.Dataset, level: str | None) -> str:
     split_level = level if level is not None else str(ds["level"].values[0])
     if "force_hf_along" in ds.variables and bool(np.isfinite(ds["force_hf_along"].sel(level=split_level)).any()):
         parts.append(_figure(
-            lambda ax: plot_forces(ds, ax=ax, levels=[split_level], show_fit=False, show_split=True),
-            f"{split_level}: the net force (solid) as the electrostatic (Hellmann–Feynman) force of nuclei "
+            lambda ax: plot_forces(ds, ax=ax, levels=[split_level], show_fit=False, show_split=True,
+                                   force_unit=force_unit),
+            f"{display_label(split_level)}: the net force (solid) as the electrostatic (Hellmann–Feynman) force of nuclei "
             "and electron density (dotted) plus the Pulay remainder of the atom-centred basis (dash-dotted).",
             "force split"))
     return "".join(parts)
@@ -324,7 +332,8 @@ def _provenance_section(ds: xr.Dataset) -> str:
 
 
 # ---------------------------------------------------------------------- the document
-def render_report(ds: xr.Dataset, reference: str | None = None) -> str:
+def render_report(ds: xr.Dataset, reference: str | None = None, unit: str = "kcal/mol",
+                  force_unit: str | None = None) -> str:
     """The HTML text of the report of a scan Dataset.
 
     Parameters
@@ -334,6 +343,9 @@ def render_report(ds: xr.Dataset, reference: str | None = None) -> str:
     reference : str, optional
         Level used as reference in the comparison; default: the highest level by
         :func:`level_rank` when there are several.
+    unit, force_unit : str
+        Units of the energy curves, tables and force curves (default kcal/mol and the
+        force unit matching ``unit``); the comparison of levels stays in kcal/mol.
 
     Returns
     -------
@@ -341,8 +353,15 @@ def render_report(ds: xr.Dataset, reference: str | None = None) -> str:
         A complete HTML document without scripts or external resources.
     """
     from ..data.schema import CAUTION, validate
+    from ..model.level_names import display_label
+    from ..units import ENERGY_UNITS, FORCE_UNITS, MATCHING_FORCE_UNIT
     from ..version import __version__
 
+    if unit not in ENERGY_UNITS:
+        raise InputError(f"unit: {unit!r} is not one of {', '.join(ENERGY_UNITS)}")
+    force_unit = force_unit or MATCHING_FORCE_UNIT[unit]
+    if force_unit not in FORCE_UNITS:
+        raise InputError(f"force_unit: {force_unit!r} is not one of {', '.join(FORCE_UNITS)}")
     validate(ds)
     view = levels_view(ds)
     ref = choose_reference(view, reference)
@@ -358,11 +377,12 @@ def render_report(ds: xr.Dataset, reference: str | None = None) -> str:
     sections = [
         f"<h1>{_e(name or title)}</h1>",
         f'<p class="subtitle">{_e(title)} · coordinate: {_e(view["distance"].attrs.get("long_name", ""))} · '
-        f"{len(levels)} level(s): {_e(', '.join(levels))} · {view.sizes['distance']} points</p>",
+        f"{len(levels)} level(s): {_e(', '.join(display_label(lv) for lv in levels))} · "
+        f"{view.sizes['distance']} points</p>",
         f'<div class="caution"><b>Caution.</b> {_e(caution)}</div>',
-        _energy_section(view),
-        _minimum_section(view),
-        _force_section(view, ref),
+        _energy_section(view, unit),
+        _minimum_section(view, unit),
+        _force_section(view, ref, force_unit),
         _decomposition_section(view, ref or (levels[0] if levels else None)),
         _comparison_section(view, ref, explicit=reference is not None),
         _status_section(view),
@@ -378,7 +398,8 @@ def render_report(ds: xr.Dataset, reference: str | None = None) -> str:
             "no number in it was recomputed.</footer></body></html>\n")
 
 
-def write_report(ds, path: str | os.PathLike, reference: str | None = None) -> str:
+def write_report(ds, path: str | os.PathLike, reference: str | None = None, unit: str = "kcal/mol",
+                 force_unit: str | None = None) -> str:
     """Write the HTML report of a scan (see :func:`render_report`) to one file.
 
     The file is self-contained: figures are inline PNG images, the style sheet is
@@ -395,6 +416,8 @@ def write_report(ds, path: str | os.PathLike, reference: str | None = None) -> s
     reference : str, optional
         Level used as reference in the comparison of levels (default: the highest
         level of the scan by :func:`level_rank`).
+    unit, force_unit : str
+        Units of the energies and forces shown (see :func:`render_report`).
 
     Returns
     -------
@@ -409,7 +432,7 @@ def write_report(ds, path: str | os.PathLike, reference: str | None = None) -> s
         from .provenance import load_saved
 
         ds = load_saved(ds)[0]
-    text = render_report(ds, reference)
+    text = render_report(ds, reference, unit, force_unit)
     from ..fileio import atomic_write_text
 
     return atomic_write_text(path, text)

@@ -157,7 +157,7 @@ class ScanExplorer(widgets.VBox):
                                         layout=widgets.Layout(width="240px"))
         self.export_buttons = {}
         for kind, tip in (("netCDF", "the whole Dataset (.nc), reopen with interkit.open_scan"),
-                          ("CSV", "energies in the selected unit (.csv)"),
+                          ("CSV", "energies and forces in the selected units (.csv)"),
                           ("PNG", "the curve plot (.png)"), ("SVG", "the curve plot (.svg)"),
                           ("report", "self-contained HTML report (.html): figures inline, opens offline"),
                           ("JSON", "every variable and one QCSchema molecule per point (.json)"),
@@ -398,8 +398,8 @@ class ScanExplorer(widgets.VBox):
         return write_netcdf(self.source, path)
 
     def export_csv(self, path: str | os.PathLike) -> str:
-        """Write the curves in the display unit to ``path`` (CSV); return the path."""
-        return write_csv(self.ds, path, unit=self.unit)
+        """Write the curves in the display units (energy and force) to ``path`` (CSV); return the path."""
+        return write_csv(self.ds, path, unit=self.unit, force_unit=self.force_unit)
 
     def export_figure(self, path: str | os.PathLike) -> str:
         """Write the curve plot as shown (PNG or SVG by extension); return the path."""
@@ -411,7 +411,7 @@ class ScanExplorer(widgets.VBox):
 
     def export_report(self, path: str | os.PathLike) -> str:
         """Write the self-contained HTML report (:func:`interkit.write_report`); return the path."""
-        return write_report_file(self.source, path)
+        return write_report_file(self.source, path, self.unit, self.force_unit)
 
     def export_json(self, path: str | os.PathLike) -> str:
         """Write the JSON export with QCSchema molecules (energies in kcal/mol); return the path."""
@@ -419,7 +419,7 @@ class ScanExplorer(widgets.VBox):
 
     def export_tidy_csv(self, path: str | os.PathLike) -> str:
         """Write the tidy CSV (one row per value, energies in the display unit); return the path."""
-        return write_shared(self.source, path, "csv", unit=self.unit)
+        return write_shared(self.source, path, "csv", unit=self.unit, force_unit=self.force_unit)
 
     def _export_clicked(self, kind: str) -> None:
         stem = os.path.join(self.export_dir.value.strip() or ".", self.export_stem.value.strip() or "scan")
