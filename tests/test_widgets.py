@@ -148,8 +148,8 @@ def test_share_buttons_write_report_json_and_tidy_csv(explorer, scan, tmp_path):
         assert "wrote" in explorer.export_status.value, kind
     text = (tmp_path / "shared.html").read_text(encoding="utf-8")
     assert "<script" not in text.lower() and scan.attrs["caution"] in text
-    for v in scan["e_int"].sel(level="hf/3-21g").values:     # the report shows the Dataset's numbers
-        assert f"<td>{v:.3f}</td>" in text
+    for v in scan["e_int"].sel(level="hf/3-21g").values:     # the report shows the Dataset's numbers,
+        assert f"<td>{convert_energy(v, 'kcal/mol', 'kJ/mol'):.3f}</td>" in text   # in the display unit
     doc = json.loads((tmp_path / "shared.json").read_text(encoding="utf-8"))
     assert doc["schema_name"] == "interkit_scan_export" and len(doc["points"]) == scan.sizes["distance"]
     assert doc["variables"]["e_int"]["values"][1][2] == pytest.approx(float(scan["e_int"].values[1, 2]))
