@@ -64,6 +64,9 @@ class CurvePanel:
         after every full draw, a zoom or pan included.
     """
 
+    #: CSS class of the shown widget
+    css_class = "interkit-curves"
+
     def __init__(self, ds: xr.Dataset, width: float = 5.8, height: float = 3.9,
                  interactive: bool | None = None):
         self.ds = flatten_dispersion(ds)
@@ -78,17 +81,20 @@ class CurvePanel:
             self.canvas.footer_visible = False
             self.canvas.resizable = False
             self.canvas.toolbar_visible = True
-            self.canvas.toolbar_position = "left"
+            self.canvas.toolbar_position = "top"   # beside the axes it would hide the y label
+            # ipympl keeps a pre-display draw as bare base64 that its page side cannot
+            # load; the page asks for a full image once it is shown, so keep none
+            self.canvas.syncing_data_url = False
             self.image = None
             self.widget = self.canvas
         else:
             self.canvas = FigureCanvasAgg(self.figure)
             self.image = widgets.Image(format="png", layout=widgets.Layout(width=f"{int(width * 90)}px"))
             self.widget = self.image
-        self.widget.add_class("interkit-curves")
+        self.widget.add_class(self.css_class)
         self.ax = self.figure.add_subplot()
         self.limits = widgets.HTML()
-        self.limits.add_class("interkit-curve-limits")
+        self.limits.add_class(self.css_class.replace("curves", "curve") + "-limits")
         self._background = None
         self._markers = []
         self._guide = None

@@ -22,6 +22,8 @@ class ForcePanel(CurvePanel):
     :data:`interkit.units.FORCE_UNITS`); the toggles of the energy view do not apply.
     """
 
+    css_class = "interkit-force-curves"
+
     def _draw(self, unit: str, show_uncorrected: bool, show_bsse: bool) -> None:
         plot_forces(self.ds, ax=self.ax, levels=self.levels, show_fit=True, show_split=False,
                     force_unit=unit)
