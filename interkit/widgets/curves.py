@@ -73,9 +73,9 @@ class CurvePanel:
         self.interactive = ipympl_available() if interactive is None else bool(interactive)
         self.figure = Figure(figsize=(width, height), dpi=90, layout="constrained")
         if self.interactive:
-            from ipympl.backend_nbagg import Canvas, FigureManager
+            from .mpl_canvas import FastCanvas, FigureManager
 
-            self.canvas = Canvas(self.figure)
+            self.canvas = FastCanvas(self.figure)
             self.manager = FigureManager(self.canvas, 0)
             self.canvas.header_visible = False
             self.canvas.footer_visible = False
