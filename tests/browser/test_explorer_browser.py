@@ -100,12 +100,20 @@ def server(request, served):
 def _open_explorer(pg, kind: str, url: str) -> None:
     pg.goto(url, timeout=120_000)
     if kind == "lab":
-        cell = pg.wait_for_selector(".jp-Notebook .jp-Cell .cm-content", timeout=120_000)
-        pg.wait_for_function(
-            "() => { const s = document.querySelector('.jp-Notebook-ExecutionIndicator');"
-            " return !s || s.dataset.status === 'idle'; }", timeout=120_000)
-        cell.click()
-        pg.keyboard.press("Shift+Enter")
+        # run the cell once the notebook and its kernel are ready (the page re-renders meanwhile)
+        for _attempt in range(3):
+            pg.wait_for_selector(".jp-Notebook .jp-Cell .cm-content", timeout=120_000)
+            pg.wait_for_selector(".jp-Spinner", state="detached", timeout=120_000)
+            pg.wait_for_function(
+                "() => { const s = document.querySelector('.jp-Notebook-ExecutionIndicator');"
+                " return !s || s.dataset.status === 'idle'; }", timeout=120_000)
+            try:
+                pg.locator(".jp-Notebook .jp-Cell .cm-content").first.click(timeout=20_000)
+                pg.keyboard.press("Shift+Enter")
+                pg.wait_for_selector(".interkit-explorer", timeout=90_000)
+                break
+            except Exception:  # noqa: BLE001 (a re-rendered page: try again)
+                pg.wait_for_timeout(1000)
     pg.wait_for_selector(".interkit-explorer .interkit-curves canvas", timeout=180_000)
     pg.wait_for_selector(".interkit-curve-limits [data-xlim]", timeout=60_000)
 
