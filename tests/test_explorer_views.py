@@ -266,3 +266,30 @@ def test_launcher_counts_displaced_points_and_leaves_a_core_free():
     displaced = {k for roles in plan.table.values() for role, k in roles.items() if role.endswith(("_plus", "_minus"))}
     assert len(displaced) == 2 * 3 * 3                 # ± step, 3 points, dimer and two ghosted monomers
     assert f"{len(displaced)} of them displaced points" in launcher.estimate.value
+
+
+def test_show_compare_and_report_print_in_the_chosen_units(scan, tmp_path, capsys):
+    from interkit.analysis.comparison import ranking_table
+    from interkit.cli.main import main
+
+    nc = tmp_path / "s.nc"
+    ik.save_scan(scan, nc)
+    assert main(["show", str(nc), "--unit", "kJ/mol", "--force-unit", "kJ/mol/nm"]) == 0
+    out = capsys.readouterr().out
+    row = next(ln for ln in out.splitlines() if ln.startswith("HF/STO-3G") and "analytic" not in ln)
+    depth = {r["level"]: r for r in minimum_table(scan)}["hf/sto-3g"]["well_depth_kcal_per_mol"]
+    assert float(row.split()[2]) == pytest.approx(depth * 4.184, abs=6e-4)     # 1 kcal = 4.184 kJ
+    assert "well depth / kJ/mol" in out and "largest pull / kJ/mol/nm" in out
+    pull = next(ln for ln in out.splitlines() if ln.startswith("HF/STO-3G") and "analytic" in ln)
+    assert float(pull.split()[2]) == pytest.approx(scan["force_along"].values[0].min() * 41.84, abs=6e-4)
+    assert main(["compare", str(nc), "--unit", "kJ/mol"]) == 0
+    out = capsys.readouterr().out
+    rmse = next(r for r in ranking_table(scan, reference_level="hf/sto-3g") if r["level"] != "hf/sto-3g")
+    row = next(ln for ln in out.splitlines() if "B3LYP-D3(BJ)/3-21G" in ln and ln.strip()[:1].isdigit())
+    assert float(row.split()[2]) == pytest.approx(rmse["rmse_kcal_per_mol"] * 4.184, abs=6e-4)
+    assert "errors in kJ/mol" in out
+    with pytest.raises(SystemExit) as stop:        # a usage error: one line, exit status 2
+        main(["show", str(nc), "--unit", "furlongs"])
+    assert stop.value.code == 2 and "--unit: invalid choice: 'furlongs'" in capsys.readouterr().err
+    assert main(["report", str(nc), "-o", str(tmp_path / "r.html"), "--unit", "eV"]) == 0
+    assert "well depth / eV" in (tmp_path / "r.html").read_text(encoding="utf-8")

@@ -2,7 +2,7 @@
 
     interkit rerun scan.nc [-o out.nc] [--cache DIR] [--workers N] [--serial] [--quiet]
     interkit verify scan.nc [--sample N] [--seed S] [--workers N] [--serial] [--quiet]
-    interkit report scan.nc -o report.html [--reference LEVEL]
+    interkit report scan.nc -o report.html [--reference LEVEL] [--unit kJ/mol] [--force-unit kJ/mol/nm]
     interkit export scan.nc -o out.csv|out.json|out.xyz|out.extxyz [--format F] [--unit UNIT] [--level L]
 
 ``rerun`` and ``verify`` exit with status 1 when a number lies outside its tolerance.
@@ -41,6 +41,9 @@ def add_commands(sub, add_run_options) -> None:
     p.add_argument("-o", "--output", required=True, help="HTML file to write")
     p.add_argument("--reference", default=None,
                    help="level used as reference in the comparison (default: the highest level of the scan)")
+    from .output import add_unit_options
+
+    add_unit_options(p)
 
     from ..share.export import FORMATS
 
@@ -107,11 +110,11 @@ def cmd_verify(args) -> int:
 def cmd_report(args) -> int:
     from ..data.schema import open_scan
     from ..share.report import write_report
-    from .output import check_output
+    from .output import check_output, force_unit_of
 
     check_output(args.output, "--output", (".html", ".htm"), "HTML")
     ds = open_scan(args.scan)
-    write_report(ds, args.output, reference=args.reference)
+    write_report(ds, args.output, reference=args.reference, unit=args.unit, force_unit=force_unit_of(args))
     print(f"wrote {args.output}")
     return 0
 
