@@ -58,3 +58,54 @@ def convert_energy(values, from_unit: str = "kcal/mol", to_unit: str = "kcal/mol
     if np.isscalar(values):
         return float(values) * factor
     return np.asarray(values, dtype=float) * factor
+
+
+#: force units offered, as (label, factor from hartree/bohr); built from the energy table
+#: above and the bohr, so energies and forces share one set of CODATA 2018 constants
+FORCE_UNITS: dict[str, float] = {
+    "kcal/mol/angstrom": HARTREE_TO_KCAL_PER_MOL / BOHR_TO_ANGSTROM,
+    "kJ/mol/angstrom": HARTREE_TO_KJ_PER_MOL / BOHR_TO_ANGSTROM,
+    "kJ/mol/nm": HARTREE_TO_KJ_PER_MOL / (BOHR_TO_ANGSTROM / 10.0),
+    "eV/angstrom": HARTREE_TO_EV / BOHR_TO_ANGSTROM,
+    "hartree/bohr": 1.0,
+}
+#: the force unit that goes with each energy unit (a unit switch changes both)
+MATCHING_FORCE_UNIT = {"kcal/mol": "kcal/mol/angstrom", "kJ/mol": "kJ/mol/angstrom",
+                       "eV": "eV/angstrom", "cm-1": "kcal/mol/angstrom", "hartree": "hartree/bohr"}
+#: units as the trade prints them on axes and in tables
+UNIT_TEXT = {"kcal/mol": "kcal mol⁻¹", "kJ/mol": "kJ mol⁻¹", "eV": "eV", "cm-1": "cm⁻¹",
+             "hartree": "Eₕ", "kcal/mol/angstrom": "kcal mol⁻¹ Å⁻¹",
+             "kJ/mol/angstrom": "kJ mol⁻¹ Å⁻¹", "kJ/mol/nm": "kJ mol⁻¹ nm⁻¹",
+             "eV/angstrom": "eV Å⁻¹", "hartree/bohr": "Eₕ a₀⁻¹", "angstrom": "Å"}
+
+
+def convert_force(values, from_unit: str = "kcal/mol/angstrom", to_unit: str = "kcal/mol/angstrom"):
+    """Convert forces between the units of :data:`FORCE_UNITS`.
+
+    Parameters
+    ----------
+    values : float or array-like
+        Forces in ``from_unit``.
+    from_unit, to_unit : str
+        One of ``kcal/mol/angstrom``, ``kJ/mol/angstrom``, ``kJ/mol/nm``,
+        ``eV/angstrom``, ``hartree/bohr``.
+
+    Returns
+    -------
+    float or numpy.ndarray
+        The forces in ``to_unit``.
+    """
+    from .errors import InputError
+
+    for name, unit in (("from_unit", from_unit), ("to_unit", to_unit)):
+        if unit not in FORCE_UNITS:
+            raise InputError(f"{name}: unknown force unit {unit!r}; choose one of {', '.join(FORCE_UNITS)}")
+    factor = FORCE_UNITS[to_unit] / FORCE_UNITS[from_unit]
+    if np.isscalar(values):
+        return float(values) * factor
+    return np.asarray(values, dtype=float) * factor
+
+
+def unit_text(unit: str) -> str:
+    """``unit`` as printed on an axis or a table head (``'kJ/mol'`` -> ``'kJ mol⁻¹'``)."""
+    return UNIT_TEXT.get(unit, unit)

@@ -43,7 +43,7 @@ def test_scan_then_show(tmp_path):
     assert float(ds["e_int"].min()) < -2.0
     shown = _cli("show", str(tmp_path / "scan.nc"))
     assert shown.returncode == 0
-    row = next(line for line in shown.stdout.splitlines() if line.startswith("hf/def2-svp"))
+    row = next(line for line in shown.stdout.splitlines() if line.startswith("HF/def2-SVP"))   # trade spelling of the level
     r_min, depth = (float(x) for x in row.split()[1:3])
     m = ik.analysis.find_minimum(ds["distance"].values, ds["e_int"].values[0])
     assert np.isclose(r_min, m.r_min_angstrom, atol=1e-3) and np.isclose(depth, m.well_depth_kcal_per_mol, atol=1e-3)
@@ -79,7 +79,7 @@ def test_show_reports_where_the_force_vanishes(tmp_path):
     ik.save_scan(ds, tmp_path / "f.nc")
     out = _cli("show", str(tmp_path / "f.nc"))
     assert out.returncode == 0
-    row = next(line for line in out.stdout.splitlines() if line.startswith("hf/sto-3g") and "analytic" in line)
+    row = next(line for line in out.stdout.splitlines() if line.startswith("HF/STO-3G") and "analytic" in line)
     r0 = float(row.split()[1])
     assert r0 == pytest.approx(ik.analysis.force_zero_crossing(ds["distance"].values, ds["force_along"].values[0]),
                                abs=6e-4)  # printed with 3 decimals

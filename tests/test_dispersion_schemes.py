@@ -202,12 +202,12 @@ def test_cli_scan_with_schemes_and_compare(tmp_path, capsys):
     out = tmp_path / "scan.nc"
     assert main(["scan", str(toml), "-o", str(out), "--serial", "--quiet", "--cache", str(tmp_path / "c")]) == 0
     text = capsys.readouterr().out
-    assert "pbe-d3bj/sto-3g" in text and "pbe-d4/sto-3g" in text
+    assert "PBE-D3(BJ)/STO-3G" in text and "PBE-D4/STO-3G" in text   # tables in the trade's spelling
     assert ik.open_scan(out)["e_int"].dims == ("level", "dispersion", "distance")
     assert main(["compare", str(out), "--reference", "hf/sto-3g", "--table", str(tmp_path / "rank.csv")]) == 0
     text = capsys.readouterr().out
-    assert text.splitlines()[0].startswith("reference: hf/sto-3g")
-    assert {"pbe/sto-3g", "pbe-d3bj/sto-3g", "pbe-d4/sto-3g"} <= set(text.split())
+    assert text.splitlines()[0].startswith("reference: HF/STO-3G (--reference hf/sto-3g)")
+    assert {"PBE/STO-3G", "PBE-D3(BJ)/STO-3G", "PBE-D4/STO-3G"} <= set(text.split())
     assert (tmp_path / "rank.csv").read_text().count("\n") == 2 + 3
     assert main(["compare", str(out), "--reference", "ccsd(t)/cbs"]) == 2
     assert "--reference: 'ccsd(t)/cbs' is not a curve" in capsys.readouterr().err

@@ -59,7 +59,7 @@ def test_report_is_self_contained_and_escapes_labels(scan, tmp_path):
     # 2 levels x (4 points x 3 counterpoise calculations + 2 own-basis monomers)
     assert 'calculations with a store key</td><td class="text">28</td>' in text
     # the one rule (model.levels.default_reference): no wavefunction level, so the first curve
-    assert "Reference: <b>hf/sto-3g</b>" in text
+    assert "Reference: <b>HF/STO-3G</b>" in text
 
 
 def test_report_numbers_come_from_the_dataset(scan):
@@ -125,8 +125,13 @@ def test_tidy_csv_converts_energies_and_leaves_missing_values_empty(scan, tmp_pa
     e_int = [r for r in rows if r[col["variable"]] == "e_int"]
     assert e_int[0][col["value"]] == "" and e_int[0][col["unit"]] == "kJ/mol"
     assert float(e_int[1][col["value"]]) == pytest.approx(float(ds["e_int"].values[0, 1]) * 4.184, rel=1e-9)
-    force = next(r for r in rows if r[col["variable"]] == "force_along")
-    assert force[col["unit"]] == "kcal/mol/angstrom"                # only energies change unit
+    force = next(r for r in rows if r[col["variable"]] == "force_along" and r[col["value"]])
+    # forces follow the energy unit (kJ/mol -> kJ/mol/angstrom); 1 kcal = 4.184 kJ exactly
+    # (thermochemical calorie, by definition)
+    assert force[col["unit"]] == "kJ/mol/angstrom"
+    level, r = force[col["level"]], float(force[col["distance_angstrom"]])
+    kcal = float(ds["force_along"].sel(level=level).sel(distance=r, method="nearest"))
+    assert float(force[col["value"]]) == pytest.approx(kcal * 4.184, rel=1e-9)
 
 
 # ---------------------------------------------------------------------- JSON

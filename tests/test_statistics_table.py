@@ -162,20 +162,22 @@ def test_report_and_compare_agree(two_level_scan, tmp_path, capsys, options):
     capsys.readouterr()
     ref_html, rows_html = _report_rows(html.read_text(encoding="utf-8"))
     # the one rule: no wavefunction level in the scan, so the first curve is the reference
-    assert ref_cli == ref_html == "hf/sto-3g"
-    assert rows_cli == rows_html and list(rows_cli) == ["b3lyp/sto-3g"]
+    # (both print levels in the trade's spelling; the Dataset keeps its lowercase labels)
+    assert ref_cli == ref_html == "HF/STO-3G"
+    assert rows_cli == rows_html and list(rows_cli) == ["B3LYP/STO-3G"]
     # and the numbers are those of the table computed directly from the file, by hand for the MAE
     kw = {"region": options[1]} if options[:1] == ["--region"] else {}
     if "--window" in options:
         kw["window_angstrom"] = 0.4
     ds = ik.open_scan(two_level_scan)
     table = comparison_table(ds, relative="--relative" in options, **kw)
-    assert rows_cli["b3lyp/sto-3g"] == [f"{table.rows[0][k]:.3f}" if np.isfinite(table.rows[0][k]) else "–"
+    assert table.reference == "hf/sto-3g"
+    assert rows_cli["B3LYP/STO-3G"] == [f"{table.rows[0][k]:.3f}" if np.isfinite(table.rows[0][k]) else "–"
                                         for k, _, _ in table.columns]
     if not options:
         err = ds["e_int"].sel(level="b3lyp/sto-3g").values - ds["e_int"].sel(level="hf/sto-3g").values
-        assert float(rows_cli["b3lyp/sto-3g"][0]) == pytest.approx(np.abs(err).mean(), abs=5e-4)
-        assert float(rows_cli["b3lyp/sto-3g"][1]) == pytest.approx(err.mean(), abs=5e-4)
+        assert float(rows_cli["B3LYP/STO-3G"][0]) == pytest.approx(np.abs(err).mean(), abs=5e-4)
+        assert float(rows_cli["B3LYP/STO-3G"][1]) == pytest.approx(err.mean(), abs=5e-4)
 
 
 def test_widget_uses_the_same_table(two_level_scan, tmp_path):

@@ -202,7 +202,7 @@ def test_uncorrected_scan_tables_show_and_compare(uncorrected_scan, capsys):
     # the printed well depth is the uncorrected curve's lowest point (2 points: no spline)
     depth = -float(ds["e_int_nocp"].sel(level="hf/sto-3g").min())
     assert f"{depth:.3f}" in show_out
-    row = [ln for ln in compare_out.splitlines() if "hf/sto-3g" in ln and ln.strip()[:1].isdigit()]
+    row = [ln for ln in compare_out.splitlines() if "HF/STO-3G" in ln and ln.strip()[:1].isdigit()]
     assert len(row) == 1, compare_out
     rmse = float(np.sqrt(np.mean((ds["e_int_nocp"].sel(level="hf/sto-3g").values
                                   - ds["e_int_nocp"].sel(level="mp2/sto-3g").values) ** 2)))

@@ -14,7 +14,7 @@ import interkit as ik
 import interkit.widgets as W
 from interkit.data.schema import assemble
 from interkit.run.plan import plan_scan
-from interkit.units import convert_energy
+from interkit.units import convert_energy, unit_text
 from interkit.widgets import viewer3d
 from interkit.widgets.runner import count_calculations
 
@@ -55,12 +55,14 @@ def explorer(scan, tmp_path):
 # ---------------------------------------------------------------------- explorer
 def test_explorer_shows_dataset_with_units_and_caution(explorer, scan):
     assert explorer.slider.max == scan.sizes["distance"] - 1
-    assert explorer.level_select.options == ("all levels", "hf/sto-3g", "hf/3-21g")
+    # values are the Dataset's labels; the choices read in the trade's spelling
+    assert explorer.level_select.options == (("all levels", "all levels"), ("HF/STO-3G", "hf/sto-3g"),
+                                             ("HF/3-21G", "hf/3-21g"))
     assert "kcal/mol" in explorer.readout.value
     assert "Å" in explorer.point_label.value
     texts = " ".join(c.value for c in explorer.children if hasattr(c, "value") and isinstance(c.value, str))
     assert scan.attrs["caution"][:40] in texts
-    assert explorer.curves.image.value[:4] == b"\x89PNG"
+    assert explorer.curves.png()[:4] == b"\x89PNG"
 
 
 def test_slider_moves_marker_and_3d_view(explorer, scan):
@@ -82,7 +84,7 @@ def test_level_selector_limits_curves_and_readout(explorer):
     explorer.level_select.value = "hf/3-21g"
     assert explorer.shown_levels == ["hf/3-21g"]
     assert list(explorer.marker_positions) == ["hf/3-21g"]
-    assert "hf/sto-3g" not in explorer.readout.value
+    assert "HF/STO-3G" not in explorer.readout.value
     explorer.level = "all levels"
     assert set(explorer.marker_positions) == {"hf/sto-3g", "hf/3-21g"}
 
@@ -94,7 +96,7 @@ def test_unit_selector_converts_every_number(explorer, scan, unit):
     y = explorer.marker_positions["hf/sto-3g"][1]
     assert y == pytest.approx(convert_energy(float(scan.e_int.sel(level="hf/sto-3g")[1]), "kcal/mol", unit))
     assert unit in explorer.readout.value
-    assert f"/ {unit}" in explorer.curves.ax.get_ylabel()
+    assert f"/ {unit_text(unit)}" in explorer.curves.ax.get_ylabel()
     with pytest.raises(traitlets.TraitError):
         explorer.unit = "furlongs"
 
@@ -107,7 +109,7 @@ def test_toggles_add_uncorrected_and_bsse_curves(explorer):
     n2 = len(explorer.curves.ax.lines)
     assert n1 == n0 + 2 and n2 == n1 + 2     # one extra curve per level each
     labels = [line.get_label() for line in explorer.curves.ax.lines]
-    assert "hf/sto-3g, uncorrected" in labels and "hf/3-21g, BSSE" in labels
+    assert "HF/STO-3G, uncorrected" in labels and "HF/3-21G, BSSE" in labels
 
 
 def test_exports_are_written_and_readable(explorer, scan, tmp_path):
@@ -148,8 +150,8 @@ def test_share_buttons_write_report_json_and_tidy_csv(explorer, scan, tmp_path):
         assert "wrote" in explorer.export_status.value, kind
     text = (tmp_path / "shared.html").read_text(encoding="utf-8")
     assert "<script" not in text.lower() and scan.attrs["caution"] in text
-    for v in scan["e_int"].sel(level="hf/3-21g").values:     # the report shows the Dataset's numbers
-        assert f"<td>{v:.3f}</td>" in text
+    for v in scan["e_int"].sel(level="hf/3-21g").values:     # the report shows the Dataset's numbers,
+        assert f"<td>{convert_energy(v, 'kcal/mol', 'kJ/mol'):.3f}</td>" in text   # in the display unit
     doc = json.loads((tmp_path / "shared.json").read_text(encoding="utf-8"))
     assert doc["schema_name"] == "interkit_scan_export" and len(doc["points"]) == scan.sizes["distance"]
     assert doc["variables"]["e_int"]["values"][1][2] == pytest.approx(float(scan["e_int"].values[1, 2]))
@@ -196,7 +198,7 @@ def test_slots_show_forces_and_components_when_present(scan):
     assert ex.scene(0)["arrows"]
     assert ex.components.children == (ex._component_image,)
     assert ex._component_image.value[:4] == b"\x89PNG"
-    assert "force along" in ex.readout.value and "kcal/mol/angstrom" in ex.readout.value
+    assert "force along" in ex.readout.value and "kcal mol⁻¹ Å⁻¹" in ex.readout.value
     plain = W.ScanExplorer(scan)
     assert plain.scene(0)["arrows"] == []
     assert "not part of this scan" in plain.components.children[0].value
@@ -336,7 +338,7 @@ def test_explorer_shows_forces_when_the_scan_has_them(tmp_path):
                        factors=[0.9, 1.1, 1.4], levels=["hf/sto-3g"], forces=True)
     ds = ik.run_scan(spec, executor="serial", progress=False)
     ex = W.ScanExplorer(ds)
-    assert ex.force_panel is not None and ex.force_panel.image in ex.children[1].children[1].children
+    assert ex.force_panel is not None and ex.force_panel.widget in ex.children[2].children[1].children
     ex.index = 2
     x, y = ex.force_panel.marker_xy["hf/sto-3g"]
     assert x == pytest.approx(ds["distance"].values[2])
@@ -349,7 +351,7 @@ def test_explorer_shows_forces_when_the_scan_has_them(tmp_path):
     net_b = ds["fragment_force"].values[0, 2, 1]
     start, end = (np.asarray(p) for p in arrows[1])
     assert np.allclose(end - start, FRAGMENT_ARROW_SCALE * net_b, atol=2e-5)
-    assert "kcal/mol/Å" in ex.arrow_legend.value and "per fragment" in ex.arrow_legend.value
+    assert "kcal mol⁻¹ Å⁻¹" in ex.arrow_legend.value and "per fragment" in ex.arrow_legend.value
     ex.arrow_mode.value = "off"
     assert not ex.scene(2).get("arrows")
     assert "force along" in ex.readout.value

@@ -129,3 +129,51 @@ def derivative_force(distance, energy) -> np.ndarray:
     spline = CubicSpline(r[ok][order], e[ok][order], bc_type="natural")
     out[ok] = -spline(r[ok], 1)
     return out
+
+
+def curve_interpolant(distance, values, n: int = 240) -> tuple[np.ndarray, np.ndarray]:
+    """The smooth curve drawn through a scan's points: the natural cubic spline that
+    :func:`find_minimum` and :func:`force_zero_crossing` use, sampled at ``n`` distances
+    between the first and last finite point (same units as the input). Fewer than four
+    finite points give the points themselves (no interpolant)."""
+    r, v = finite_sorted(distance, values)
+    if len(r) < 4:
+        return r, v
+    grid = np.linspace(r[0], r[-1], n)
+    return grid, CubicSpline(r, v, bc_type="natural")(grid)
+
+
+def value_at(distance, values, x: float) -> float:
+    """``values`` at distance ``x`` (angstrom) on the natural cubic spline through the
+    finite points (linear with fewer than four points); NaN outside the sampled range."""
+    r, v = finite_sorted(distance, values)
+    if not np.isfinite(x) or len(r) == 0 or not r[0] <= x <= r[-1]:
+        return float("nan")
+    if len(r) < 4:
+        return float(np.interp(x, r, v))
+    return float(CubicSpline(r, v, bc_type="natural")(x))
+
+
+def headline_table(ds: xr.Dataset, variable: str | None = None) -> list[dict]:
+    """The numbers a scan is opened for, one row per level: the minimum and well depth
+    (:func:`minimum_table`, as ``interkit show`` prints them), where the force along the
+    coordinate vanishes (:func:`force_zero_crossing`; NaN without forces) and the BSSE at
+    the minimum (:func:`value_at` on the ``bsse`` curve; NaN without counterpoise).
+
+    ``variable`` defaults to ``e_int``, or ``e_int_nocp`` for a scan run without
+    counterpoise. Energies in kcal/mol, distances in angstrom.
+    """
+    ds = flatten_dispersion(ds)
+    if variable is None:
+        variable = "e_int_nocp" if ds.attrs.get("counterpoise", "") == "none" else "e_int"
+    r = ds["distance"].values
+    rows = []
+    for row in minimum_table(ds, variable):
+        level = row["level"]
+        force_zero = (force_zero_crossing(r, ds["force_along"].sel(level=level).values)
+                      if "force_along" in ds.variables else float("nan"))
+        bsse = value_at(r, ds["bsse"].sel(level=level).values, row["r_min_angstrom"]) \
+            if "bsse" in ds.variables else float("nan")
+        rows.append(dict(row, variable=variable, force_zero_angstrom=force_zero,
+                         bsse_at_minimum_kcal_per_mol=bsse))
+    return rows

@@ -2,6 +2,7 @@
 
     interkit compare scan.nc [--reference LABEL | --reference-file FILE [--reference-curve LABEL]]
                              [--region all|bound|window] [--window X] [--relative] [--table out.csv]
+                             [--unit kJ/mol]
 
 The reference is a curve of the same scan, named by its folded label (e.g.
 ``mp2/def2-svp`` or ``b3lyp-d3bj/def2-svp``), or an external curve: a CSV file with
@@ -41,6 +42,9 @@ def add_commands(sub) -> None:
     p.add_argument("--relative", action="store_true",
                    help="errors in per cent of |reference| (points with |reference| < 0.1 kcal/mol left out)")
     p.add_argument("--table", metavar="CSV", help="also write the ranking to this CSV file")
+    from .output import add_unit_options
+
+    add_unit_options(p, forces=False)
     p.set_defaults(handler=run_compare)
 
 
@@ -65,29 +69,46 @@ def _table(ds, args):
         raise InputError(text) from None
 
 
-def format_table(table) -> list[str]:
-    """The printed lines of a :class:`~interkit.analysis.comparison.ComparisonTable`."""
-    unit = "per cent of |reference|" if table.relative else "kcal/mol"
-    lines = [f"reference: {table.reference} ({table.chosen_by}); errors in {unit} (curve minus reference); "
+def format_table(table, unit: str = "kcal/mol") -> list[str]:
+    """The printed lines of a :class:`~interkit.analysis.comparison.ComparisonTable`, with
+    energies in ``unit`` (relative errors stay in per cent) and levels in the trade's
+    spelling."""
+    from ..model.level_names import display_label
+
+    shown_unit = "per cent of |reference|" if table.relative else unit
+    reference = display_label(table.reference)
+    if reference != table.reference:
+        reference += f" (--reference {table.reference})"
+    lines = [f"reference: {reference} ({table.chosen_by}); errors in {shown_unit} (curve minus reference); "
              f"ΔR_min in Å",
              f"region: {table.region_text}"]
     if table.variable == "e_int_nocp":
         lines.append("the scan ran without counterpoise correction: the uncorrected curves (e_int_nocp) are compared")
-    width = max([26] + [len(r["curve"]) + 2 for r in table.rows])
+    width = max([26] + [len(display_label(r["curve"])) + 2 for r in table.rows])
     widths = [max(10, len(h) + 2) for _, h, _ in table.columns]
     lines.append(f"{'rank':>4s}  {'curve':<{width}s}"
                  + "".join(f"{h:>{w}s}" for (_, h, _), w in zip(table.columns, widths)) + f"{'points':>8s}")
     for row in table.rows:
-        cells = "".join(f"{row[k]:>{w}.3f}" if row[k] == row[k] else f"{'–':>{w}s}"
+        cells = "".join(f"{_shown(row, k, unit):>{w}.3f}" if row[k] == row[k] else f"{'–':>{w}s}"
                         for (k, _, _), w in zip(table.columns, widths))
-        lines.append(f"{row['rank']:>4d}  {row['curve']:<{width}s}{cells}{row['n_compared']:>8d}"
+        lines.append(f"{row['rank']:>4d}  {display_label(row['curve']):<{width}s}{cells}{row['n_compared']:>8d}"
                      + ("" if row["status"] == "ok" else f"  ({row['status']})"))
     return lines
 
 
+def _shown(row: dict, key: str, unit: str) -> float:
+    """A ranking value in the display unit (energies converted, distances kept)."""
+    from ..units import convert_energy
+
+    value = row[key]
+    return convert_energy(value, "kcal/mol", unit) if key.endswith("_kcal_per_mol") and value == value else value
+
+
 def run_compare(args) -> int:
-    """Print the ranking (kcal/mol or per cent, angstrom); optionally write it as CSV."""
+    """Print the ranking (energies in ``--unit`` or per cent, angstrom); optionally write
+    it as CSV (kcal/mol or per cent: the column names say so)."""
     from ..data.schema import open_scan
+    from ..model.level_names import display_label
 
     if args.table:
         from .output import check_output
@@ -95,13 +116,13 @@ def run_compare(args) -> int:
         check_output(args.table, "--table", (".csv",), "CSV")
     ds = open_scan(args.scan)
     table = _table(ds, args)
-    print("\n".join(format_table(table)))
+    print("\n".join(format_table(table, getattr(args, "unit", "kcal/mol"))))
     if "dispersion_status" in ds.variables:
         for level in ds["level"].values:
             for scheme in ds["dispersion"].values:
                 status = str(ds["dispersion_status"].sel(level=level, dispersion=scheme).values)
                 if status.startswith("unavailable"):
-                    print(f"note: {level} with {scheme}: {status}")
+                    print(f"note: {display_label(str(level))} with {scheme}: {status}")
     print("Note: " + ds.attrs.get("caution", ""))
     if args.table:
         with open(args.table, "w", newline="", encoding="utf-8") as fh:

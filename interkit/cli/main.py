@@ -3,7 +3,7 @@
     interkit scan SPEC.toml -o scan.nc [--workers N] [--cache DIR] [--serial] [--quiet]
                   [--scheduler ADDRESS]
     interkit demo [-o DIR] [--workers N]
-    interkit show scan.nc
+    interkit show scan.nc [--unit kJ/mol] [--force-unit kJ/mol/nm]
     interkit systems
     interkit store info DIR | interkit store prune DIR --max-size 500MB
     interkit rerun scan.nc [-o out.nc] [--cache DIR] [--workers N]   # same spec, compare with the file
@@ -64,6 +64,9 @@ def _build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("show", help="print the minimum position and well depth of every level "
                                     "(and the SAPT0 components, if computed)")
     p.add_argument("scan", help="netCDF scan file")
+    from .output import add_unit_options
+
+    add_unit_options(p)
 
     sub.add_parser("systems", help="list the bundled demo dimers")
 
@@ -118,43 +121,53 @@ def _add_run_options(p, default_cache=_STORE_RULE) -> None:
                         "first worker (default 60) before giving up with an error")
 
 
-def _energy_table(ds) -> str:
+def _energy_table(ds, unit: str = "kcal/mol") -> str:
     from ..data.dispersion import flatten_dispersion
+    from ..model.level_names import display_label
+    from ..units import convert_energy
 
     ds = flatten_dispersion(ds)
     variable, kind = _energy_variable(ds)
     levels = [str(x) for x in ds["level"].values]
-    width = max(14, *(len(lv) + 2 for lv in levels))
-    head = f"{'R / Å':>8s}  " + "".join(f"{lv:>{width}s}" for lv in levels)
-    lines = [f"interaction energy, {kind} (kcal/mol)", head]
+    width = max(14, *(len(display_label(lv)) + 2 for lv in levels))
+    head = f"{'R / Å':>8s}  " + "".join(f"{display_label(lv):>{width}s}" for lv in levels)
+    lines = [f"interaction energy, {kind} ({unit})", head]
     for i, r in enumerate(ds["distance"].values):
         cells = []
         for lv in levels:
-            v = float(ds[variable].sel(level=lv).values[i])
+            v = convert_energy(float(ds[variable].sel(level=lv).values[i]), "kcal/mol", unit)
             st = str(ds["status"].sel(level=lv).values[i])
             cells.append(f"{'failed':>{width}s}" if st == "failed" else f"{v:>{width}.3f}")
         lines.append(f"{r:8.3f}  " + "".join(cells))
     return "\n".join(lines)
 
 
-def _minimum_report(ds) -> str:
+def _minimum_report(ds, unit: str = "kcal/mol", force_unit: str = "kcal/mol/angstrom") -> str:
     from ..data.dispersion import flatten_dispersion
 
     ds = flatten_dispersion(ds)
-    from ..analysis.minima import minimum_table
+    from ..analysis.minima import headline_table
+    from ..model.level_names import display_label
+    from ..units import convert_energy
 
     variable, kind = _energy_variable(ds)
+    depth_head, bsse_head = f"well depth / {unit}", f"BSSE at R_min / {unit}"
+    width = max([28] + [len(display_label(str(lv))) + 1 for lv in ds["level"].values])
     lines = [f"scan: {ds.attrs.get('title', '')}",
              f"coordinate: {ds['distance'].attrs.get('long_name', '')}; counterpoise: {ds.attrs.get('counterpoise')}",
-             f"minimum and well depth of the {kind} interaction energy ({variable})",
-             f"{'level':<28s} {'R_min / Å':>10s} {'well depth / kcal/mol':>22s}  note"]
-    for row in minimum_table(ds, variable):
+             f"minimum and well depth of the {kind} interaction energy ({variable}), from a natural "
+             "cubic spline through the points",
+             f"{'level':<{width}s} {'R_min / Å':>10s} {depth_head:>22s} {bsse_head:>24s}  note"]
+    for row in headline_table(ds, variable):
         note = [] if row["interior"] else ["minimum at the edge of the grid"]
         if row["failed_points"]:
             note.append(f"{row['failed_points']} failed point(s)")
-        lines.append(f"{row['level']:<28s} {row['r_min_angstrom']:>10.3f} "
-                     f"{row['well_depth_kcal_per_mol']:>22.3f}  {'; '.join(note)}")
-    lines.extend(_force_report(ds))
+        depth = convert_energy(row["well_depth_kcal_per_mol"], "kcal/mol", unit)
+        bsse = convert_energy(row["bsse_at_minimum_kcal_per_mol"], "kcal/mol", unit)
+        bsse_text = f"{bsse:>24.3f}" if bsse == bsse else f"{'–':>24s}"
+        lines.append(f"{display_label(row['level']):<{width}s} {row['r_min_angstrom']:>10.3f} "
+                     f"{depth:>22.3f} {bsse_text}  {'; '.join(note)}")
+    lines.extend(_force_report(ds, force_unit, width))
     from ..data.sapt0 import decomposition_report
 
     lines.extend(decomposition_report(ds))
@@ -186,18 +199,29 @@ def _failed_points(ds) -> list[str]:
     return lines
 
 
-def _force_report(ds) -> list[str]:
-    """Where the net force along the coordinate vanishes, per level (if the scan has forces)."""
+def _force_report(ds, force_unit: str = "kcal/mol/angstrom", width: int = 28) -> list[str]:
+    """Where the net force along the coordinate vanishes, and the largest attractive
+    force, per level (if the scan has forces)."""
     if "force_along" not in ds.variables:
         return []
-    from ..analysis.minima import force_zero_crossing
+    import numpy as np
 
-    lines = [f"{'level':<28s} {'force zero / Å':>14s}  forces from"]
+    from ..analysis.minima import force_zero_crossing
+    from ..model.level_names import display_label
+    from ..units import convert_force
+
+    stored = ds["force_along"].attrs.get("units", "kcal/mol/angstrom")
+    pull_head = f"largest pull / {force_unit}"
+    lines = [f"{'level':<{width}s} {'force zero / Å':>14s} {pull_head:>28s}  forces from"]
     for level in ds["level"].values:
-        r0 = force_zero_crossing(ds["distance"].values, ds["force_along"].sel(level=level).values)
+        f = ds["force_along"].sel(level=level).values
+        r0 = force_zero_crossing(ds["distance"].values, f)
         method = str(ds["force_method"].sel(level=level).values)
         text = f"{r0:>14.3f}" if r0 == r0 else f"{'no sign change':>14s}"
-        lines.append(f"{str(level):<28s} {text}  {method}")
+        finite = f[np.isfinite(f)]
+        pull = convert_force(float(finite.min()), stored, force_unit) if finite.size else float("nan")
+        pull_text = f"{pull:>28.3f}" if pull == pull and pull < 0 else f"{'–':>28s}"
+        lines.append(f"{display_label(str(level)):<{width}s} {text} {pull_text}  {method}")
     return lines
 
 
@@ -292,7 +316,9 @@ def _cmd_show(args) -> int:
     from ..data.schema import open_scan
 
     ds = open_scan(args.scan)
-    print(_minimum_report(ds))
+    from .output import force_unit_of
+
+    print(_minimum_report(ds, args.unit, force_unit_of(args)))
     return 0
 
 

@@ -110,3 +110,22 @@ def internal_error(exc: BaseException) -> int:
 def check_scan_output(path: str) -> None:
     """Check the ``--output`` netCDF path of a command that writes a scan."""
     check_output(path, "--output", (".nc",), "netCDF")
+
+
+def add_unit_options(p, forces: bool = True) -> None:
+    """``--unit`` (energies) and, with ``forces``, ``--force-unit`` on a sub-command parser."""
+    from ..units import ENERGY_UNITS, FORCE_UNITS
+
+    p.add_argument("--unit", default="kcal/mol", choices=list(ENERGY_UNITS),
+                   help="energy unit of the printed tables (default: %(default)s)")
+    if forces:
+        p.add_argument("--force-unit", default=None, choices=list(FORCE_UNITS),
+                       help="force unit of the printed tables (default: the one matching --unit, "
+                            "kcal/mol/angstrom with kcal/mol and cm-1)")
+
+
+def force_unit_of(args) -> str:
+    """The ``--force-unit`` of ``args``, or the one matching its ``--unit``."""
+    from ..units import MATCHING_FORCE_UNIT
+
+    return getattr(args, "force_unit", None) or MATCHING_FORCE_UNIT[getattr(args, "unit", "kcal/mol")]

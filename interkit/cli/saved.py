@@ -2,7 +2,7 @@
 
     interkit rerun scan.nc [-o out.nc] [--cache DIR] [--workers N] [--serial] [--quiet]
     interkit verify scan.nc [--sample N] [--seed S] [--workers N] [--serial] [--quiet]
-    interkit report scan.nc -o report.html [--reference LEVEL]
+    interkit report scan.nc -o report.html [--reference LEVEL] [--unit kJ/mol] [--force-unit kJ/mol/nm]
     interkit export scan.nc -o out.csv|out.json|out.xyz|out.extxyz [--format F] [--unit UNIT] [--level L]
 
 ``rerun`` and ``verify`` exit with status 1 when a number lies outside its tolerance.
@@ -49,6 +49,9 @@ def add_commands(sub, add_run_options) -> None:
     p.add_argument("--window", metavar="ANGSTROM", type=float, default=None,
                    help="half-width of --region window in angstrom (default 0.5)")
     p.add_argument("--relative", action="store_true", help="errors in per cent of |reference|")
+    from .output import add_unit_options
+
+    add_unit_options(p)
 
     from ..share.export import FORMATS
 
@@ -57,6 +60,8 @@ def add_commands(sub, add_run_options) -> None:
     p.add_argument("-o", "--output", required=True, help="file to write (.csv, .json, .xyz or .extxyz)")
     p.add_argument("--format", choices=FORMATS, default=None, help="csv, json, xyz or extxyz (default: from the suffix)")
     p.add_argument("--unit", default="kcal/mol", help="energy unit of the CSV (default: %(default)s)")
+    p.add_argument("--force-unit", default=None,
+                   help="force unit of the CSV (default: the one matching --unit)")
     p.add_argument("--level", default=None, help="extxyz: curve whose energy and forces are written")
 
 
@@ -113,12 +118,12 @@ def cmd_verify(args) -> int:
 def cmd_report(args) -> int:
     from ..data.schema import open_scan
     from ..share.report import write_report
-    from .output import check_output
+    from .output import check_output, force_unit_of
 
     check_output(args.output, "--output", (".html", ".htm"), "HTML")
     ds = open_scan(args.scan)
     write_report(ds, args.output, reference=args.reference, region=args.region, window_angstrom=args.window,
-                 relative=args.relative)
+                 relative=args.relative, unit=args.unit, force_unit=force_unit_of(args))
     print(f"wrote {args.output}")
     return 0
 
@@ -131,7 +136,7 @@ def cmd_export(args) -> int:
     export_format(args.output, args.format, ("--output", "--format"))   # check before reading the scan
     check_output(args.output, "--output", tuple(f".{f}" for f in FORMATS) if args.format is None else ("",), "export")
     ds = open_scan(args.scan)
-    export_scan(ds, args.output, args.format, args.unit, level=args.level)
+    export_scan(ds, args.output, args.format, args.unit, level=args.level, force_unit=args.force_unit)
     print(f"wrote {args.output}")
     return 0
 

@@ -13,6 +13,10 @@ eV                     ``_ev``                     ``e_int_ev``
 cm-1                   ``_per_cm``                 ``e_int_per_cm``
 hartree                ``_hartree``                ``e_int_hartree``
 kcal/mol/angstrom      ``_kcal_per_mol_per_angstrom``  ``force_along_kcal_per_mol_per_angstrom``
+kJ/mol/angstrom        ``_kj_per_mol_per_angstrom``    ``force_along_kj_per_mol_per_angstrom``
+kJ/mol/nm              ``_kj_per_mol_per_nm``          ``force_along_kj_per_mol_per_nm``
+eV/angstrom            ``_ev_per_angstrom``            ``force_along_ev_per_angstrom``
+hartree/bohr           ``_hartree_per_bohr``           ``force_along_hartree_per_bohr``
 second                 ``_s``                      ``wall_time_s``
 =====================  ==========================  =====================================
 
@@ -48,6 +52,10 @@ UNIT_SUFFIXES = {
     "cm-1": "per_cm",
     "hartree": "hartree",
     "kcal/mol/angstrom": "kcal_per_mol_per_angstrom",
+    "kJ/mol/angstrom": "kj_per_mol_per_angstrom",
+    "kJ/mol/nm": "kj_per_mol_per_nm",
+    "eV/angstrom": "ev_per_angstrom",
+    "hartree/bohr": "hartree_per_bohr",
     "s": "s",
 }
 _NAME = re.compile(r"^[a-z][a-z0-9]*(_[a-z0-9]+)*$")
@@ -78,6 +86,13 @@ def energy_columns(header: list[str], stem: str = "e_int") -> dict[str, str]:
     from ..units import ENERGY_UNITS
 
     return {column_name(stem, u): u for u in ENERGY_UNITS if column_name(stem, u) in header}
+
+
+def force_columns(header: list[str], stem: str = "force_along") -> dict[str, str]:
+    """Columns of ``header`` holding ``stem`` in a force unit: column -> unit."""
+    from ..units import FORCE_UNITS
+
+    return {column_name(stem, u): u for u in FORCE_UNITS if column_name(stem, u) in header}
 
 
 def _rows(p: Path) -> list[tuple[int, list[str]]]:

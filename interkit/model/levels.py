@@ -13,13 +13,12 @@ from functools import lru_cache
 import numpy as np
 
 from ..errors import InputError
+from .level_names import DISPERSION_LABELS, display_label  # noqa: F401 (display_label: public here)
 
 WAVEFUNCTION_METHODS = ("hf", "mp2", "scs-mp2", "ccsd(t)")
 #: post-hoc dispersion corrections: two-body D3 with zero or Becke–Johnson damping, D4;
 #: the ``-atm`` variants add the three-body Axilrod–Teller–Muto term
 DISPERSION_SCHEMES = ("d3zero", "d3bj", "d4", "d3zero-atm", "d3bj-atm", "d4-atm")
-DISPERSION_LABELS = {"d3zero": "D3(0)", "d3bj": "D3(BJ)", "d4": "D4", "d3zero-atm": "D3(0)+ATM",
-                     "d3bj-atm": "D3(BJ)+ATM", "d4-atm": "D4+ATM"}
 #: functionals with their own nonlocal (VV10-type) correlation: no post-hoc correction
 NONLOCAL_FUNCTIONALS = ("wb97m-v", "wb97x-v", "b97m-v", "vv10", "lc-vv10", "scan-rvv10")
 

@@ -7,8 +7,8 @@ import xarray as xr
 
 from ..analysis.comparison import resolve_reference
 from ..data.dispersion import flatten_dispersion
-from ..units import convert_energy
-from .curves import LEVEL_COLOURS, plain_text
+from ..units import convert_energy, unit_text
+from .style import LEVEL_COLOURS, energy_axis_label, legend_label
 
 REFERENCE_COLOUR = "#1c1c1c"
 #: line styles of the schemes, so colours can stay with the functional
@@ -84,19 +84,19 @@ def plot_comparison(ds: xr.Dataset, reference_level: str | None = None, referenc
             heads.append(base)
         colour = LEVEL_COLOURS[heads.index(base) % len(LEVEL_COLOURS)]
         shown = convert_energy(values, "kcal/mol", unit)
-        ax_curve.plot(r, shown, color=colour, ls=style, lw=1.6, marker="o", ms=3, label=plain_text(label))
+        ax_curve.plot(r, shown, color=colour, ls=style, lw=1.6, marker="o", ms=3, label=legend_label(label))
         err = convert_energy(values - ref, "kcal/mol", unit)
-        ax_err.plot(r, err, color=colour, ls=style, lw=1.6, marker="o", ms=3, label=plain_text(label))
+        ax_err.plot(r, err, color=colour, ls=style, lw=1.6, marker="o", ms=3, label=legend_label(label))
     ax_curve.plot(r, convert_energy(ref, "kcal/mol", unit), color=REFERENCE_COLOUR, lw=2.4, ls="solid",
-                  marker="s", ms=3.5, label=plain_text(f"reference: {ref_label}"), zorder=5)
+                  marker="s", ms=3.5, label="reference: " + legend_label(ref_label), zorder=5)
     ax_curve.axhline(0.0, color="#8a8a8a", lw=0.8)
     ax_err.axhline(0.0, color=REFERENCE_COLOUR, lw=1.2)
     xlabel = f"{ds['distance'].attrs.get('long_name', 'distance')} / Å"
     for ax in (ax_curve, ax_err):
         ax.set_xlabel(xlabel, fontsize=8)
         ax.tick_params(labelsize=7)
-    ax_curve.set_ylabel(f"interaction energy / {unit}", fontsize=8)
-    ax_err.set_ylabel(f"curve − reference / {unit}", fontsize=8)
+    ax_curve.set_ylabel(energy_axis_label(unit), fontsize=8)
+    ax_err.set_ylabel(f"curve − reference / {unit_text(unit)}", fontsize=8)
     ax_curve.set_title("curves and reference", fontsize=9)
     ax_err.set_title("error against the reference", fontsize=9)
     finite = ref[np.isfinite(ref)]

@@ -9,7 +9,7 @@ from ..data.dispersion import flatten_dispersion
 from ..data.sapt0 import COMPONENT_NAMES, COMPONENTS, has_decomposition
 from ..errors import InputError
 from ..units import convert_energy
-from .curves import plain_text
+from .style import energy_axis_label, legend_label
 
 #: our own colours of the four components and the total
 COMPONENT_COLOURS = {
@@ -65,14 +65,14 @@ def plot_components(ds: xr.Dataset, ax=None, unit: str = "kcal/mol", show_total:
         if level not in [str(x) for x in ds["level"].values]:
             raise InputError(f"level: {level!r} is not a level of this scan")
         e = convert_energy(ds["e_int"].sel(level=level).values, "kcal/mol", unit)
-        ax.plot(r, e, "--", color="#8c8c8c", lw=1.4, label=plain_text(f"{level} (CP)"))
+        ax.plot(r, e, "--", color="#8c8c8c", lw=1.4, label=legend_label(level) + " (CP)")
     if "sapt_status" in ds.variables:
         for x in r[ds["sapt_status"].values == "failed"]:
             ax.axvline(x, color="#c2492d", alpha=0.18, lw=6)
     ax.axhline(0.0, color="#888888", lw=0.8)
     basis = ds.attrs.get("decomposition_basis", "")
     ax.set_xlabel(f"{ds['distance'].attrs.get('long_name', 'distance')} / Å")
-    ax.set_ylabel(f"SAPT0 component / {unit}")
+    ax.set_ylabel(energy_axis_label(unit, "SAPT0 component"))
     ax.set_title(f"SAPT0/{basis} decomposition" if basis else "SAPT0 decomposition", fontsize=10)
     ax.legend(frameon=False, fontsize=8)
     return ax

@@ -6,10 +6,19 @@ import numpy as np
 import xarray as xr
 
 from ..data.dispersion import flatten_dispersion
-from ..units import convert_energy
+from ..units import MATCHING_FORCE_UNIT, convert_energy, convert_force
+from .style import (
+    BSSE_LINESTYLE,
+    LEVEL_COLOURS,
+    MINIMUM_MARKER,
+    UNCORRECTED_LINESTYLE,
+    energy_axis_label,
+    force_axis_label,
+    legend_label,
+    level_style,
+)
 
-#: our own palette for levels of theory (colour-blind-safe order)
-LEVEL_COLOURS = ("#1b6f8a", "#c4581b", "#5b8c2a", "#7a4fa3", "#a8324a", "#3c3c3c")
+__all__ = ["LEVEL_COLOURS", "plain_text", "plot_curves", "plot_forces", "curve_values", "default_ylim"]
 
 
 def plain_text(text: object) -> str:
@@ -18,9 +27,45 @@ def plain_text(text: object) -> str:
     return str(text).replace("\\$", "$").replace("$", "\\$")
 
 
+def curve_values(ds: xr.Dataset, level: str, unit: str = "kcal/mol") -> tuple[np.ndarray, str]:
+    """The energies drawn for ``level`` in ``unit``, and their variable: the
+    counterpoise-corrected ``e_int``, or ``e_int_nocp`` when no counterpoise was computed."""
+    e = convert_energy(ds["e_int"].sel(level=level).values, "kcal/mol", unit)
+    if np.all(np.isnan(e)):
+        return convert_energy(ds["e_int_nocp"].sel(level=level).values, "kcal/mol", unit), "e_int_nocp"
+    return e, "e_int"
+
+
+def default_ylim(values: np.ndarray) -> tuple[float, float] | None:
+    """The y range that shows the well: from a little below the lowest value to a
+    fraction of the depth above zero (the repulsive wall is cut off)."""
+    finite = np.asarray(values, dtype=float)
+    finite = finite[np.isfinite(finite)]
+    if not finite.size:
+        return None
+    lo = float(finite.min())
+    span = max(abs(lo), 1e-6)
+    return lo - 0.15 * span, max(0.6 * span, 0.2 * span + float(np.median(finite)))
+
+
+def full_ylim(values: np.ndarray) -> tuple[float, float] | None:
+    """The y range that shows every value (the repulsive wall included)."""
+    finite = np.asarray(values, dtype=float)
+    finite = finite[np.isfinite(finite)]
+    if not finite.size:
+        return None
+    lo, hi = float(finite.min()), float(finite.max())
+    pad = 0.05 * max(hi - lo, 1e-6)
+    return lo - pad, hi + pad
+
+
 def plot_curves(ds: xr.Dataset, ax=None, unit: str = "kcal/mol", show_uncorrected: bool = False,
-                show_bsse: bool = False, selected: float | None = None, levels=None):
+                show_bsse: bool = False, selected: float | None = None, levels=None,
+                show_minimum: bool = True, ylim: tuple[float, float] | str | None = None):
     """Interaction energy against the scan coordinate, one curve per level.
+
+    Each level is drawn as its computed points joined by the natural cubic spline that
+    :func:`interkit.analysis.minima.find_minimum` uses, with that minimum marked.
 
     Parameters
     ----------
@@ -37,33 +82,47 @@ def plot_curves(ds: xr.Dataset, ax=None, unit: str = "kcal/mol", show_uncorrecte
         Distance (angstrom) of a point to mark on every curve.
     levels : sequence of str, optional
         Subset of levels to draw.
+    show_minimum : bool
+        Mark the interpolated minimum of every curve (a star).
+    ylim : (float, float) or 'wall', optional
+        Energy-axis range in ``unit``; ``'wall'`` shows every value (the repulsive wall);
+        default: the range that shows the well (:func:`default_ylim`).
 
     Returns
     -------
     matplotlib.axes.Axes
     """
+    from ..analysis.minima import curve_interpolant, find_minimum
+
     ds = flatten_dispersion(ds)
     import matplotlib.pyplot as plt
 
     if ax is None:
         _, ax = plt.subplots(figsize=(6.4, 4.2))
     r = ds["distance"].values
-    chosen = list(levels) if levels is not None else [str(x) for x in ds["level"].values]
+    all_levels = [str(x) for x in ds["level"].values]
+    chosen = list(levels) if levels is not None else all_levels
     drawn = []
-    for k, level in enumerate(chosen):
-        colour = LEVEL_COLOURS[k % len(LEVEL_COLOURS)]
-        e = convert_energy(ds["e_int"].sel(level=level).values, "kcal/mol", unit)
-        if np.all(np.isnan(e)):
-            e = convert_energy(ds["e_int_nocp"].sel(level=level).values, "kcal/mol", unit)
-        ax.plot(r, e, "o-", color=colour, lw=1.8, ms=4, label=plain_text(f"{level}"))
+    for level in chosen:
+        st = level_style(all_levels.index(level) if level in all_levels else chosen.index(level))
+        colour = st["color"]
+        e, _ = curve_values(ds, level, unit)
+        xs, ys = curve_interpolant(r, e)
+        ax.plot(xs, ys, color=colour, ls=st["ls"], lw=1.8, label=legend_label(level))
+        ax.plot(r, e, ls="none", marker=st["marker"], ms=4.5, color=colour, mec="white", mew=0.6, zorder=3)
         drawn.append(e)
+        if show_minimum:   # the spline is linear in E: its minimum in any unit is the same point
+            m = find_minimum(r, e)
+            if m.interior:
+                ax.plot([m.r_min_angstrom], [m.e_min_kcal_per_mol], ls="none", marker=MINIMUM_MARKER, ms=12,
+                        color=colour, mec="black", mew=0.7, zorder=4, gid="interkit-minimum")
         if show_uncorrected:
             e2 = convert_energy(ds["e_int_nocp"].sel(level=level).values, "kcal/mol", unit)
-            ax.plot(r, e2, "--", color=colour, lw=1.2, label=plain_text(f"{level}, uncorrected"))
+            ax.plot(r, e2, ls=UNCORRECTED_LINESTYLE, color=colour, lw=1.2, label=legend_label(level, "uncorrected"))
             drawn.append(e2)
         if show_bsse:
             b = convert_energy(ds["bsse"].sel(level=level).values, "kcal/mol", unit)
-            ax.plot(r, b, ":", color=colour, lw=1.2, label=plain_text(f"{level}, BSSE"))
+            ax.plot(r, b, ls=BSSE_LINESTYLE, color=colour, lw=1.2, label=legend_label(level, "BSSE"))
         failed = ds["status"].sel(level=level).values == "failed"
         for x in r[failed]:
             ax.axvline(x, color=colour, alpha=0.25, lw=6)
@@ -72,18 +131,17 @@ def plot_curves(ds: xr.Dataset, ax=None, unit: str = "kcal/mol", show_uncorrecte
             ax.plot([r[i]], [e[i]], marker="D", ms=9, mfc="none", mec=colour, mew=2, zorder=5)
     ax.axhline(0.0, color="#888888", lw=0.8)
     ax.set_xlabel(f"{ds['distance'].attrs.get('long_name', 'distance')} / Å")
-    ax.set_ylabel(f"interaction energy / {unit}")
+    ax.set_ylabel(energy_axis_label(unit))
     ax.legend(frameon=False, fontsize=8)
-    finite = np.concatenate(drawn) if drawn else np.array([])
-    finite = finite[np.isfinite(finite)]
-    if finite.size:
-        lo = float(finite.min())
-        span = max(abs(lo), 1e-6)
-        ax.set_ylim(lo - 0.15 * span, max(0.6 * span, 0.2 * span + float(np.median(finite))))
+    values = np.concatenate(drawn) if drawn else np.array([])
+    limits = ylim if isinstance(ylim, tuple) else (full_ylim(values) if ylim == "wall" else default_ylim(values))
+    if limits is not None:
+        ax.set_ylim(*limits)
     return ax
 
 
-def plot_forces(ds: xr.Dataset, ax=None, levels=None, show_fit: bool = True, show_split: bool = False):
+def plot_forces(ds: xr.Dataset, ax=None, levels=None, show_fit: bool = True, show_split: bool = False,
+                force_unit: str = "kcal/mol/angstrom", unit: str | None = None):
     """Net force on fragment B along the scan coordinate (positive = repulsive).
 
     Parameters
@@ -97,6 +155,11 @@ def plot_forces(ds: xr.Dataset, ax=None, levels=None, show_fit: bool = True, sho
         lie on the analytic force.
     show_split : bool
         Also draw the electrostatic (Hellmann–Feynman) force and the Pulay remainder.
+    force_unit : str
+        Display unit of the forces (a key of :data:`interkit.units.FORCE_UNITS`).
+    unit : str, optional
+        An energy unit: when given, the force unit that goes with it
+        (:data:`interkit.units.MATCHING_FORCE_UNIT`) replaces ``force_unit``.
 
     Returns
     -------
@@ -111,27 +174,36 @@ def plot_forces(ds: xr.Dataset, ax=None, levels=None, show_fit: bool = True, sho
         raise ValueError("dataset: no forces (run the scan with forces=True)")
     if ax is None:
         _, ax = plt.subplots(figsize=(6.4, 4.2))
+    if unit is not None:
+        force_unit = MATCHING_FORCE_UNIT.get(unit, force_unit)
+    stored = ds["force_along"].attrs.get("units", "kcal/mol/angstrom")
+
+    def conv(values):
+        return convert_force(values, stored, force_unit)
+
     r = ds["distance"].values
-    chosen = list(levels) if levels is not None else [str(x) for x in ds["level"].values]
-    for k, level in enumerate(chosen):
-        colour = LEVEL_COLOURS[k % len(LEVEL_COLOURS)]
-        f = ds["force_along"].sel(level=level).values
-        ax.plot(r, f, "o-", color=colour, lw=1.8, ms=4, label=plain_text(f"{level}"))
+    all_levels = [str(x) for x in ds["level"].values]
+    chosen = list(levels) if levels is not None else all_levels
+    for level in chosen:
+        st = level_style(all_levels.index(level) if level in all_levels else chosen.index(level))
+        colour = st["color"]
+        f = conv(ds["force_along"].sel(level=level).values)
+        ax.plot(r, f, ls=st["ls"], marker=st["marker"], color=colour, lw=1.8, ms=4, label=legend_label(level))
         zero = force_zero_crossing(r, f)
         if np.isfinite(zero):
             ax.plot([zero], [0.0], marker="|", ms=16, mew=2.5, color=colour)
             ax.annotate(f"{zero:.3f} Å", (zero, 0.0), textcoords="offset points", xytext=(4, 6),
                         color=colour, fontsize=8)
         if show_fit:
-            ax.plot(r, derivative_force(r, ds["e_int"].sel(level=level).values), "--", color=colour,
-                    lw=1.1, label=plain_text(f"{level}, −dE/dR of a spline fit"))
+            ax.plot(r, conv(derivative_force(r, ds["e_int"].sel(level=level).values)), "--", color=colour,
+                    lw=1.1, label=legend_label(level, "−dE/dR of a spline fit"))
         if show_split and "force_hf_along" in ds.variables:
-            ax.plot(r, ds["force_hf_along"].sel(level=level).values, ":", color=colour, lw=1.4,
-                    label=plain_text(f"{level}, electrostatic (Hellmann–Feynman)"))
-            ax.plot(r, ds["force_pulay_along"].sel(level=level).values, "-.", color=colour, lw=1.1,
-                    label=plain_text(f"{level}, Pulay"))
+            ax.plot(r, conv(ds["force_hf_along"].sel(level=level).values), ":", color=colour, lw=1.4,
+                    label=legend_label(level, "electrostatic (Hellmann–Feynman)"))
+            ax.plot(r, conv(ds["force_pulay_along"].sel(level=level).values), "-.", color=colour, lw=1.1,
+                    label=legend_label(level, "Pulay"))
     ax.axhline(0.0, color="#888888", lw=0.8)
     ax.set_xlabel(f"{ds['distance'].attrs.get('long_name', 'distance')} / Å")
-    ax.set_ylabel("force on B along the coordinate / kcal/mol/Å  (+ repulsive)")
+    ax.set_ylabel(force_axis_label(force_unit))
     ax.legend(frameon=False, fontsize=8)
     return ax

@@ -33,7 +33,15 @@ import numpy as np
 import xarray as xr
 
 from ..errors import InputError
-from ..units import ANGSTROM_TO_BOHR, CODATA_EDITION, ENERGY_UNITS, convert_energy
+from ..units import (
+    ANGSTROM_TO_BOHR,
+    CODATA_EDITION,
+    ENERGY_UNITS,
+    FORCE_UNITS,
+    MATCHING_FORCE_UNIT,
+    convert_energy,
+    convert_force,
+)
 
 EXPORT_SCHEMA_NAME = "interkit_scan_export"
 EXPORT_SCHEMA_VERSION = 1
@@ -85,7 +93,8 @@ def _pair_status(ds: xr.Dataset, var: xr.DataArray) -> np.ndarray | None:
     return np.asarray(ds["dispersion_status"].transpose("level", "dispersion").values).astype(str)
 
 
-def tidy_rows(ds: xr.Dataset, unit: str = "kcal/mol") -> tuple[list[str], list[list[str]]]:
+def tidy_rows(ds: xr.Dataset, unit: str = "kcal/mol",
+              force_unit: str | None = None) -> tuple[list[str], list[list[str]]]:
     """Header and rows of the tidy table (strings; missing values are empty).
 
     Parameters
@@ -94,8 +103,14 @@ def tidy_rows(ds: xr.Dataset, unit: str = "kcal/mol") -> tuple[list[str], list[l
         A scan Dataset.
     unit : str
         Unit of the energies (variables in kcal/mol are converted; others keep theirs).
+    force_unit : str, optional
+        Unit of the forces (variables in kcal/mol/angstrom are converted); default: the
+        one matching ``unit`` (:data:`interkit.units.MATCHING_FORCE_UNIT`).
     """
     _check_unit(unit)
+    force_unit = force_unit or MATCHING_FORCE_UNIT.get(unit, "kcal/mol/angstrom")
+    if force_unit not in FORCE_UNITS:
+        raise InputError(f"force_unit: {force_unit!r} is not one of {', '.join(FORCE_UNITS)}")
     has_disp = "dispersion" in ds.dims
     header = ["level"] + (["dispersion"] if has_disp else []) + [
         "distance_angstrom", "factor", "variable", "value", "unit", "status"]
@@ -108,6 +123,8 @@ def tidy_rows(ds: xr.Dataset, unit: str = "kcal/mol") -> tuple[list[str], list[l
         values = np.asarray(var.values, dtype=float)
         if units == "kcal/mol":
             values, units = convert_energy(values, "kcal/mol", unit), unit
+        elif units in FORCE_UNITS:
+            values, units = convert_force(values, units, force_unit), force_unit
         status = _status_of(ds, name)
         status_values = np.asarray(status.values).astype(str) if status is not None else None
         pair = _pair_status(ds, var)
@@ -128,11 +145,12 @@ def tidy_rows(ds: xr.Dataset, unit: str = "kcal/mol") -> tuple[list[str], list[l
     return header, rows
 
 
-def write_tidy_csv(ds: xr.Dataset, path: str | os.PathLike, unit: str = "kcal/mol") -> str:
+def write_tidy_csv(ds: xr.Dataset, path: str | os.PathLike, unit: str = "kcal/mol",
+                   force_unit: str | None = None) -> str:
     """Write the tidy table of :func:`tidy_rows` to ``path``; return the path."""
     path = os.fspath(path)
     _check_folder(path)
-    header, rows = tidy_rows(ds, unit)
+    header, rows = tidy_rows(ds, unit, force_unit)
     with open(path, "w", newline="", encoding="utf-8") as fh:
         out = csv.writer(fh)
         out.writerow(header)
@@ -335,7 +353,7 @@ def export_format(path: str, fmt: str | None = None, fields: tuple[str, str] = (
 
 
 def export_scan(ds, path: str | os.PathLike, fmt: str | None = None, unit: str = "kcal/mol",
-                level: str | None = None) -> str:
+                level: str | None = None, force_unit: str | None = None) -> str:
     """Write a scan as a tidy CSV table, JSON with QCSchema molecules, or XYZ geometries.
 
     Parameters
@@ -347,9 +365,11 @@ def export_scan(ds, path: str | os.PathLike, fmt: str | None = None, unit: str =
     fmt : {'csv', 'json', 'xyz', 'extxyz'}, optional
         Default: from the suffix of ``path``.
     unit : str
-        Energy unit of the CSV (kcal/mol, kJ/mol, eV, cm-1 or hartree; forces stay in
-        kcal/mol/angstrom). The JSON keeps kcal/mol and states every variable's units;
+        Energy unit of the CSV (kcal/mol, kJ/mol, eV, cm-1 or hartree). The JSON keeps kcal/mol and states every variable's units;
         the extended XYZ uses eV and eV/angstrom, as ase expects.
+    force_unit : str, optional
+        Force unit of the CSV (a key of :data:`interkit.units.FORCE_UNITS`; default: the
+        one matching ``unit``); the other formats have fixed units.
     level : str, optional
         Extended XYZ only: the curve (folded label) whose energy and forces are written;
         required when the scan has several.
@@ -368,13 +388,16 @@ def export_scan(ds, path: str | os.PathLike, fmt: str | None = None, unit: str =
     if kind in ("xyz", "extxyz"):
         from .trajectory import write_trajectory
 
-        if unit != "kcal/mol":
-            raise InputError(f"unit: the {kind} export has fixed units (angstrom; eV for extxyz), not {unit!r}")
+        if unit != "kcal/mol" or force_unit is not None:
+            raise InputError(f"unit: the {kind} export has fixed units (angstrom; eV for extxyz), "
+                             f"not {unit if unit != 'kcal/mol' else force_unit!r}")
         return write_trajectory(ds, path, kind, level)
     if level is not None:
         raise InputError(f"level: applies to the extxyz export only, not {kind}")
     if kind == "csv":
-        return write_tidy_csv(ds, path, unit)
+        return write_tidy_csv(ds, path, unit, force_unit)
+    if force_unit not in (None, "kcal/mol/angstrom"):
+        raise InputError(f"force_unit: the {kind} export keeps kcal/mol/angstrom, not {force_unit!r}")
     if unit != "kcal/mol":
         raise InputError(f"unit: the JSON export keeps kcal/mol (each variable states its units), not {unit!r}")
     return write_json(ds, path)

@@ -126,13 +126,15 @@ def _table(header: list[str], rows: list[list], text: tuple[int, ...] = (0,)) ->
     return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
 
 
-def _energy_section(ds: xr.Dataset) -> str:
+def _energy_section(ds: xr.Dataset, unit: str = "kcal/mol") -> str:
+    from ..model.level_names import display_label
     from ..plot.curves import plot_curves
+    from ..units import convert_energy
 
     levels = [str(x) for x in ds["level"].values]
     cp = ds.attrs.get("counterpoise", "") != "none"
     parts = ["<h2>Interaction-energy curves</h2>",
-             _figure(lambda ax: plot_curves(ds, ax=ax, show_uncorrected=cp),
+             _figure(lambda ax: plot_curves(ds, ax=ax, show_uncorrected=cp, unit=unit),
                      "Counterpoise-corrected interaction energy (solid) and uncorrected (dashed) against "
                      "the scan coordinate; shaded bands mark failed points." if cp else
                      "Interaction energy (no counterpoise correction) against the scan coordinate.",
@@ -144,16 +146,19 @@ def _energy_section(ds: xr.Dataset) -> str:
         row = [_num(r), _num(factor[i])]
         for lv in levels:
             st = str(ds["status"].sel(level=lv).values[i])
-            row.append(("failed", "failed") if st == "failed" else _num(ds[variable].sel(level=lv).values[i]))
+            row.append(("failed", "failed") if st == "failed" else
+                       _num(convert_energy(float(ds[variable].sel(level=lv).values[i]), "kcal/mol", unit)))
         rows.append(row)
     title = "counterpoise-corrected" if cp else "uncorrected"
-    parts.append(f'<p class="note">Interaction energy, {title}, kcal/mol (negative = bound).</p>')
-    parts.append(_table(["distance / Å", "factor"] + levels, rows, text=()))
+    parts.append(f'<p class="note">Interaction energy, {title}, {_e(unit)} (negative = bound).</p>')
+    parts.append(_table(["distance / Å", "factor"] + [display_label(lv) for lv in levels], rows, text=()))
     return "".join(parts)
 
 
-def _minimum_section(ds: xr.Dataset) -> str:
+def _minimum_section(ds: xr.Dataset, unit: str = "kcal/mol") -> str:
     from ..analysis.minima import minimum_table
+    from ..model.level_names import display_label
+    from ..units import convert_energy
 
     variable = "e_int" if ds.attrs.get("counterpoise", "") != "none" else "e_int_nocp"
     rows = []
@@ -161,30 +166,32 @@ def _minimum_section(ds: xr.Dataset) -> str:
         note = [] if row["interior"] else ["minimum at the edge of the grid"]
         if row["failed_points"]:
             note.append(f"{row['failed_points']} failed point(s)")
-        rows.append([row["level"], _num(row["r_min_angstrom"]), _num(row["e_min_kcal_per_mol"]),
-                     _num(row["well_depth_kcal_per_mol"]),
-                     _num(row["force_constant_kcal_per_mol_per_angstrom2"], ".2f"), row["n_points"],
-                     "; ".join(note)])
+        rows.append([display_label(row["level"]), _num(row["r_min_angstrom"]),
+                     _num(convert_energy(row["e_min_kcal_per_mol"], "kcal/mol", unit)),
+                     _num(convert_energy(row["well_depth_kcal_per_mol"], "kcal/mol", unit)),
+                     _num(convert_energy(row["force_constant_kcal_per_mol_per_angstrom2"], "kcal/mol", unit), ".2f"),
+                     row["n_points"], "; ".join(note)])
     return ("<h2>Minimum and well depth</h2>"
             '<p class="note">Natural cubic spline through the finite points; the force constant is its '
             "curvature at the minimum.</p>"
-            + _table(["level", "R_min / Å", "E_min / kcal/mol", "well depth / kcal/mol",
-                      "force constant / kcal/mol/Å²", "points", "note"], rows, text=(0, 6)))
+            + _table(["level", "R_min / Å", f"E_min / {unit}", f"well depth / {unit}",
+                      f"force constant / {unit}/Å²", "points", "note"], rows, text=(0, 6)))
 
 
-def _force_section(ds: xr.Dataset, level: str | None) -> str:
+def _force_section(ds: xr.Dataset, level: str | None, force_unit: str = "kcal/mol/angstrom") -> str:
     if "force_along" not in ds.variables:
         return ""
     from ..analysis.minima import force_zero_crossing
+    from ..model.level_names import display_label
     from ..plot.curves import plot_forces
 
     rows = []
     for lv in ds["level"].values:
         r0 = force_zero_crossing(ds["distance"].values, ds["force_along"].sel(level=lv).values)
         method = str(ds["force_method"].sel(level=lv).values) if "force_method" in ds.variables else ""
-        rows.append([str(lv), _num(r0) if np.isfinite(r0) else "no sign change", method])
+        rows.append([display_label(str(lv)), _num(r0) if np.isfinite(r0) else "no sign change", method])
     parts = ["<h2>Forces between the fragments</h2>",
-             _figure(lambda ax: plot_forces(ds, ax=ax),
+             _figure(lambda ax: plot_forces(ds, ax=ax, force_unit=force_unit),
                      "Net counterpoise-corrected force on fragment B along the coordinate (positive = "
                      "repulsive); dashed: −dE/dR of a spline through the energies, which should lie on it.",
                      "force curves"),
@@ -194,8 +201,9 @@ def _force_section(ds: xr.Dataset, level: str | None) -> str:
     split_level = level if level is not None else str(ds["level"].values[0])
     if "force_hf_along" in ds.variables and bool(np.isfinite(ds["force_hf_along"].sel(level=split_level)).any()):
         parts.append(_figure(
-            lambda ax: plot_forces(ds, ax=ax, levels=[split_level], show_fit=False, show_split=True),
-            f"{split_level}: the net force (solid) as the electrostatic (Hellmann–Feynman) force of nuclei "
+            lambda ax: plot_forces(ds, ax=ax, levels=[split_level], show_fit=False, show_split=True,
+                                   force_unit=force_unit),
+            f"{display_label(split_level)}: the net force (solid) as the electrostatic (Hellmann–Feynman) force of nuclei "
             "and electron density (dotted) plus the Pulay remainder of the atom-centred basis (dash-dotted).",
             "force split"))
     return "".join(parts)
@@ -235,7 +243,9 @@ def _comparison_section(ds: xr.Dataset, reference: str | None, explicit: bool, o
     from ..analysis.comparison import comparison_table
 
     table = comparison_table(ds, reference=reference, **options)
-    rows = [[row["rank"], row["curve"], *(_num(row[k]) for k, _, _ in table.columns), row["n_compared"],
+    from ..model.level_names import display_label
+
+    rows = [[row["rank"], display_label(row["curve"]), *(_num(row[k]) for k, _, _ in table.columns), row["n_compared"],
              "" if row["status"] == "ok" else row["status"]] for row in table.rows]
     how = "chosen with --reference" if explicit else (
         "chosen by the default rule: the most accurate wavefunction level in the scan, else its first curve; "
@@ -243,7 +253,7 @@ def _comparison_section(ds: xr.Dataset, reference: str | None, explicit: bool, o
     unit = "per cent of |reference|" if table.relative else "kcal/mol"
     header = ["rank", "curve"] + [f"{h} / {u}" for _, h, u in table.columns] + ["points", "note"]
     return ("<h2>Levels against a reference</h2>"
-            f'<p class="note">Reference: <b>{_e(table.reference)}</b> '
+            f'<p class="note">Reference: <b>{_e(display_label(table.reference))}</b> '
             f"({_e(how)}). Region: {_e(table.region_text)}. Errors are curve minus reference, {_e(unit)}; "
             "a positive well-depth error ΔDe means a deeper well. The reference is itself a model result.</p>"
             + _table(header, rows, text=(1, len(header) - 1)).replace("<table", '<table class="statistics"', 1))
@@ -295,7 +305,8 @@ def _provenance_section(ds: xr.Dataset) -> str:
 
 # ---------------------------------------------------------------------- the document
 def render_report(ds: xr.Dataset, reference: str | None = None, region: str = "all",
-                  window_angstrom: float | None = None, relative: bool = False) -> str:
+                  window_angstrom: float | None = None, relative: bool = False, unit: str = "kcal/mol",
+                  force_unit: str | None = None) -> str:
     """The HTML text of the report of a scan Dataset.
 
     Parameters
@@ -308,6 +319,10 @@ def render_report(ds: xr.Dataset, reference: str | None = None, region: str = "a
     region, window_angstrom, relative :
         Points and kind of error of the statistics table (see
         :mod:`interkit.analysis.error_statistics`); as ``interkit compare``.
+    unit, force_unit : str
+        Units of the energy curves, tables and force curves (default kcal/mol and the
+        force unit matching ``unit``); the statistics table of the comparison stays in
+        kcal/mol (or per cent), as its column names say.
 
     Returns
     -------
@@ -315,8 +330,15 @@ def render_report(ds: xr.Dataset, reference: str | None = None, region: str = "a
         A complete HTML document without scripts or external resources.
     """
     from ..data.schema import CAUTION, validate
+    from ..model.level_names import display_label
+    from ..units import ENERGY_UNITS, FORCE_UNITS, MATCHING_FORCE_UNIT
     from ..version import __version__
 
+    if unit not in ENERGY_UNITS:
+        raise InputError(f"unit: {unit!r} is not one of {', '.join(ENERGY_UNITS)}")
+    force_unit = force_unit or MATCHING_FORCE_UNIT[unit]
+    if force_unit not in FORCE_UNITS:
+        raise InputError(f"force_unit: {force_unit!r} is not one of {', '.join(FORCE_UNITS)}")
     validate(ds)
     view = levels_view(ds)
     ref = choose_reference(ds, reference)
@@ -333,11 +355,12 @@ def render_report(ds: xr.Dataset, reference: str | None = None, region: str = "a
     sections = [
         f"<h1>{_e(name or title)}</h1>",
         f'<p class="subtitle">{_e(title)} · coordinate: {_e(view["distance"].attrs.get("long_name", ""))} · '
-        f"{len(levels)} level(s): {_e(', '.join(levels))} · {view.sizes['distance']} points</p>",
+        f"{len(levels)} level(s): {_e(', '.join(display_label(lv) for lv in levels))} · "
+        f"{view.sizes['distance']} points</p>",
         f'<div class="caution"><b>Caution.</b> {_e(caution)}</div>',
-        _energy_section(view),
-        _minimum_section(view),
-        _force_section(view, ref),
+        _energy_section(view, unit),
+        _minimum_section(view, unit),
+        _force_section(view, ref, force_unit),
         _decomposition_section(view, ref or (levels[0] if levels else None)),
         _comparison_section(ds, ref, reference is not None, options),
         _status_section(view),
@@ -354,7 +377,8 @@ def render_report(ds: xr.Dataset, reference: str | None = None, region: str = "a
 
 
 def write_report(ds, path: str | os.PathLike, reference: str | None = None, region: str = "all",
-                 window_angstrom: float | None = None, relative: bool = False) -> str:
+                 window_angstrom: float | None = None, relative: bool = False, unit: str = "kcal/mol",
+                 force_unit: str | None = None) -> str:
     """Write the HTML report of a scan (see :func:`render_report`) to one file.
 
     The file is self-contained: figures are inline PNG images, the style sheet is
@@ -373,6 +397,8 @@ def write_report(ds, path: str | os.PathLike, reference: str | None = None, regi
         :func:`interkit.model.levels.default_reference`).
     region, window_angstrom, relative :
         As in :func:`render_report`.
+    unit, force_unit : str
+        Units of the energies and forces shown (see :func:`render_report`).
 
     Returns
     -------
@@ -387,7 +413,7 @@ def write_report(ds, path: str | os.PathLike, reference: str | None = None, regi
         from .provenance import load_saved
 
         ds = load_saved(ds)[0]
-    text = render_report(ds, reference, region, window_angstrom, relative)
+    text = render_report(ds, reference, region, window_angstrom, relative, unit, force_unit)
     from ..fileio import atomic_write_text
 
     return atomic_write_text(path, text)

@@ -110,6 +110,8 @@ class CorrectionComparison(widgets.VBox):
         self.image.add_class("interkit-comparison-figure")
         self.table = widgets.HTML()
         self.table.add_class("interkit-ranking")
+        self.unavailable = widgets.HTML(unavailable_html(ds))
+        self.unavailable.add_class("interkit-unavailable")
 
         for control in (self.reference_select, self.curve_select, self.unit_select, self.region_select,
                         self.window, self.relative):
@@ -122,7 +124,7 @@ class CorrectionComparison(widgets.VBox):
             widgets.HBox([self.curve_select,
                           widgets.VBox([widgets.HBox([self.csv_path, self.load_button]), self.export_button,
                                         self.message])]),
-            self.image, self.table,
+            self.image, self.table, self.unavailable,
             widgets.HTML(note_html(self.ds.attrs.get("caution", ""))),
         ])
         self.add_class("interkit-correction-comparison")
@@ -221,3 +223,31 @@ class CorrectionComparison(widgets.VBox):
         """Folded labels of the curves currently drawn (reference excluded)."""
         shown = set(self.curve_select.value)
         return [label for label, _ in compared_curves(flatten_dispersion(self.ds)) if label in shown]
+
+
+def unavailable_pairs(ds: xr.Dataset) -> list[tuple[str, str, str]]:
+    """(level, scheme, reason) of every pair of a dispersion comparison that has no
+    values because the scheme is unavailable for the functional (``dispersion_status``)."""
+    if "dispersion_status" not in ds.variables:
+        return []
+    out = []
+    for level in ds["level"].values:
+        for scheme in ds["dispersion"].values:
+            status = str(ds["dispersion_status"].sel(level=level, dispersion=scheme).values)
+            if status.startswith("unavailable"):
+                out.append((str(level), str(scheme), status.partition(":")[2].strip() or status))
+    return out
+
+
+def unavailable_html(ds: xr.Dataset) -> str:
+    """A short list of the pairs missing from the comparison, and why ('' when none)."""
+    from ..model.level_names import DISPERSION_LABELS, display_label
+
+    pairs = unavailable_pairs(ds)
+    if not pairs:
+        return ""
+    items = "".join(f'<li data-level="{html.escape(lv)}" data-dispersion="{html.escape(sc)}">'
+                    f"{html.escape(display_label(lv))} with {html.escape(DISPERSION_LABELS.get(sc, sc))}: "
+                    f"{html.escape(why)}</li>" for lv, sc, why in pairs)
+    return (f'<div style="font-size:88%;color:#5a4a00"><b>Not in the comparison</b> ({len(pairs)} '
+            f'pair(s) without values):<ul style="margin:2px 0">{items}</ul></div>')

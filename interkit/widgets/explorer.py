@@ -14,14 +14,18 @@ import numpy as np
 import traitlets
 import xarray as xr
 
+from ..analysis.minima import headline_table
 from ..data.dispersion import flatten_dispersion
 from ..data.schema import open_scan, validate
 from ..errors import InterkitError
-from ..units import convert_energy
-from .curves import CurvePanel, component_figure, level_colour
+from ..model.level_names import display_label
+from ..plot.style import level_colour
+from ..units import FORCE_UNITS, MATCHING_FORCE_UNIT, convert_energy, convert_force, unit_text
+from .curves import CurvePanel, component_figure
 from .density_panel import DensityPanel
 from .exports import EXPORT_SUFFIXES, write_csv, write_netcdf, write_report_file, write_shared
 from .forces_panel import ForcePanel, force_arrows, scale_legend
+from .headline import headline_html
 from .style import DISPLAY_UNITS, FRAGMENT_COLOURS, SCAN_LINE_COLOUR, error_html, note_html
 from .viewer3d import Molecule3D, scene_from_arrays
 
@@ -62,6 +66,11 @@ class ScanExplorer(widgets.VBox):
         ``"all levels"`` or one level label.
     unit : str
         Display unit of every energy shown.
+    force_unit : str
+        Display unit of every force shown (a key of :data:`interkit.units.FORCE_UNITS`);
+        a change of ``unit`` sets the matching force unit.
+    y_range : (float, float)
+        Energy-axis range of the curve panel, in the display unit.
     show_uncorrected, show_bsse : bool
         Draw the uncorrected curve / the BSSE as well.
     """
@@ -69,6 +78,7 @@ class ScanExplorer(widgets.VBox):
     index = traitlets.Int(0)
     level = traitlets.Unicode(ALL_LEVELS)
     unit = traitlets.Unicode("kcal/mol")
+    force_unit = traitlets.Unicode("kcal/mol/angstrom")
     show_uncorrected = traitlets.Bool(False)
     show_bsse = traitlets.Bool(False)
 
@@ -103,12 +113,27 @@ class ScanExplorer(widgets.VBox):
         if ds.attrs.get("counterpoise") == "none":
             self.bsse_box.disabled = True
             self.bsse_box.tooltip = "no counterpoise calculations in this scan"
+        self.force_unit_select = widgets.Dropdown(options=list(FORCE_UNITS), value="kcal/mol/angstrom",
+                                                  description="force unit", layout=widgets.Layout(width="260px"))
+        self.force_unit_select.add_class("interkit-force-unit")
+        self.level_select.options = [(ALL_LEVELS, ALL_LEVELS)] + [(display_label(lv), lv) for lv in self.levels]
         for name, control in (("index", self.slider), ("level", self.level_select),
                               ("unit", self.unit_select), ("show_uncorrected", self.uncorrected_box),
-                              ("show_bsse", self.bsse_box)):
+                              ("show_bsse", self.bsse_box), ("force_unit", self.force_unit_select)):
             widgets.link((self, name), (control, "value"))
+        # y range of the energy panel: the well by default, the repulsive wall on request
+        self.wall_box = widgets.Checkbox(value=False, description="show repulsive wall", indent=False)
+        self.wall_box.add_class("interkit-wall")
+        self.y_range = widgets.FloatRangeSlider(value=(-1.0, 1.0), min=-1.0, max=1.0, step=0.01,
+                                                description="y range", continuous_update=False,
+                                                readout_format=".3g", layout=widgets.Layout(width="420px"))
+        self.y_range.add_class("interkit-y-range")
+        self.headline = widgets.HTML()
+        self.headline.add_class("interkit-headline")
+        self._headline_rows = headline_table(ds)
         # ---------------------------------------------------------------- views
         self.curves = CurvePanel(ds)
+        self._syncing_range = False
         self.has_forces = "forces" in ds.variables and "force_along" in ds.variables
         self.arrow_mode = widgets.ToggleButtons(options=["atoms", "fragments", "off"], value="atoms",
                                                 description="arrows", style={"button_width": "80px"},
@@ -136,7 +161,7 @@ class ScanExplorer(widgets.VBox):
                                         layout=widgets.Layout(width="240px"))
         self.export_buttons = {}
         for kind, tip in (("netCDF", "the whole Dataset (.nc), reopen with interkit.open_scan"),
-                          ("CSV", "energies in the selected unit (.csv)"),
+                          ("CSV", "energies and forces in the selected units (.csv)"),
                           ("PNG", "the curve plot (.png)"), ("SVG", "the curve plot (.svg)"),
                           ("report", "self-contained HTML report (.html): figures inline, opens offline"),
                           ("JSON", "every variable and one QCSchema molecule per point (.json)"),
@@ -152,12 +177,12 @@ class ScanExplorer(widgets.VBox):
                   f'<span style="color:{SCAN_LINE_COLOUR}">┄ {html.escape(self._coordinate_name())}</span>')
         header = widgets.HTML(self._header_html())
         left_parts = [self.view3d, widgets.HTML(f'<div style="font-size:90%">{legend}</div>')]
-        right_parts = [self.curves.image]
+        right_parts = [self.curves.widget, self.curves.limits, widgets.HBox([self.y_range, self.wall_box])]
         if self.has_forces:
             self.arrow_mode.observe(self._on_arrow_mode, names="value")
-            self.arrow_legend.value = f'<div style="font-size:85%;color:#444">{scale_legend("atoms")}</div>'
+            self._show_arrow_legend()
             left_parts += [self.arrow_mode, self.arrow_legend]
-            right_parts.append(self.force_panel.image)   # force slot: net force on B along the scan
+            right_parts.append(self.force_panel.widget)   # force slot: net force on B along the scan
         self.density = DensityPanel(self, cache)   # deformation density of the point (on demand)
         left_parts.append(self.density)
         right = widgets.VBox(right_parts + [self.components])
@@ -165,7 +190,7 @@ class ScanExplorer(widgets.VBox):
         controls = widgets.VBox([
             widgets.HBox([self.slider, self.point_label]),
             widgets.HBox([self.level_select, self.uncorrected_box, self.bsse_box]),
-            self.unit_select,
+            widgets.HBox([self.unit_select] + ([self.force_unit_select] if self.has_forces else [])),
         ])
         export_row = widgets.VBox([
             widgets.HBox([self.export_dir, self.export_stem]),
@@ -176,10 +201,13 @@ class ScanExplorer(widgets.VBox):
             '<div class="interkit-caution" style="font-size:88%;color:#5a4a00;background:#fffae6;'
             'padding:5px 9px;border-radius:3px">Caution: '
             f'{html.escape(ds.attrs.get("caution", ""))}</div>')
-        super().__init__(children=[header, widgets.HBox([left, right]), controls, self.readout,
+        super().__init__(children=[header, self.headline, widgets.HBox([left, right]), controls, self.readout,
                                    export_row, caution])
         self.add_class("interkit-explorer")
+        self.y_range.observe(self._on_y_range, names="value")
+        self.wall_box.observe(lambda _c: self._reset_y_range(), names="value")
         self._redraw_curves()
+        self._reset_y_range()
         self._update_point()
         self._update_components()
 
@@ -252,25 +280,68 @@ class ScanExplorer(widgets.VBox):
             self.force_panel.move_marker(self.index)
         self._update_components()
 
-    @traitlets.observe("level", "unit", "show_uncorrected", "show_bsse")
+    @traitlets.observe("level", "unit", "show_uncorrected", "show_bsse", "force_unit")
     def _on_view_change(self, change) -> None:
         if not hasattr(self, "curves"):
             return
         if change["name"] == "unit" and change["new"] not in DISPLAY_UNITS:
             raise traitlets.TraitError(f"unit: {change['new']!r} is not one of {', '.join(DISPLAY_UNITS)}")
+        if change["name"] == "force_unit" and change["new"] not in FORCE_UNITS:
+            raise traitlets.TraitError(f"force_unit: {change['new']!r} is not one of {', '.join(FORCE_UNITS)}")
+        if change["name"] == "unit" and self.force_unit != MATCHING_FORCE_UNIT[self.unit]:
+            self.force_unit = MATCHING_FORCE_UNIT[self.unit]   # redraws the force panel
+        if change["name"] == "force_unit":
+            if self.force_panel is not None:
+                self.force_panel.redraw(self.shown_levels, self.force_unit, False, False, self.index)
+                self._show_arrow_legend()
+            self._update_point()
+            return
         self._redraw_curves()
+        self._reset_y_range()
         self._update_point()
         self._update_components()
         if change["name"] == "level" and "forces" in self.ds.variables:
+            self._show_arrow_legend()
             self.view3d.set_frames(self.scenes(), self.index)
 
     def _redraw_curves(self) -> None:
         self.curves.redraw(self.shown_levels, self.unit, self.show_uncorrected, self.show_bsse, self.index)
         if self.force_panel is not None:
-            self.force_panel.redraw(self.shown_levels, self.unit, False, False, self.index)
+            self.force_panel.redraw(self.shown_levels, self.force_unit, False, False, self.index)
+        self.headline.value = headline_html(self._headline_rows, self.unit, self.levels, self.shown_levels)
+
+    def _reset_y_range(self) -> None:
+        """Bounds of the y-range control from the drawn values; its value: the well, or
+        every value with "show repulsive wall"."""
+        full = self.curves.value_range()
+        well = tuple(self.curves.ax.get_ylim()) if self.curves.ylim is None else None
+        if full is None:
+            return
+        lo = min(full[0], well[0]) if well else full[0]
+        hi = max(full[1], well[1]) if well else full[1]
+        self._syncing_range = True
+        try:
+            self.y_range.min, self.y_range.max = -1e300, 1e300   # widen first: min must stay <= max
+            self.y_range.min, self.y_range.max = lo, hi
+            self.y_range.step = (hi - lo) / 500
+            self.y_range.value = full if (self.wall_box.value or well is None) else well
+        finally:
+            self._syncing_range = False
+        self.curves.set_ylim(*self.y_range.value)
+
+    def _on_y_range(self, change) -> None:
+        if not self._syncing_range:
+            self.curves.set_ylim(*change["new"])
+
+    def _show_arrow_legend(self) -> None:
+        text = scale_legend(self.arrow_mode.value, self._force_level(), self.force_unit)
+        if self.level == ALL_LEVELS and len(self.levels) > 1 and self.arrow_mode.value != "off":
+            text += " (pick a level to see its arrows)"
+        self.arrow_legend.value = f'<div class="interkit-arrow-legend" style="font-size:85%;color:#444">' \
+                                  f"{html.escape(text)}</div>"
 
     def _on_arrow_mode(self, change) -> None:
-        self.arrow_legend.value = f'<div style="font-size:85%;color:#444">{scale_legend(change["new"])}</div>'
+        self._show_arrow_legend()
         self.view3d.set_frames(self.scenes(), self.index)
 
     def _update_point(self) -> None:
@@ -280,7 +351,8 @@ class ScanExplorer(widgets.VBox):
                                   + (f" (× {factor:.3f} of the start)" if np.isfinite(factor) else "")
                                   + f" · point {i + 1} of {self.distances.size}</span>")
         has_force = "force_along" in ds.variables
-        head = ["level", "interaction energy", "uncorrected", "BSSE"] + (["force along"] if has_force else [])
+        head = ["level", "interaction energy", "uncorrected", "BSSE"] + (
+            [f"force along / {html.escape(unit_text(self.force_unit))}"] if has_force else [])
         head.append("status")
         rows = []
         for k, level in enumerate(self.levels):
@@ -288,11 +360,12 @@ class ScanExplorer(widgets.VBox):
                 continue
             e = self.energies(level)
             status, detail = str(self._status[k, i]), str(self._detail[k, i])
-            cells = [f'<span style="color:{level_colour(k)};font-weight:600">{html.escape(level)}</span>',
+            cells = [f'<span style="color:{level_colour(k)};font-weight:600">{html.escape(display_label(level))}</span>',
                      _fmt(e["e_int"], self.unit), _fmt(e["e_int_nocp"], self.unit), _fmt(e["bsse"], self.unit)]
             if has_force:
-                fa = float(ds["force_along"].sel(level=level).values[i])
-                cells.append(_fmt(fa, ds["force_along"].attrs.get("units", "kcal/mol/angstrom")))
+                fa = convert_force(float(ds["force_along"].sel(level=level).values[i]),
+                                   ds["force_along"].attrs.get("units", "kcal/mol/angstrom"), self.force_unit)
+                cells.append(f'<span class="interkit-force-value">{_fmt(fa, unit_text(self.force_unit))}</span>')
             cells.append(html.escape(status + (f": {detail}" if detail and status != "ok" else "")))
             rows.append("<tr>" + "".join(f'<td style="padding:1px 10px">{c}</td>' for c in cells) + "</tr>")
         th = "".join(f'<th style="text-align:left;padding:1px 10px">{h}</th>' for h in head)
@@ -331,8 +404,8 @@ class ScanExplorer(widgets.VBox):
         return write_netcdf(self.source, path)
 
     def export_csv(self, path: str | os.PathLike) -> str:
-        """Write the curves in the display unit to ``path`` (CSV); return the path."""
-        return write_csv(self.ds, path, unit=self.unit)
+        """Write the curves in the display units (energy and force) to ``path`` (CSV); return the path."""
+        return write_csv(self.ds, path, unit=self.unit, force_unit=self.force_unit)
 
     def export_figure(self, path: str | os.PathLike) -> str:
         """Write the curve plot as shown (PNG or SVG by extension); return the path."""
@@ -344,7 +417,7 @@ class ScanExplorer(widgets.VBox):
 
     def export_report(self, path: str | os.PathLike) -> str:
         """Write the self-contained HTML report (:func:`interkit.write_report`); return the path."""
-        return write_report_file(self.source, path)
+        return write_report_file(self.source, path, self.unit, self.force_unit)
 
     def export_json(self, path: str | os.PathLike) -> str:
         """Write the JSON export with QCSchema molecules (energies in kcal/mol); return the path."""
@@ -352,7 +425,7 @@ class ScanExplorer(widgets.VBox):
 
     def export_tidy_csv(self, path: str | os.PathLike) -> str:
         """Write the tidy CSV (one row per value, energies in the display unit); return the path."""
-        return write_shared(self.source, path, "csv", unit=self.unit)
+        return write_shared(self.source, path, "csv", unit=self.unit, force_unit=self.force_unit)
 
     def _export_clicked(self, kind: str) -> None:
         stem = os.path.join(self.export_dir.value.strip() or ".", self.export_stem.value.strip() or "scan")

@@ -13,7 +13,7 @@ from ..data.columns import column_name
 from ..data.dispersion import flatten_dispersion
 from ..data.schema import save_scan
 from ..errors import InputError
-from ..units import convert_energy
+from ..units import MATCHING_FORCE_UNIT, convert_energy, convert_force
 
 CSV_ENERGIES = ("e_int", "e_int_nocp", "bsse")
 #: file name suffix of each export button (after the name stem)
@@ -27,14 +27,18 @@ def write_netcdf(ds: xr.Dataset, path: str | os.PathLike) -> str:
     return os.fspath(path)
 
 
-def write_csv(ds: xr.Dataset, path: str | os.PathLike, unit: str = "kcal/mol") -> str:
-    """Write one row per (curve, point): distance, factor, energies in ``unit``, status.
+def write_csv(ds: xr.Dataset, path: str | os.PathLike, unit: str = "kcal/mol",
+              force_unit: str | None = None) -> str:
+    """Write one row per (curve, point): distance, factor, energies in ``unit``, the
+    force along the coordinate in ``force_unit`` (default: the one matching ``unit``,
+    :data:`interkit.units.MATCHING_FORCE_UNIT`), status.
 
     Column names follow :mod:`interkit.data.columns` (``curve``, ``distance_angstrom``,
-    ``factor``, ``e_int_kj_per_mol`` ...), so the file reads back as a reference curve
+    ``factor``, ``e_int_kj_per_mol``, ``force_along_kj_per_mol_per_angstrom`` ...), so the file reads back as a reference curve
     (:func:`interkit.analysis.comparison.reference_from_csv`); missing values are empty.
     """
     ds = flatten_dispersion(ds)
+    force_unit = force_unit or MATCHING_FORCE_UNIT.get(unit, "kcal/mol/angstrom")
     path = os.fspath(path)
     folder = os.path.dirname(os.path.abspath(path))
     if not os.path.isdir(folder):
@@ -45,7 +49,7 @@ def write_csv(ds: xr.Dataset, path: str | os.PathLike, unit: str = "kcal/mol") -
     header = ["curve", "distance_angstrom", "factor"]
     header += [column_name(name, unit) for name in CSV_ENERGIES]
     for name in extra:
-        header.append(column_name(name, ds[name].attrs.get("units") if name == "force_along" else unit))
+        header.append(column_name(name, force_unit if name == "force_along" else unit))
     header.append("status")
     r = ds["distance"].values
     factor = ds["factor"].values if "factor" in ds.coords else np.full_like(r, np.nan)
@@ -57,7 +61,10 @@ def write_csv(ds: xr.Dataset, path: str | os.PathLike, unit: str = "kcal/mol") -
             cols = [convert_energy(sub[name].values, "kcal/mol", unit) for name in CSV_ENERGIES]
             for name in extra:
                 vals = sub[name].values if "level" in ds[name].dims else ds[name].values
-                cols.append(vals if name == "force_along" else convert_energy(vals, "kcal/mol", unit))
+                if name == "force_along":
+                    cols.append(convert_force(vals, ds[name].attrs.get("units", "kcal/mol/angstrom"), force_unit))
+                else:
+                    cols.append(convert_energy(vals, "kcal/mol", unit))
             status = sub["status"].values
             for i in range(r.size):
                 row = [str(level), f"{r[i]:.6f}", f"{factor[i]:.6f}"]
@@ -67,18 +74,22 @@ def write_csv(ds: xr.Dataset, path: str | os.PathLike, unit: str = "kcal/mol") -
     return path
 
 
-def write_report_file(ds: xr.Dataset, path: str | os.PathLike) -> str:
-    """Write the self-contained HTML report (:func:`interkit.share.report.write_report`);
-    return the path written."""
+def write_report_file(ds: xr.Dataset, path: str | os.PathLike, unit: str = "kcal/mol",
+                      force_unit: str | None = None) -> str:
+    """Write the self-contained HTML report (:func:`interkit.share.report.write_report`)
+    with energies in ``unit`` and forces in ``force_unit``; return the path written."""
     from ..share.report import write_report
 
-    return write_report(ds, path)
+    return write_report(ds, path, unit=unit, force_unit=force_unit)
 
 
-def write_shared(ds: xr.Dataset, path: str | os.PathLike, fmt: str, unit: str = "kcal/mol") -> str:
-    """Write the tidy CSV (``fmt='csv'``, energies in ``unit``) or the JSON with QCSchema
-    molecules (``fmt='json'``, kcal/mol) of :func:`interkit.share.export.export_scan`;
-    return the path written."""
+def write_shared(ds: xr.Dataset, path: str | os.PathLike, fmt: str, unit: str = "kcal/mol",
+                 force_unit: str | None = None) -> str:
+    """Write the tidy CSV (``fmt='csv'``, energies in ``unit``, forces in ``force_unit``)
+    or the JSON with QCSchema molecules (``fmt='json'``, kcal/mol) of
+    :func:`interkit.share.export.export_scan`; return the path written."""
     from ..share.export import export_scan
 
-    return export_scan(ds, path, fmt, unit=unit if fmt == "csv" else "kcal/mol")
+    if fmt != "csv":
+        return export_scan(ds, path, fmt)
+    return export_scan(ds, path, fmt, unit=unit, force_unit=force_unit)

@@ -5,7 +5,9 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
+from ..model.level_names import display_label
 from ..plot.curves import plot_forces
+from ..units import convert_force, unit_text
 from .curves import CurvePanel
 
 #: arrows in the 3D view: angstrom of arrow per kcal/mol/angstrom of force
@@ -14,14 +16,23 @@ FRAGMENT_ARROW_SCALE = 0.08
 
 
 class ForcePanel(CurvePanel):
-    """Net force on fragment B along the coordinate (per level) with a movable marker."""
+    """Net force on fragment B along the coordinate (per level) with a movable marker.
+
+    The ``unit`` of :meth:`redraw` is a force unit (a key of
+    :data:`interkit.units.FORCE_UNITS`); the toggles of the energy view do not apply.
+    """
+
+    css_class = "interkit-force-curves"
 
     def _draw(self, unit: str, show_uncorrected: bool, show_bsse: bool) -> None:
-        # the unit and toggles of the energy view do not apply to forces
-        plot_forces(self.ds, ax=self.ax, levels=self.levels, show_fit=True, show_split=False)
+        plot_forces(self.ds, ax=self.ax, levels=self.levels, show_fit=True, show_split=False,
+                    force_unit=unit)
+        if self.ylim is not None:
+            self.ax.set_ylim(*self.ylim)
 
     def _marked_values(self, level: str, unit: str) -> np.ndarray:
-        return self.ds["force_along"].sel(level=level).values
+        stored = self.ds["force_along"].attrs.get("units", "kcal/mol/angstrom")
+        return convert_force(self.ds["force_along"].sel(level=level).values, stored, unit)
 
 
 def force_arrows(ds: xr.Dataset, level: str, index: int, mode: str) -> list | None:
@@ -56,10 +67,13 @@ def force_arrows(ds: xr.Dataset, level: str, index: int, mode: str) -> list | No
     return arrows
 
 
-def scale_legend(mode: str) -> str:
-    """One line saying what an arrow length means."""
+def scale_legend(mode: str, level: str | None = None, force_unit: str = "kcal/mol/angstrom") -> str:
+    """One line saying what an arrow length means, in ``force_unit``, and (given
+    ``level``) whose forces the arrows show."""
     if mode == "off":
         return "force arrows off"
     scale = ATOM_ARROW_SCALE if mode == "atoms" else FRAGMENT_ARROW_SCALE
-    return (f"arrows ({'per atom' if mode == 'atoms' else 'net force per fragment, at its centre of mass'}): "
-            f"1 Å of arrow = {1 / scale:.0f} kcal/mol/Å")
+    per_angstrom = convert_force(1 / scale, "kcal/mol/angstrom", force_unit)
+    whose = f"forces of {display_label(level)}, " if level else ""
+    return (f"arrows ({whose}{'per atom' if mode == 'atoms' else 'net force per fragment, at its centre of mass'}): "
+            f"1 Å of arrow = {per_angstrom:.4g} {unit_text(force_unit)}")

@@ -35,7 +35,7 @@ from .launcher_form import (
     rough_seconds_per_calculation,
 )
 from .launcher_run import RunPanel
-from .runner import BackgroundScan, count_calculations
+from .runner import BackgroundScan, count_calculations, default_workers
 from .style import error_html, note_html
 from .viewer3d import Molecule3D, scene_from_arrays
 
@@ -138,7 +138,8 @@ class ScanLauncher(RunPanel, widgets.VBox):
         self.levels.add_class("interkit-levels")
         self.counterpoise = widgets.Checkbox(value=True, description="counterpoise correction", indent=False)
         ncpu = os.cpu_count() or 1
-        self.workers = widgets.IntSlider(value=ncpu, min=1, max=max(ncpu, 1), description="workers")
+        # one core stays free for the notebook's own kernel (the explorer, the progress view)
+        self.workers = widgets.IntSlider(value=default_workers(), min=1, max=max(ncpu, 1), description="workers")
         self.workers.add_class("interkit-workers")
         self.forces = widgets.Checkbox(value=False, description="forces", indent=False,
                                        tooltip="counterpoise-corrected forces and their electrostatic part")
@@ -377,23 +378,38 @@ class ScanLauncher(RunPanel, widgets.VBox):
             self.seconds_per_calc.value = rough_seconds_per_calculation(self.dimer.natoms, self._level_list())
 
     def n_calculations(self) -> int:
-        """Calculations the form's scan needs: levels × points × 3 + 2 per level with
-        counterpoise, plus one SAPT0 job per point and displaced points for numerical
-        forces (counted exactly from the plan when the form describes a valid scan)."""
+        """Calculations the form's scan needs, counted from its plan
+        (``plan_scan(spec, check=False).jobs``) when a dimer is loaded: energies (levels
+        × points × 3 with counterpoise, plus the monomers in their own basis), the
+        displaced points of numerical forces and one SAPT0 job per point. Without a
+        dimer, the rule of :func:`count_calculations`."""
+        return sum(self.calculation_counts().values())
+
+    def calculation_counts(self) -> dict[str, int]:
+        """The planned calculations by kind: ``energy`` (with analytic gradients when
+        forces are on), ``displaced`` (numerical-force points) and ``sapt0``."""
         n_points = len(parse_grid(self.grid.value, self.grid_mode.value.split()[0]))
         n_levels = len(self._level_list())
         if not n_levels:
             raise InputError("levels: no level of theory given")
-        if self.dimer is not None and (self.forces.value or self.decomposition.value or self.dispersion.value.strip()):
-            from ..run.plan import plan_scan
+        if self.dimer is None:
+            return {"energy": count_calculations(n_levels, n_points, bool(self.counterpoise.value)),
+                    "displaced": 0, "sapt0": 0}
+        from ..model.job import DECOMPOSITION_ROLE
+        from ..run.plan import plan_scan
 
-            return len(plan_scan(self.build_spec(), check=False).jobs)
-        return count_calculations(n_levels, n_points, bool(self.counterpoise.value))
+        plan = plan_scan(self.build_spec(), check=False)
+        displaced = {key for roles in plan.table.values() for role, key in roles.items()
+                     if role.endswith(("_plus", "_minus"))}
+        sapt = {key for key, job in plan.jobs.items() if DECOMPOSITION_ROLE in job.outputs}
+        return {"energy": len(plan.jobs) - len(displaced | sapt), "displaced": len(displaced - sapt),
+                "sapt0": len(sapt)}
 
     def update_estimate(self) -> None:
         """Refresh the cost estimate shown before running."""
         try:
-            n = self.n_calculations()
+            counts = self.calculation_counts()
+            n = sum(counts.values())
         except InterkitError as exc:
             self.estimate.value = error_html(str(exc))
             return
@@ -404,9 +420,10 @@ class ScanLauncher(RunPanel, widgets.VBox):
         extras = []
         if self.forces.value:
             wall *= 1.6  # analytic gradients: about 1.5x an energy scan for DFT (benchmarks/forces_cost.py)
-            extras.append("with gradients")
-        if self.decomposition.value:
-            extras.append(f"{n_points} of them SAPT0")
+            extras.append(f"{counts['displaced']} of them displaced points for numerical forces"
+                          if counts["displaced"] else "with gradients")
+        if counts["sapt0"]:
+            extras.append(f"{counts['sapt0']} of them SAPT0")
         if self.dispersion.value.strip():
             extras.append("every dispersion scheme on the same SCFs")
         detail = f" ({', '.join(extras)})" if extras else ""
@@ -422,9 +439,10 @@ class ScanLauncher(RunPanel, widgets.VBox):
                 self.estimate.value = error_html(str(exc))
                 return
         self.estimate.value = (
-            f'<div><b>{n}</b> calculations{detail} = {n_levels} level(s) × {n_points} points × {per} '
-            "+ 2 per level"
-            f"<br>about {_duration(wall)} with {self.workers.value} worker(s) "
+            f'<div><b>{n}</b> calculations{detail}: {n_levels} level(s) × {n_points} points × {per} '
+            "+ the monomers in their own basis" + (" + displaced points" if counts["displaced"] else "")
+            + (" + SAPT0" if counts["sapt0"] else "")
+            + f"<br>about {_duration(wall)} with {self.workers.value} worker(s) "
             f"(rough: {self.seconds_per_calc.value:g} s per calculation){memory}</div>")
 
     def build_spec(self) -> ScanSpec:

@@ -147,7 +147,7 @@ class RunPanel:
                                                    self.scan.point_states())
 
     def _show_live(self, ds) -> None:
-        panel = CurvePanel(ds, width=5.0, height=3.2)
+        panel = CurvePanel(ds, width=5.0, height=3.2, interactive=False)   # redrawn per result: an image
         if not np.isfinite(ds["e_int"].values).any() and not np.isfinite(ds["e_int_nocp"].values).any():
             return
         panel.redraw([str(x) for x in panel.ds["level"].values], "kcal/mol", False, False, 0)

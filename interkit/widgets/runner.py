@@ -23,6 +23,12 @@ from ..run.scan import posthoc_dispersion, run_scan
 from ..run.store import DEFAULT_STORE, resolve_cache
 
 
+def default_workers() -> int:
+    """Worker processes the launcher offers by default: every core but one, which stays
+    free for the notebook's kernel (at least one worker)."""
+    return max(1, (os.cpu_count() or 1) - 1)
+
+
 def count_calculations(n_levels: int, n_points: int, counterpoise: bool = True) -> int:
     """Calculations of a rigid scan: per level and point the dimer and, with
     counterpoise, both ghosted monomers; plus the two monomers in their own basis per level."""
