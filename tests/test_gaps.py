@@ -359,3 +359,16 @@ def test_demo_command_for_real(tmp_path):
     e = ds["e_int"].values
     assert (e.min(axis=1) < -2.0).all() and (np.argmin(e, axis=1) > 0).all()
     assert (out / "curve.png").exists()
+    # the report and `interkit compare` pick the same reference and print the same
+    # statistics for the demo scan (one rule, one table)
+    from test_statistics_table import _compare_rows, _report_rows
+
+    from interkit.cli.main import main
+
+    cmp = subprocess.run([sys.executable, "-m", "interkit.cli", "compare", str(out / "scan.nc")],
+                         capture_output=True, text=True, env=env, timeout=600)
+    assert cmp.returncode == 0, cmp.stderr
+    assert main(["report", str(out / "scan.nc"), "-o", str(tmp_path / "report.html")]) == 0
+    ref_cli, rows_cli = _compare_rows(cmp.stdout)
+    ref_html, rows_html = _report_rows((tmp_path / "report.html").read_text(encoding="utf-8"))
+    assert ref_cli == ref_html and rows_cli == rows_html and rows_cli
