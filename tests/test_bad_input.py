@@ -207,7 +207,7 @@ ROWS = [
     cmd("show a folder", "show {i}/dir.nc", "scan file: '{i}/dir.nc' does not exist", files={"dir.nc": DIR}),
     cmd("rerun spec not rebuildable", "rerun {d}/nospec.nc --serial --quiet", "cannot be rebuilt"),
     cmd("report unknown reference", "report {d}/scan.nc -o {t}/report.html --reference mp2/x",
-        "--reference: 'mp2/x' is not a level of the scan"),
+        "--reference: 'mp2/x' is not a curve of the scan"),
     cmd("export unknown format", "export {d}/scan.nc -o {t}/scan.csv --format xml", "invalid choice: 'xml'"),
     cmd("export unknown unit", "export {d}/scan.nc -o {t}/scan.csv --unit furlongs", "unit: 'furlongs'"),
     # ------------------------------------------------------------------ reference files
