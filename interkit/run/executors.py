@@ -177,12 +177,16 @@ def extrapolated_guess(previous: list, job: Job):
     return d1 + t * (d1 - d0)
 
 
-def _init_worker(threads: int) -> None:
+def _init_worker(threads: int, cache_mb: float | None = None) -> None:
     from pyscf import lib
     from threadpoolctl import threadpool_limits
 
     lib.num_threads(threads)
     threadpool_limits(threads)
+    if cache_mb is not None:
+        from ..engine.numint_cache import set_cache_budget
+
+        set_cache_budget(cache_mb)
 
 
 def _worker_chunk(tasks, jobs, store_root, progress_queue, cancel):
@@ -218,8 +222,9 @@ def run_serial(chunks, jobs, store_root, report, cancel=None) -> dict[str, dict]
 
 
 def run_processes(chunks, jobs, store_root, report, workers: int, threads_per_worker: int = 1,
-                  cancel=None) -> dict[str, dict]:
-    """Run chunks in ``workers`` forked processes with ``threads_per_worker`` threads each.
+                  cancel=None, cache_mb: float | None = None) -> dict[str, dict]:
+    """Run chunks in ``workers`` forked processes with ``threads_per_worker`` threads each
+    (``cache_mb``: each worker's orbital-cache budget, see :mod:`interkit.run.resources`).
 
     A chunk whose worker dies leaves its unfinished jobs as failed records.
     """
@@ -259,7 +264,7 @@ def run_processes(chunks, jobs, store_root, report, workers: int, threads_per_wo
         try:
             with _single_threaded_children(threads_per_worker), ProcessPoolExecutor(
                 max_workers=workers, mp_context=ctx, initializer=_init_worker,
-                initargs=(threads_per_worker,)
+                initargs=(threads_per_worker, cache_mb)
             ) as pool:
                 futures = {
                     pool.submit(_worker_chunk, tasks, {k: jobs[k] for _, k in tasks}, store_root,

@@ -1,0 +1,92 @@
+"""How many worker processes fit in the machine's memory, and how much orbital cache
+each may keep.
+
+Before a scan runs, the size estimate of its largest calculation
+(:func:`interkit.engine.cost.scan_cost`, made at plan time) plus the memory of an
+idle worker (Python, numpy and pyscf loaded) gives the peak of one worker. The number
+of workers is then
+
+    workers = min(requested or cores, chunks, floor(usable memory / worker peak)), at least 1
+
+with the usable memory a fraction (:data:`MEMORY_FRACTION`) of what the system reports
+as available (``MemAvailable`` in ``/proc/meminfo``; else physical pages times page size
+from ``os.sysconf``). The orbital-value cache of DFT calculations
+(:mod:`interkit.engine.numint_cache`) only saves time; its budget per worker is what is
+left of the worker's share once the rest of the calculation is counted, capped at its
+default. So a pool is never sized to run out of memory; one worker that does not fit
+still runs (the plan's ``memory_limit_mb`` check is the guard against calculations too
+large for the machine).
+"""
+
+from __future__ import annotations
+
+import os
+
+#: fraction of the available memory the pool may use (the rest: the parent process,
+#: the page cache, other programs, estimate error)
+MEMORY_FRACTION = 0.8
+#: resident memory of an idle worker process with numpy and pyscf imported, MB (measured
+#: here: 150-250 MB)
+WORKER_BASE_MB = 300.0
+#: label of the orbital-cache term in the size estimate (engine.cost)
+_CACHE_TERM = "DFT orbital values on the grid"
+
+
+def available_memory_mb() -> float:
+    """Memory the system can give to new processes, MB: ``MemAvailable`` from
+    ``/proc/meminfo`` where it exists, else physical memory (``os.sysconf``)."""
+    try:
+        with open("/proc/meminfo") as fh:
+            for line in fh:
+                if line.startswith("MemAvailable:"):
+                    return float(line.split()[1]) * 1024 / 1e6  # kB (KiB) -> MB
+    except OSError:
+        pass
+    try:
+        return os.sysconf("SC_PHYS_PAGES") * os.sysconf("SC_PAGE_SIZE") / 1e6
+    except (ValueError, OSError, AttributeError):
+        return float("inf")
+
+
+def worker_peak_mb(costs: dict[str, dict]) -> tuple[float, float]:
+    """(peak of one worker without the orbital cache, largest orbital cache wanted), MB,
+    from the size estimates of the levels (``plan.feasibility['levels']``)."""
+    rest = cache = 0.0
+    for cost in costs.values():
+        tensors = dict(cost.get("tensor_mb", {}))
+        want = float(tensors.pop(_CACHE_TERM, 0.0))
+        rest = max(rest, float(sum(tensors.values())))
+        cache = max(cache, want)
+    return WORKER_BASE_MB + rest, cache
+
+
+def plan_pool(costs: dict[str, dict], wanted: int, available_mb: float | None = None) -> dict:
+    """Workers and per-worker orbital-cache budget that fit in memory.
+
+    Parameters
+    ----------
+    costs : dict
+        Size estimates by level label (see :func:`interkit.engine.cost.scan_cost`).
+    wanted : int
+        Workers asked for (or the number of cores).
+    available_mb : float, optional
+        Available memory, MB (default: :func:`available_memory_mb`).
+
+    Returns
+    -------
+    dict
+        ``workers``, ``cache_mb`` (orbital-cache budget per worker), ``worker_peak_mb``
+        (estimated peak per worker with that cache), ``available_mb``, ``limited_by_memory``.
+    """
+    from ..engine.numint_cache import DEFAULT_CACHE_MB
+
+    avail = available_memory_mb() if available_mb is None else float(available_mb)
+    usable = MEMORY_FRACTION * avail
+    rest, cache_want = worker_peak_mb(costs)
+    cache_want = min(cache_want, float(DEFAULT_CACHE_MB))
+    fit = int(usable // rest) if rest > 0 and usable < float("inf") else wanted
+    workers = max(1, min(int(wanted), fit))
+    share = usable / workers - rest if usable < float("inf") else cache_want
+    cache_mb = max(0.0, min(float(DEFAULT_CACHE_MB), share))
+    return {"workers": workers, "cache_mb": cache_mb, "worker_peak_mb": rest + min(cache_mb, cache_want),
+            "available_mb": avail, "limited_by_memory": workers < int(wanted)}
