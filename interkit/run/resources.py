@@ -4,7 +4,8 @@ each may keep.
 Before a scan runs, the size estimate of its largest calculation
 (:func:`interkit.engine.cost.scan_cost`, made at plan time) plus the memory of an
 idle worker (Python, numpy and pyscf loaded) gives the peak of one worker. The number
-of workers is then
+of workers is then (a forked worker also starts with the parent's resident pages, so the
+idle size is at least the parent's ``VmRSS``)
 
     workers = min(requested or cores, chunks, floor(usable memory / worker peak)), at least 1
 
@@ -48,19 +49,36 @@ def available_memory_mb() -> float:
         return float("inf")
 
 
-def worker_peak_mb(costs: dict[str, dict]) -> tuple[float, float]:
+def process_rss_mb() -> float:
+    """Resident memory of this process, MB (``VmRSS``; 0 where /proc is missing). A forked
+    worker starts with these pages (shared copy-on-write, but counted in its RSS)."""
+    try:
+        with open("/proc/self/status") as fh:
+            for line in fh:
+                if line.startswith("VmRSS:"):
+                    return float(line.split()[1]) * 1024 / 1e6
+    except OSError:
+        pass
+    return 0.0
+
+
+def worker_peak_mb(costs: dict[str, dict], base_mb: float | None = None) -> tuple[float, float]:
     """(peak of one worker without the orbital cache, largest orbital cache wanted), MB,
-    from the size estimates of the levels (``plan.feasibility['levels']``)."""
+    from the size estimates of the levels (``plan.feasibility['levels']``) and the
+    worker's starting size ``base_mb`` (default: the larger of :data:`WORKER_BASE_MB`
+    and this process's resident memory, which a forked worker inherits)."""
+    base = max(WORKER_BASE_MB, process_rss_mb()) if base_mb is None else float(base_mb)
     rest = cache = 0.0
     for cost in costs.values():
         tensors = dict(cost.get("tensor_mb", {}))
         want = float(tensors.pop(_CACHE_TERM, 0.0))
         rest = max(rest, float(sum(tensors.values())))
         cache = max(cache, want)
-    return WORKER_BASE_MB + rest, cache
+    return base + rest, cache
 
 
-def plan_pool(costs: dict[str, dict], wanted: int, available_mb: float | None = None) -> dict:
+def plan_pool(costs: dict[str, dict], wanted: int, available_mb: float | None = None,
+              base_mb: float | None = None) -> dict:
     """Workers and per-worker orbital-cache budget that fit in memory.
 
     Parameters
@@ -71,6 +89,8 @@ def plan_pool(costs: dict[str, dict], wanted: int, available_mb: float | None = 
         Workers asked for (or the number of cores).
     available_mb : float, optional
         Available memory, MB (default: :func:`available_memory_mb`).
+    base_mb : float, optional
+        Starting size of a worker, MB (see :func:`worker_peak_mb`).
 
     Returns
     -------
@@ -82,7 +102,7 @@ def plan_pool(costs: dict[str, dict], wanted: int, available_mb: float | None = 
 
     avail = available_memory_mb() if available_mb is None else float(available_mb)
     usable = MEMORY_FRACTION * avail
-    rest, cache_want = worker_peak_mb(costs)
+    rest, cache_want = worker_peak_mb(costs, base_mb)
     cache_want = min(cache_want, float(DEFAULT_CACHE_MB))
     fit = int(usable // rest) if rest > 0 and usable < float("inf") else wanted
     workers = max(1, min(int(wanted), fit))
