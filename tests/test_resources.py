@@ -18,14 +18,15 @@ def _costs(rest_mb, cache_mb):
 def test_pool_fits_in_memory():
     """workers = min(wanted, usable / peak) with usable = 80 % of the available memory
     (arithmetic of the documented rule)."""
-    rest = 900.0 + resources.WORKER_BASE_MB
-    pool = resources.plan_pool(_costs(900.0, 500.0), wanted=2, available_mb=2000.0, base_mb=resources.WORKER_BASE_MB)
+    m = resources.PEAK_MARGIN
+    rest = m * (700.0 + resources.WORKER_BASE_MB)
+    pool = resources.plan_pool(_costs(700.0, 500.0), wanted=2, available_mb=2000.0, base_mb=resources.WORKER_BASE_MB)
     assert pool["workers"] == 1 and pool["limited_by_memory"]
     assert pool["cache_mb"] == pytest.approx(0.8 * 2000.0 - rest)
-    assert pool["worker_peak_mb"] == pytest.approx(rest + 0.8 * 2000.0 - rest)
-    roomy = resources.plan_pool(_costs(900.0, 500.0), wanted=2, available_mb=64000.0, base_mb=resources.WORKER_BASE_MB)
+    assert pool["worker_peak_mb"] == pytest.approx(0.8 * 2000.0)
+    roomy = resources.plan_pool(_costs(700.0, 500.0), wanted=2, available_mb=64000.0, base_mb=resources.WORKER_BASE_MB)
     assert roomy["workers"] == 2 and not roomy["limited_by_memory"]
-    assert roomy["worker_peak_mb"] == pytest.approx(rest + 500.0)
+    assert roomy["worker_peak_mb"] == pytest.approx(rest + m * 500.0)
     # one worker always runs, even when it does not fit
     assert resources.plan_pool(_costs(9000.0, 0.0), wanted=4, available_mb=1000.0, base_mb=resources.WORKER_BASE_MB)["workers"] == 1
 

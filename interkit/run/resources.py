@@ -29,6 +29,11 @@ MEMORY_FRACTION = 0.8
 #: resident memory of an idle worker process with numpy and pyscf imported, MB (measured
 #: here: 150-250 MB)
 WORKER_BASE_MB = 300.0
+#: factor on the estimated worker peak for what the size estimate does not count
+#: (pyscf's work arrays on the grid, allocator slack). Measured here: the largest VmHWM
+#: of run_scan's workers over the estimate was 1.33-1.35 (water-methanol,
+#: B3LYP-D3(BJ)/def2-SVP, grid levels 2 and 3; benchmarks/scan_throughput.py)
+PEAK_MARGIN = 1.4
 #: label of the orbital-cache term in the size estimate (engine.cost)
 _CACHE_TERM = "DFT orbital values on the grid"
 
@@ -74,7 +79,7 @@ def worker_peak_mb(costs: dict[str, dict], base_mb: float | None = None) -> tupl
         want = float(tensors.pop(_CACHE_TERM, 0.0))
         rest = max(rest, float(sum(tensors.values())))
         cache = max(cache, want)
-    return base + rest, cache
+    return PEAK_MARGIN * (base + rest), PEAK_MARGIN * cache
 
 
 def plan_pool(costs: dict[str, dict], wanted: int, available_mb: float | None = None,
