@@ -173,12 +173,12 @@ def competent_loop(spec, basis):
     return e, cycles, peak
 
 
-def run_case(system, basis, n_points):
+def run_case(system, basis, n_points, straightforward=True):
     spec = _spec(system, basis, n_points)
     n_calcs_loop = 5 * len(spec.points)
     t0 = time.perf_counter()
-    e_plain, cyc_plain = straightforward_loop(spec, basis)
-    t_plain = time.perf_counter() - t0
+    e_plain, cyc_plain = straightforward_loop(spec, basis) if straightforward else (np.nan, [np.nan])
+    t_plain = time.perf_counter() - t0 if straightforward else np.nan
     t0 = time.perf_counter()
     e_comp, cyc_comp, peak_comp = competent_loop(spec, basis)
     t_comp = time.perf_counter() - t0
@@ -226,9 +226,14 @@ def growth_exponents(rows):
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="one small case (smoke run)")
+    parser.add_argument("--case", action="append", default=[], metavar="SYSTEM:BASIS:POINTS",
+                        help="run only this case (repeatable), e.g. benzene_pyridine:def2-svp:3")
+    parser.add_argument("--no-straightforward", action="store_true", help="skip the straightforward loop")
     args = parser.parse_args()
     print(f"cores: {os.cpu_count()}, load average at start: {os.getloadavg()}")
-    rows = [run_case(*case) for case in (QUICK_CASES if args.quick else FULL_CASES)]
+    cases = [(c.split(":")[0], c.split(":")[1], int(c.split(":")[2])) for c in args.case]
+    cases = cases or (QUICK_CASES if args.quick else FULL_CASES)
+    rows = [run_case(*case, straightforward=not args.no_straightforward) for case in cases]
     exps = growth_exponents(rows)
     if exps:
         print("\ngrowth exponent of time per calculation with basis functions: "
