@@ -176,7 +176,7 @@ def correlation_energy(mf, level: LevelOfTheory) -> float:
     return 0.0
 
 
-def run_energy_job(job: Job, guess=None, guess_source: str = "previous point") -> tuple[dict, object]:
+def run_energy_job(job: Job, guess=None) -> tuple[dict, object]:
     """Compute one job.
 
     Parameters
@@ -184,9 +184,6 @@ def run_energy_job(job: Job, guess=None, guess_source: str = "previous point") -
     job : Job
     guess : array, optional
         Density matrix of a similar calculation (same basis layout) to start from.
-    guess_source : str
-        Where ``guess`` came from, recorded as the record's ``guess`` (only the starting
-        point of the SCF, never its converged result, depends on it).
 
     Returns
     -------
@@ -200,7 +197,7 @@ def run_energy_job(job: Job, guess=None, guess_source: str = "previous point") -
         The converged density matrix, for seeding the next calculation.
     """
     t0 = time.perf_counter()
-    record = failed_record(guess=guess_source if guess is not None else "default")
+    record = failed_record(guess="previous point" if guess is not None else "default")
     density = None
     want_gradient = "gradient" in job.outputs
     broken_symmetry = job.guess == BROKEN_SYMMETRY_GUESS

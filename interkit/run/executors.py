@@ -56,7 +56,9 @@ def run_chunk(tasks, jobs: dict[str, Job], store_root: str | None = None,
             record, density = run_decomposition_job(job), None
         else:
             guess, source = chunk_guess(role, job, history, latest)
-            record, density = run_energy_job(job, guess, source)
+            record, density = run_energy_job(job, guess)
+            if guess is not None and record.get("guess") == "previous point":  # the engine's name for any guess
+                record["guess"] = source
         if density is not None:
             history[role] = (history.get(role, []) + [(np.asarray(job.coordinates), density)])[-2:]
             latest[role] = (job, density)
