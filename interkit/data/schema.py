@@ -18,6 +18,8 @@ spin_square                 level, distance, role       1 (<S^2>; only when a
                                                         calculation is unrestricted)
 status_detail               level, distance             text
 wall_time_s                 level, distance             s
+scf_cycles                  level, distance, role       1 (SCF iterations of each
+                                                        calculation; NaN: failed/none)
 job_key                     level, distance, role       sha256
 coordinates                 distance, atom, xyz         angstrom
 anchors                     distance, end, xyz          angstrom
@@ -145,6 +147,7 @@ def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: s
     with_spin = any(is_unrestricted_job(plan.jobs[k]) for entry in plan.table.values()
                     for k in entry.values())
     s2 = np.full((nl, npnt, len(roles)), np.nan)
+    cycles = np.full((nl, npnt, len(roles)), np.nan)
     nocp_lost = np.zeros((nl, npnt), dtype=bool)
     for li in range(nl):
         for pi in range(npnt):
@@ -172,6 +175,8 @@ def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: s
                         own_failed.append(role)
                 else:
                     total[li, pi, ri] = rec["energy_hartree"]
+                    if rec.get("scf_cycles") is not None:
+                        cycles[li, pi, ri] = rec["scf_cycles"]
                     if rec["status"] == "retried":
                         notes.append(f"{ROLE_LABELS[role]}: converged with {rec.get('detail', '')}")
                     if rec.get("spin_square") is not None:
@@ -247,6 +252,9 @@ def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: s
                               {"long_name": "why a point was retried, flagged or failed"}),
             "wall_time_s": (("level", "distance"), wall,
                             {"units": "s", "long_name": "wall time of the point's calculations"}),
+            "scf_cycles": (("level", "distance", "role"), cycles,
+                           {"units": "1", "long_name": "SCF iterations of each calculation (depends on "
+                            "its initial guess, not a result)"}),
             "job_key": (("level", "distance", "role"), keys.astype(str),
                         {"long_name": "store key (SHA-256) of each calculation"}),
             "coordinates": (("distance", "atom", "xyz"), coords,

@@ -4,6 +4,7 @@ with the spin of one fragment flipped (its alpha and beta densities swapped)."""
 from __future__ import annotations
 
 from collections.abc import Callable
+from functools import lru_cache
 
 import numpy as np
 
@@ -56,3 +57,58 @@ def broken_symmetry_guess(job: Job, mol, make_scf: Callable) -> np.ndarray:
         for s in range(2):
             dm[s][np.ix_(rows, rows)] = fdm[s][np.ix_(frows, frows)]
     return dm
+
+
+def _atom_ao_counts(job: Job) -> list[int]:
+    """Number of basis functions on each atom of ``job`` (a ghost atom has the same as a
+    real one)."""
+    return _ao_counts(tuple(job.symbols), job.level.basis, tuple(sorted(dict(job.ecp).items())))
+
+
+@lru_cache(maxsize=64)
+def _ao_counts(symbols: tuple, basis: str, ecp: tuple) -> list[int]:
+    from pyscf import gto
+
+    mol = gto.Mole()
+    mol.atom = [(s, (0.0, 0.0, 3.0 * i)) for i, s in enumerate(symbols)]
+    mol.basis = basis
+    if ecp:
+        mol.ecp = dict(ecp)
+    mol.spin = sum(gto.charge(s) for s in symbols) % 2
+    mol.verbose = 0
+    mol.build(parse_arg=False)
+    return [int(b - a) for _, _, a, b in mol.aoslice_by_atom()]
+
+
+#: largest difference (angstrom) between the displacements of the atoms of a monomer for
+#: its density to be carried over by translation
+TRANSLATION_TOLERANCE_ANGSTROM = 1e-6
+
+
+def embed_density(source: Job, density, target: Job):
+    """The converged density of ``source`` (a monomer in its own basis) in the AO layout of
+    ``target`` (the same monomer with ghost atoms), or None when they do not match.
+
+    The monomer may sit elsewhere (own-basis monomers are centred at the origin): a
+    density in an atom-centred basis is unchanged by a rigid translation, so each atom's
+    block moves to the same atom's block in ``target``; rows and columns of the ghost
+    atoms are zero. Only a translation is accepted (a rotated monomer is refused), and
+    charge, spin, level and the elements must agree.
+    """
+    real = [i for i, g in enumerate(target.ghost) if not g]
+    if any(source.ghost) or len(real) != len(source.symbols) or source.level != target.level \
+            or (source.charge, source.spin) != (target.charge, target.spin) \
+            or tuple(target.symbols[i] for i in real) != tuple(source.symbols):
+        return None
+    shift = np.asarray(target.coordinates)[real] - np.asarray(source.coordinates)
+    if np.ptp(shift, axis=0).max(initial=0.0) > TRANSLATION_TOLERANCE_ANGSTROM:
+        return None
+    counts_t = _atom_ao_counts(target)
+    start_t = np.concatenate([[0], np.cumsum(counts_t)])
+    rows = np.concatenate([np.arange(start_t[i], start_t[i + 1]) for i in real])
+    dm = np.asarray(density)
+    if dm.shape[-1] != len(rows):
+        return None
+    out = np.zeros(dm.shape[:-2] + (int(start_t[-1]),) * 2)
+    out[..., rows[:, None], rows[None, :]] = dm
+    return out

@@ -17,6 +17,21 @@ from pyscf.dft import numint
 
 #: per-calculation memory budget for cached orbital values, MB
 DEFAULT_CACHE_MB = 1200
+#: the budget calculations of this process start with (set_cache_budget)
+_BUDGET = {"mb": float(DEFAULT_CACHE_MB)}
+
+
+def set_cache_budget(mb: float) -> float:
+    """Set this process's budget (MB) for cached orbital values of new calculations;
+    return the previous one. The cache only saves time: numbers do not depend on it."""
+    old = _BUDGET["mb"]
+    _BUDGET["mb"] = max(0.0, float(mb))
+    return old
+
+
+def cache_budget() -> float:
+    """This process's budget (MB) for cached orbital values."""
+    return _BUDGET["mb"]
 
 # process-wide pool of aligned buffers and the one cache that currently uses them:
 # (grid coordinates array, block signature, basis fingerprint, blocks)
@@ -75,9 +90,9 @@ class CachingNumInt(numint.NumInt):
     scan point (ghost atoms keep their basis functions and grids).
     """
 
-    def __init__(self, max_cache_mb: float = DEFAULT_CACHE_MB):
+    def __init__(self, max_cache_mb: float | None = None):
         super().__init__()
-        self.max_cache_mb = max_cache_mb
+        self.max_cache_mb = _BUDGET["mb"] if max_cache_mb is None else max_cache_mb
 
     @property
     def _ao_cache(self):

@@ -18,7 +18,7 @@ from .levels import LevelOfTheory
 from .spec import ScanSpec
 
 #: bump when a change in interkit alters the numbers a job produces
-NUMERICS_VERSION = 4
+NUMERICS_VERSION = 5  # 5: default DFT grid level 2 (was 3)
 #: coordinates in job descriptions are rounded to this many decimals of an angstrom
 COORDINATE_DECIMALS = 10
 

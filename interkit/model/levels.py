@@ -206,8 +206,11 @@ class LevelOfTheory:
         return cls(**data)
 
 
-#: DFT grid defaults (pyscf's): level 3 with NWChem-style angular pruning
-DEFAULT_GRID_LEVEL = 3
+#: DFT grid defaults: level 2 with NWChem-style angular pruning (pyscf's default is 3).
+#: Chosen by the measured grid error of counterpoise E_int and forces against level 7
+#: (README, "DFT grids"; benchmarks/grid_error.py): level 2 keeps E_int within
+#: 0.005 kcal/mol and forces within 0.01 kcal/mol/angstrom, level 1 does not for forces
+DEFAULT_GRID_LEVEL = 2
 DEFAULT_GRID_PRUNING = "nwchem"
 GRID_PRUNINGS = ("nwchem", "sg1", "treutler", "none")
 #: level settings that can be given for every level at once (TOML ``[calculation.settings]``)

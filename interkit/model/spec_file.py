@@ -203,7 +203,7 @@ def load_spec_toml(path: str | os.PathLike) -> ScanSpec:
         density_fitting = true              # fitted SCF Coulomb/exchange
         frozen_core = true                  # MP2, SCS-MP2, CCSD(T)
         correlation_fitting = true          # fitted MP2/SCS-MP2 (CCSD(T) is always exact)
-        grid_level = 3                      # DFT grid, 0-9
+        grid_level = 2                      # DFT grid, 0-9
         grid_pruning = "nwchem"             # nwchem | sg1 | treutler | none
         jk_auxbasis = "def2-universal-jkfit"  # SCF fitting basis (omit: pyscf's match)
         ri_auxbasis = "cc-pvdz-ri"          # MP2 fitting basis (omit: the SCF's)

@@ -112,7 +112,10 @@ def run_scan(
     progress : bool or callable
         True shows a tqdm bar; a callable receives ``(done, total, key, record)``.
     workers : int, optional
-        Worker processes (default: all cores); ignored with a Dask client.
+        Worker processes (default: all cores); ignored with a Dask client. Fewer run
+        when the estimated peak per worker times the workers would not fit in the
+        available memory (:mod:`interkit.run.resources`; a warning says so when
+        ``workers`` was given).
     cancel : threading.Event, optional
         When set, workers stop after their running calculation (Dask: tasks not yet
         finished are cancelled); finished results are kept and missing points come
@@ -158,6 +161,10 @@ def run_scan(
             rec = store.get(key)
             if rec is not None:
                 records[key] = rec
+    pool = None
+    if executor in ("processes", "serial"):
+        pool = _fit_pool(plan, n_workers if executor == "processes" else 1, workers is not None)
+        n_workers = pool["workers"] if executor == "processes" else n_workers
     chunks = _pending_chunks(plan, records, n_workers if executor in ("processes", "dask") else 1)
     n_todo = sum(len(c) for c in chunks)
     shown, close = _make_progress(progress if n_todo else False, n_todo)
@@ -174,10 +181,17 @@ def run_scan(
             if dask_executor is not None:
                 new = dask_executor.run(chunks, plan.jobs, store_root, report, cancel)
             elif executor == "serial" or n_workers == 1 or len(chunks) == 1 and n_workers == 1:
-                new = run_serial(chunks, plan.jobs, store_root, report, cancel)
+                from ..engine.numint_cache import set_cache_budget
+
+                old_budget = set_cache_budget(pool["cache_mb"])
+                try:
+                    new = run_serial(chunks, plan.jobs, store_root, report, cancel)
+                finally:
+                    set_cache_budget(old_budget)
             else:
                 new = run_processes(chunks, plan.jobs, store_root, report,
-                                    workers=min(n_workers, len(chunks)), cancel=cancel)
+                                    workers=min(n_workers, len(chunks)), cancel=cancel,
+                                    cache_mb=pool["cache_mb"])
             records.update(new)
         not_stored = _not_stored(records, store)
         cancelled = cancel is not None and cancel.is_set()
@@ -197,12 +211,29 @@ def run_scan(
     ds.attrs["calculations_not_stored"] = len(not_stored)
     ds.attrs["executor"] = executor
     ds.attrs["workers"] = n_workers if executor in ("processes", "dask") else 1
+    if pool is not None:
+        ds.attrs["worker_peak_estimate_mb"] = pool["worker_peak_mb"]
+        ds.attrs["orbital_cache_mb"] = pool["cache_mb"]
+        ds.attrs["available_memory_mb"] = pool["available_mb"]
     ds.attrs["calculations_computed"] = n_todo
     ds.attrs["calculations_from_store"] = len(plan.jobs) - n_todo
     ds.attrs["run_wall_time_s"] = time.perf_counter() - t0
     if spec.dispersion:
         ds.attrs["dispersion_wall_time_s"] = t_disp
     return ds
+
+
+def _fit_pool(plan: ScanPlan, wanted: int, asked: bool) -> dict:
+    """Workers and orbital-cache budget that fit in memory (warns when fewer workers
+    than asked for fit)."""
+    from .resources import plan_pool
+
+    pool = plan_pool((plan.feasibility or {}).get("levels") or {}, wanted)
+    if pool["limited_by_memory"] and asked:
+        warnings.warn(f"workers: {wanted} workers would need about {wanted * pool['worker_peak_mb']:.0f} MB, "
+                      f"{pool['available_mb']:.0f} MB are available; running {pool['workers']}",
+                      InterkitWarning, stacklevel=3)
+    return pool
 
 
 def _not_stored(records: dict[str, dict], store: ResultStore | None) -> list[str]:

@@ -145,7 +145,9 @@ def _level_label(level: dict) -> str:
 def _default(setting: str, level: dict, symbols: list[str], pyscf_note: str) -> str:
     """interkit's documented default of ``setting`` for ``level`` (text)."""
     if setting == "grid":
-        return ("exchange-correlation integrals on pyscf's integration grid (default: grid level 3, "
+        from ..model.levels import DEFAULT_GRID_LEVEL
+
+        return (f"exchange-correlation integrals on pyscf's integration grid (default: grid level {DEFAULT_GRID_LEVEL}, "
                 "Treutler–Ahlrichs radial and Lebedev angular grids, Becke partitioning, NWChem pruning, "
                 "no density-based screening of grid points)")
     if setting == "frozen_core":

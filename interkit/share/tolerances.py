@@ -19,7 +19,7 @@ from ..errors import InputError
 from ..units import HARTREE_TO_KCAL_PER_MOL
 
 #: variables never compared: timings and texts that describe a run, not its numbers
-NOT_COMPARED = frozenset({"wall_time_s", "sapt_wall_time_s", "status_detail", "sapt_status_detail",
+NOT_COMPARED = frozenset({"wall_time_s", "scf_cycles", "sapt_wall_time_s", "status_detail", "sapt_status_detail",
                           "job_key", "symbol", "fragment", "force_method"})
 
 #: SCF energy threshold of calculations with gradients (``engine.energy`` converges

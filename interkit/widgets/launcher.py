@@ -18,7 +18,7 @@ from ..errors import InputError, InterkitError
 from ..model.coordinates import AtomPair, CentreOfMass
 from ..model.demo import demo_catalog, list_demos, load_demo
 from ..model.geometry import Dimer
-from ..model.levels import parse_level
+from ..model.levels import DEFAULT_GRID_LEVEL, parse_level
 from ..model.spec import DEFAULT_MEMORY_LIMIT_MB, ScanSpec
 from ..run.store import DEFAULT_STORE, resolve_cache
 from .contact_picking import ContactPicker
@@ -162,7 +162,7 @@ class ScanLauncher(RunPanel, widgets.VBox):
                                             layout=_lay(width="110px"))
         self.correlation_fitting = widgets.Checkbox(value=True, description="fitted MP2", indent=False,
                                                     layout=_lay(width="110px"))
-        self.grid_level = widgets.BoundedIntText(value=3, min=0, max=9, description="DFT grid",
+        self.grid_level = widgets.BoundedIntText(value=DEFAULT_GRID_LEVEL, min=0, max=9, description="DFT grid",
                                                  layout=_lay(width="150px"))
         self.grid_pruning = widgets.Dropdown(options=["nwchem", "sg1", "treutler", "none"], value="nwchem",
                                              description="pruning", layout=_lay(width="200px"))
