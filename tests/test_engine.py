@@ -139,6 +139,7 @@ def test_ghosted_jobs_reuse_the_dimer_grid_without_changing_energies(small_dimer
     from interkit.engine.molecule import build_molecule
 
     mf = dft.RKS(build_molecule(jobs[0]), xc="b3lyp").density_fit()
+    mf.grids.level = level.grid_level   # the level's grid (interkit's default, not pyscf's)
     mf._numint = numint.NumInt()
     mf.small_rho_cutoff = 0.0
     mf.conv_tol = 1e-10

@@ -81,10 +81,14 @@ def test_frames_from_toml_with_explicit_values_saved_reopened_and_verified(tmp_p
     # (source: the single-point scans; a mix-up of frames, or a rigid-scan shortcut that
     # reuses the first frame's own-basis monomers in the uncorrected energy, would
     # differ, since B's bond changes)
+    # Tolerance 1e-5 kcal/mol: the frames start their SCFs from the previous frame's
+    # density, the single points from pyscf's guess; both converge to 1e-8 hartree, which
+    # leaves E_int within ~1e-6 kcal/mol here (measured 1.2e-7), far below what a frame
+    # mix-up changes (B's bond length differs between the frames).
     for k, c in enumerate(frames):
         e_int, e_nocp = _single_point(c)
-        assert float(ds["e_int"].values[0, k]) == pytest.approx(e_int, abs=1e-7)
-        assert float(ds["e_int_nocp"].values[0, k]) == pytest.approx(e_nocp, abs=1e-7)
+        assert float(ds["e_int"].values[0, k]) == pytest.approx(e_int, abs=1e-5)
+        assert float(ds["e_int_nocp"].values[0, k]) == pytest.approx(e_nocp, abs=1e-5)
     path = tmp_path / "frames.nc"
     ik.save_scan(ds, path)
     xr.testing.assert_identical(ik.open_scan(path), ds)

@@ -16,10 +16,11 @@ import urllib.request
 from pathlib import Path
 
 import pytest
+from conftest import require
 from test_browser import ARTIFACTS, _free_port, _shot, page  # noqa: F401 (page: the shared fixture)
 
 pytestmark = pytest.mark.browser
-pytest.importorskip("ipympl")
+require("ipympl", "the explorer curves need ipympl (pip install -e .[test])")
 
 ROOT = Path(__file__).resolve().parents[2]
 NOTEBOOK = """\
