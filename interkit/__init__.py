@@ -43,7 +43,7 @@ from .model.spec_file import load_spec_toml
 from .model.study import ReferenceValue, Study, StudySystem
 from .model.study_file import load_study_toml
 from .model.study_folder import read_study_folder
-from .run.densities import compute_point_densities, load_point_densities
+from .run.densities import DensitiesNotStoredError, compute_point_densities, load_point_densities
 from .run.feasibility import check_feasibility
 from .run.scan import run_scan
 from .run.store import DEFAULT_STORE
@@ -64,7 +64,7 @@ __all__ = [
     "ScanCoordinate", "ScanSpec", "StoreError", "Vector", "__version__", "convert_energy",
     "demo_catalog", "export_scan", "list_demos", "load_demo", "load_spec_toml", "methods_bibtex", "methods_text",
     "open_scan", "parse_level", "rerun_scan", "run_scan", "save_scan", "spec_of", "validate", "verify_scan",
-    "write_report", "write_spec", "compute_point_densities", "load_point_densities",
+    "write_report", "write_spec", "compute_point_densities", "DensitiesNotStoredError", "load_point_densities",
     # studies: many dimers, one comparison
     "ReferenceValue", "Study", "StudySystem", "load_study_toml", "open_study", "rank_methods", "read_study_folder",
     "rerun_study", "run_study", "s22_study", "save_study", "study_errors", "study_statistics", "verify_study",

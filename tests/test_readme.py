@@ -15,8 +15,8 @@ Running every block takes minutes (a dozen small scans), so that test is marked 
 (``make test-full``); a cheap test that always runs checks that every ``ik.NAME`` and every
 ``from interkit... import`` of the blocks resolves. The blocks run in a temporary folder (files they write land there) with the default
 store pointed at a temporary folder (tests/conftest.py) and matplotlib without a display.
-A block that starts with ``# readme-test: skip (<reason>)`` is not run; only the cluster
-block is (it needs a batch system).
+A block that starts with ``# readme-test: skip (<reason>)`` is not run; only the two batch-system
+blocks are (they need a batch system).
 """
 
 from __future__ import annotations

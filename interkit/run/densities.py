@@ -21,7 +21,7 @@ import xarray as xr
 
 from ..data.schema import spec_of
 from ..engine import density as dens
-from ..errors import InputError, InterkitError
+from ..errors import InputError, InterkitError, StoreError
 from ..model.job import CP_ROLES, Job
 from ..units import ANGSTROM_TO_BOHR
 from .store import ResultStore
@@ -171,7 +171,10 @@ def load_point_densities(ds: xr.Dataset, point: int, level: str | None = None,
             "the scan with keep_densities=True and a cache")
     if cache is None:
         raise DensitiesNotStoredError(f"cache: no store given, so no stored densities of point {point}; {hint}")
-    store = ResultStore(cache, create=False)
+    try:
+        store = ResultStore(cache, create=False)
+    except StoreError as exc:  # no store there: nothing was stored
+        raise DensitiesNotStoredError(f"cache: {exc}; no stored densities of point {point}; {hint}") from None
     matrices = {}
     for role, job in jobs.items():
         record = store.get(job.key)
