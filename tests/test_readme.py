@@ -62,7 +62,9 @@ def test_readme_blocks_are_found_and_skips_are_rare():
     blocks = python_blocks(README.read_text(encoding="utf-8"))
     assert len(blocks) >= 8
     skipped = [line for line, code in blocks if code.lstrip().startswith(SKIP_MARK)]
-    assert len(skipped) <= 1, f"README blocks skipped at lines {skipped}: keep skips rare"
+    assert len(skipped) <= 2, f"README blocks skipped at lines {skipped}: keep skips rare"
+    # the only blocks that may be skipped are those that need a batch system
+    assert all("batch system" in code.splitlines()[0] for _, code in blocks if code.lstrip().startswith(SKIP_MARK))
     # the substitutions do what the docstring says
     assert cheap('levels=["hf/def2-svp", "mp2/aug-cc-pvdz"], factors=[0.9, 1.0]') == \
         'levels=["hf/sto-3g", "mp2/sto-3g"], factors=[0.95, 1.05, 1.25, 1.6]'
