@@ -24,7 +24,7 @@ import numpy as np
 
 from ..errors import InputError
 from .geometry import Dimer
-from .orientation import GridAxis, _name, with_b_coordinates
+from .grid_axis import GridAxis, _name, with_b_coordinates
 
 SAMPLING_METHODS = ("sobol", "random")
 
