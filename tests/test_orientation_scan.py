@@ -186,3 +186,28 @@ def test_orient_command_writes_the_grid_and_refuses_bad_input(water, tmp_path, c
     bad.write_text(ORIENT_TOML.format(xyz=water.to_xyz_string()).replace("pivot = 3", "hinge = 3"))
     assert main(["orient", str(bad), "-o", str(tmp_path / "bad.nc"), "--serial", "--quiet"]) == 2
     assert "orientation.axis[0].hinge: not a key of a rotation axis" in capsys.readouterr().err
+
+
+def test_map_explorer_click_shows_that_cell(angle_map):
+    pytest.importorskip("ipywidgets")
+    from types import SimpleNamespace
+
+    from interkit.widgets.map_explorer import MapExplorer
+
+    grid, ds = angle_map
+    for interactive in (False, True):
+        if interactive:
+            pytest.importorskip("ipympl")
+        ex = MapExplorer(ds, interactive=interactive)
+        e = ds["e_int"].values[0]
+        assert ex.cell == np.unravel_index(np.nanargmin(e), e.shape)      # opens on the grid minimum
+        # a click near (angle 40, distance 2.8) selects that cell: frame and numbers of point 6
+        ex._on_click(SimpleNamespace(inaxes=ex.ax, xdata=38.5, ydata=2.83))
+        assert ex.cell == (2, 0) and ex.view3d.frame == 6
+        assert np.allclose(ex.view3d.frames[6]["xyz"], grid.dimers()[6].coordinates, atol=1e-5)
+        nums = ex.numbers()
+        assert nums["angle"] == 40.0 and nums["distance"] == 2.8
+        assert nums["e_int"] == float(ds["e_int"].values[0, 2, 0])
+        assert f"{nums['e_int']:.4f} kcal/mol" in ex.readout.value
+        ex.pickers[1].value = 2                                            # the drop-down moves it too
+        assert ex.cell == (2, 2) and ex.view3d.frame == 8
