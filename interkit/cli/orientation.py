@@ -60,7 +60,8 @@ def cmd_orient(args, run_flat) -> int:
         except InputError:
             print(f"  {level}: no point has a number")
             continue
-        where = ", ".join(f"{ax.name} = {low[ax.name]:g} {ax.units}" for ax in grid.axes)
+        where = ", ".join(f"{ax.name} = {low[ax.name]:g}" + (f" {ax.units}" if ax.units != "1" else "")
+                          for ax in grid.axes)
         print(f"  {level}: lowest E_int {low['energy_kcal_per_mol']:.3f} kcal/mol at {where}")
     failed = int((ds["status"] == "failed").sum())
     if failed:

@@ -318,7 +318,8 @@ class OrientationGrid:
         return ScanSpec(dimer=self.dimer, coordinate=frames, **options)
 
     def describe(self) -> str:
-        return " x ".join(f"{ax.name} ({len(ax.values)} values, {ax.units})" for ax in self.axes)
+        return " x ".join(f"{ax.name} ({len(ax.values)} values" + (f", {ax.units})" if ax.units != "1" else ")")
+                          for ax in self.axes)
 
     def to_dict(self) -> dict:
         """Plain-data recipe (JSON-safe); :meth:`from_dict` inverts it."""

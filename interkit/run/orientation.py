@@ -27,8 +27,9 @@ def run_orientation_scan(
 
     The grid's geometries run through :func:`~interkit.run.scan.run_scan` as explicit
     frames (the same plan, store, executors and feasibility checks as any scan; the
-    monomers in their own basis are computed at every point, as for frames), then the
-    flat Dataset is reshaped onto the axes (see :mod:`interkit.data.grid`).
+    monomers in their own basis run once per distinct orientation, their calculations
+    being centred), then the flat Dataset is reshaped onto the axes (see
+    :mod:`interkit.data.grid`).
 
     Parameters
     ----------
