@@ -22,6 +22,7 @@ from __future__ import annotations
 from . import analysis
 from .analysis import comparison, fits
 from .analysis.study_stats import rank_methods, study_errors, study_statistics
+from .data.grid import cell_dimer, open_grid, save_grid
 from .data.schema import open_scan, save_scan, spec_of, validate
 from .data.study_tree import open_study, save_study
 from .errors import (
@@ -37,6 +38,8 @@ from .model.coordinates import AtomPair, CentreOfMass, Frames, ScanCoordinate, V
 from .model.demo import demo_catalog, list_demos, load_demo
 from .model.geometry import Dimer
 from .model.levels import LevelOfTheory, parse_level
+from .model.orientation import Offset, OrientationGrid, Rotation, Separation
+from .model.orientation_sampling import OrientationSample
 from .model.s22 import s22_study
 from .model.spec import ScanSpec
 from .model.spec_file import load_spec_toml
@@ -45,6 +48,7 @@ from .model.study_file import load_study_toml
 from .model.study_folder import read_study_folder
 from .run.densities import DensitiesNotStoredError, compute_point_densities, load_point_densities
 from .run.feasibility import check_feasibility
+from .run.orientation import run_orientation_scan
 from .run.scan import run_scan
 from .run.store import DEFAULT_STORE
 from .run.study import run_study
@@ -69,6 +73,9 @@ __all__ = [
     "ReferenceValue", "Study", "StudySystem", "load_study_toml", "open_study", "rank_methods", "read_study_folder",
     "rerun_study", "run_study", "s22_study", "save_study", "study_errors", "study_statistics", "verify_study",
     "write_study_report",
+    # orientations: rotations, offsets, two-axis grids and orientation samples
+    "Offset", "OrientationGrid", "OrientationSample", "Rotation", "Separation", "cell_dimer", "open_grid",
+    "run_orientation_scan", "save_grid",
 ]
 
 

@@ -87,6 +87,9 @@ def _build_parser() -> argparse.ArgumentParser:
     from .volumes import add_commands as add_volumes
 
     add_volumes(sub)
+    from .orientation import add_commands as add_orientation
+
+    add_orientation(sub, _add_run_options)
 
     p = sub.add_parser("store", help="inspect or shrink a result store (the --cache folder)")
     store_sub = p.add_subparsers(dest="store_command", metavar="ACTION", parser_class=_Parser)
@@ -397,6 +400,9 @@ def main(argv: list[str] | None = None) -> int:
     from .volumes import HANDLERS as VOLUME_HANDLERS
 
     handlers.update(VOLUME_HANDLERS)   # cube
+    from .orientation import cmd_orient
+
+    handlers["orient"] = lambda a: cmd_orient(a, _run)   # orientation scans
     try:
         return handlers[args.command](args)
     except InterkitError as exc:

@@ -18,7 +18,8 @@ from __future__ import annotations
 from .comparison import CorrectionComparison
 from .explorer import ScanExplorer
 from .launcher import ScanLauncher
+from .map_explorer import MapExplorer
 from .study import StudyExplorer
 from .viewer3d import Molecule3D, library_available
 
-__all__ = ["CorrectionComparison", "Molecule3D", "ScanExplorer", "ScanLauncher", "StudyExplorer", "library_available"]
+__all__ = ["CorrectionComparison", "MapExplorer", "Molecule3D", "ScanExplorer", "ScanLauncher", "StudyExplorer", "library_available"]
