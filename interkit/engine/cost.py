@@ -7,7 +7,9 @@ and virtual orbitals. From these it sizes the large arrays each step holds, in M
 
 * SCF: the fitted three-index tensor ``(P|mu nu)`` (packed pairs), or the four-index
   integrals (8-fold symmetric) when the SCF is not fitted and they fit in pyscf's
-  in-memory budget; DFT: orbital values on the grid, as far as they are kept;
+  in-memory budget; DFT: orbital values on the grid, as far as they are kept, and
+  pyscf's work arrays of one block of grid points (its block size grows with the
+  memory budget, up to ``GRID_BLOCK_CAP`` blocks of ``BLKSIZE`` points);
 * MP2: the fitted ``(ia|P)`` tensor, or ``(ia|jb)`` with exact integrals;
 * CCSD(T): the ``(ab|cd)`` and ``(ia|bc)`` integrals and the amplitudes with their
   iteration copies;
@@ -31,6 +33,11 @@ PYSCF_MAX_MEMORY_MB = 4000.0
 #: pyscf's CCSD iteration keeps about this many copies of the doubles amplitudes
 #: (amplitudes, residual, DIIS vectors held in memory)
 CCSD_AMPLITUDE_COPIES = 4
+#: most pyscf grid blocks (of ``pyscf.dft.gen_grid.BLKSIZE`` points) in one batch of its
+#: exchange-correlation loop (``NumInt.block_loop``); within the memory budget of
+#: ``PYSCF_MAX_MEMORY_MB`` the batch is this cap up to about 1000 basis functions (an upper
+#: bound beyond, where pyscf shrinks the batch to fit its budget)
+GRID_BLOCK_CAP = 1200
 
 
 def _mb(n: float) -> float:
@@ -134,6 +141,10 @@ def estimate_level_cost(level, symbols, coordinates, charge: int, spin: int, for
         ngrid = _grid_points(mol, level)
         ncomp = 4  # orbital values and first derivatives (GGA); LDA needs fewer
         tensors["DFT orbital values on the grid"] = min(_mb(ngrid * nao * ncomp), DEFAULT_CACHE_MB)
+        from pyscf.dft.gen_grid import BLKSIZE
+
+        # one batch of orbital values and derivatives plus pyscf's weighted copy of it
+        tensors["DFT grid-batch work arrays"] = _mb((ncomp + 1) * min(ngrid, GRID_BLOCK_CAP * BLKSIZE) * nao)
         if forces:
             tensors["DFT grid response (second derivatives)"] = min(_mb(ngrid * nao * 10), GRID_RESPONSE_CACHE_MB)
     if forces and level.scf_fitted:

@@ -83,6 +83,29 @@ def _make_progress_unguarded(progress, total: int):
     return None, lambda: None
 
 
+def resolve_executor(executor, workers: int | None):
+    """Validate ``executor`` and ``workers`` of run_scan/run_study.
+
+    Returns ``(name, dask_executor, n_workers)``: ``name`` is 'processes', 'serial' or
+    'dask'; ``dask_executor`` the :class:`~interkit.run.dask.DaskExecutor` (or None);
+    ``n_workers`` the workers asked for (default: all cores), or with Dask the threads
+    of the cluster's workers (the cluster decides; chunks follow its threads).
+    """
+    dask_executor = None
+    if not isinstance(executor, str):
+        from .dask import as_dask_executor
+
+        dask_executor, executor = as_dask_executor(executor), "dask"
+    elif executor not in ("processes", "serial"):
+        raise InputError(f"executor: {executor!r} is not one of 'processes', 'serial' or a Dask client")
+    n_workers = workers if workers is not None else (os.cpu_count() or 1)
+    if isinstance(n_workers, bool) or not isinstance(n_workers, int) or n_workers < 1:
+        raise InputError(f"workers: {workers!r} is not a positive integer")
+    if dask_executor is not None:
+        n_workers = max(1, sum(dask_executor.worker_threads().values()))
+    return executor, dask_executor, n_workers
+
+
 def run_scan(
     spec: ScanSpec,
     executor: str = "processes",
@@ -140,18 +163,7 @@ def run_scan(
     """
     if not isinstance(spec, ScanSpec):
         raise InputError(f"spec: expected an interkit.ScanSpec, got {type(spec).__name__}")
-    dask_executor = None
-    if not isinstance(executor, str):
-        from .dask import as_dask_executor
-
-        dask_executor, executor = as_dask_executor(executor), "dask"
-    elif executor not in ("processes", "serial"):
-        raise InputError(f"executor: {executor!r} is not one of 'processes', 'serial' or a Dask client")
-    n_workers = workers if workers is not None else (os.cpu_count() or 1)
-    if isinstance(n_workers, bool) or not isinstance(n_workers, int) or n_workers < 1:
-        raise InputError(f"workers: {workers!r} is not a positive integer")
-    if dask_executor is not None:  # the cluster decides; chunks follow its threads
-        n_workers = max(1, sum(dask_executor.worker_threads().values()))
+    executor, dask_executor, n_workers = resolve_executor(executor, workers)
     cache = resolve_cache(cache)
     plan = plan_scan(spec)  # with the feasibility checks: refuses before any calculation
     store = ResultStore(cache) if cache is not None else None
@@ -163,7 +175,8 @@ def run_scan(
                 records[key] = rec
     pool = None
     if executor in ("processes", "serial"):
-        pool = _fit_pool(plan, n_workers if executor == "processes" else 1, workers is not None)
+        pool = fit_pool((plan.feasibility or {}).get("levels") or {}, n_workers if executor == "processes" else 1,
+                        workers is not None)
         n_workers = pool["workers"] if executor == "processes" else n_workers
     chunks = _pending_chunks(plan, records, n_workers if executor in ("processes", "dask") else 1)
     n_todo = sum(len(c) for c in chunks)
@@ -223,12 +236,13 @@ def run_scan(
     return ds
 
 
-def _fit_pool(plan: ScanPlan, wanted: int, asked: bool) -> dict:
-    """Workers and orbital-cache budget that fit in memory (warns when fewer workers
-    than asked for fit)."""
+def fit_pool(costs: dict[str, dict], wanted: int, asked: bool) -> dict:
+    """Workers and orbital-cache budget that fit in memory, from size estimates by name
+    (see :func:`interkit.run.resources.plan_pool`); warns when fewer workers than asked
+    for fit."""
     from .resources import plan_pool
 
-    pool = plan_pool((plan.feasibility or {}).get("levels") or {}, wanted)
+    pool = plan_pool(costs, wanted)
     if pool["limited_by_memory"] and asked:
         warnings.warn(f"workers: {wanted} workers would need about {wanted * pool['worker_peak_mb']:.0f} MB, "
                       f"{pool['available_mb']:.0f} MB are available; running {pool['workers']}",

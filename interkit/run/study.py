@@ -26,7 +26,7 @@ from ..errors import InputError, InterkitError, InterkitWarning
 from ..model.study import Study
 from .executors import run_processes, run_serial
 from .plan import plan_scan
-from .scan import _make_progress, _not_stored, posthoc_dispersion
+from .scan import _make_progress, _not_stored, fit_pool, posthoc_dispersion, resolve_executor
 from .store import ResultStore
 
 
@@ -111,18 +111,7 @@ def run_study(study: Study, executor="processes", cache: str | os.PathLike | Non
         An error once calculations have started carries every record at hand as
         ``exc.records`` (job key -> record), besides the copies in the store.
     """
-    dask_executor = None
-    if not isinstance(executor, str):
-        from .dask import as_dask_executor
-
-        dask_executor, executor = as_dask_executor(executor), "dask"
-    elif executor not in ("processes", "serial"):
-        raise InputError(f"executor: {executor!r} is not one of 'processes', 'serial' or a Dask client")
-    n_workers = workers if workers is not None else (os.cpu_count() or 1)
-    if isinstance(n_workers, bool) or not isinstance(n_workers, int) or n_workers < 1:
-        raise InputError(f"workers: {workers!r} is not a positive integer")
-    if dask_executor is not None:
-        n_workers = max(1, sum(dask_executor.worker_threads().values()))
+    executor, dask_executor, n_workers = resolve_executor(executor, workers)
     plans = plan_study(study)
     jobs = merged_jobs(plans)
     store = ResultStore(cache) if cache is not None else None
@@ -134,6 +123,12 @@ def run_study(study: Study, executor="processes", cache: str | os.PathLike | Non
                 records[key] = rec
     from_store = set(records)
     parallel = executor in ("processes", "dask")
+    pool = None
+    if executor in ("processes", "serial"):  # sized by the largest calculation of any system
+        costs = {f"{name}: {label}": cost for name, plan in zip(study.names, plans)
+                 for label, cost in ((plan.feasibility or {}).get("levels") or {}).items()}
+        pool = fit_pool(costs, n_workers if executor == "processes" else 1, workers is not None)
+        n_workers = pool["workers"] if executor == "processes" else n_workers
     chunks = study_chunks(plans, records, n_workers if parallel else 1)
     n_todo = sum(len(c) for c in chunks)
     shown, close = _make_progress(progress if n_todo else False, n_todo)
@@ -150,9 +145,16 @@ def run_study(study: Study, executor="processes", cache: str | os.PathLike | Non
             if dask_executor is not None:
                 new = dask_executor.run(chunks, jobs, root, report, cancel)
             elif executor == "serial" or n_workers == 1:
-                new = run_serial(chunks, jobs, root, report, cancel)
+                from ..engine.numint_cache import set_cache_budget
+
+                old_budget = set_cache_budget(pool["cache_mb"])
+                try:
+                    new = run_serial(chunks, jobs, root, report, cancel)
+                finally:
+                    set_cache_budget(old_budget)
             else:
-                new = run_processes(chunks, jobs, root, report, workers=min(n_workers, len(chunks)), cancel=cancel)
+                new = run_processes(chunks, jobs, root, report, workers=min(n_workers, len(chunks)), cancel=cancel,
+                                    cache_mb=pool["cache_mb"])
             records.update(new)
         not_stored = set(_not_stored(records, store))
         cancelled = cancel is not None and cancel.is_set()
@@ -178,6 +180,9 @@ def run_study(study: Study, executor="processes", cache: str | os.PathLike | Non
                      "calculations_total": len(jobs), "calculations_computed": n_todo,
                      "calculations_from_store": len(jobs) - n_todo, "calculations_not_stored": len(not_stored),
                      "run_wall_time_s": wall}
+        if pool is not None:
+            run_attrs.update(worker_peak_estimate_mb=pool["worker_peak_mb"], orbital_cache_mb=pool["cache_mb"],
+                             available_memory_mb=pool["available_mb"])
         tree = build_study_tree(study, datasets, failures, run_attrs)
     except BaseException as exc:  # nothing computed is lost to a late error
         try:
