@@ -154,6 +154,25 @@ def formaldehyde():
     ])
 
 
+def n_methylacetamide():
+    """trans-N-methylacetamide: O, C, N, H(N), C(N-methyl), C(acetyl), then the methyl
+    hydrogens (N-methyl first); O=C-N-H anti, O=C-N-C(methyl) syn (the trans amide)."""
+    return zmatrix([
+        ("O",),
+        ("C", (0, 1.23)),
+        ("N", (1, 1.35), (0, 122.5)),
+        ("H", (2, 1.01), (1, 119.0), (0, 180.0)),
+        ("C", (2, 1.45), (1, 122.0), (0, 0.0)),
+        ("C", (1, 1.51), (0, 121.0), (2, 180.0)),
+        ("H", (4, 1.09), (2, 109.5), (1, 180.0)),
+        ("H", (4, 1.09), (2, 109.5), (1, 60.0)),
+        ("H", (4, 1.09), (2, 109.5), (1, -60.0)),
+        ("H", (5, 1.09), (1, 109.5), (0, 0.0)),
+        ("H", (5, 1.09), (1, 109.5), (0, 120.0)),
+        ("H", (5, 1.09), (1, 109.5), (0, -120.0)),
+    ])
+
+
 def ethene():
     """C=C along x in the xy plane, centred at the origin."""
     cc, ch, ang = 1.33, 1.085, np.radians(121.5)
@@ -268,6 +287,26 @@ def build_formaldehyde_water():
     lp = sp2_lone_pair(fx, 0, 1, 2)
     wx = dock_donor(wx, 0, 1, fx, 0, lp, 1.95)
     return fs + ws, np.vstack([fx, wx]), 4, [0, 0], [1, 1], (0, 5)
+
+
+def build_nma_water():
+    """Water (B) donates an O-H hydrogen bond to the amide carbonyl O of
+    N-methylacetamide (A), the lone pair on the N side (a peptide-like contact)."""
+    ns, nx = n_methylacetamide()
+    ws, wx = water()
+    lp = sp2_lone_pair(nx, 0, 1, 2)
+    wx = dock_donor(wx, 0, 1, nx, 0, lp, 1.95)
+    # turn the water about its O-H...O axis so its free H stays clear of the N-methyl group
+    axis, pivot = unit(wx[1] - wx[0]), wx[1]
+    best, best_gap = wx, -1.0
+    for ang in np.radians(np.arange(0.0, 360.0, 15.0)):
+        k = np.array([[0, -axis[2], axis[1]], [axis[2], 0, -axis[0]], [-axis[1], axis[0], 0]])
+        rot = np.eye(3) + np.sin(ang) * k + (1 - np.cos(ang)) * k @ k
+        trial = (wx - pivot) @ rot.T + pivot
+        gap = np.linalg.norm(nx[:, None] - trial[None, [0, 2]], axis=2).min()
+        if gap > best_gap:
+            best, best_gap = trial, gap
+    return ns + ws, np.vstack([nx, best]), 12, [0, 0], [1, 1], (0, 13)
 
 
 def build_methane_ethene():
@@ -393,6 +432,11 @@ SYSTEMS = {
         "A weak, dispersion-dominated contact: one methane C–H (B) points at the "
         "C=C π bond of ethene (A). Fully optimised at B3LYP-D3(BJ)/def2-SVP "
         "(density fitting) with geomeTRIC."),
+    "nma_water": (
+        build_nma_water, "N-methylacetamide–water hydrogen bond", "hydrogen bond (amide)",
+        "A peptide-like contact: water (B) donates an O–H···O=C hydrogen bond to the "
+        "carbonyl oxygen of trans-N-methylacetamide (A). Built from textbook monomers "
+        "and fully optimised at B3LYP-D3(BJ)/def2-SVP (density fitting) with geomeTRIC."),
     "benzene_pyridine": (
         build_benzene_pyridine, "Parallel-displaced benzene–pyridine stack", "π-stacking",
         "Benzene (A) and pyridine (B) stacked with parallel rings, pyridine shifted "
@@ -457,6 +501,7 @@ META = {
     "water_methanol": dict(n_a=3, charges=[0, 0], mults=[1, 1], contact=(1, 3)),
     "formaldehyde_water": dict(n_a=4, charges=[0, 0], mults=[1, 1], contact=(0, 5)),
     "methane_ethene": dict(n_a=6, charges=[0, 0], mults=[1, 1], contact=(0, 7)),
+    "nma_water": dict(n_a=12, charges=[0, 0], mults=[1, 1], contact=(0, 13)),
     "benzene_pyridine": None,   # contact found from the final geometry
     "lithium_water": dict(n_a=1, charges=[1, 0], mults=[1, 1], contact=(0, 1)),
     "chloride_water": dict(n_a=1, charges=[-1, 0], mults=[1, 1], contact=(0, 2)),

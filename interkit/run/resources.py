@@ -30,9 +30,10 @@ MEMORY_FRACTION = 0.8
 #: here: 150-250 MB)
 WORKER_BASE_MB = 300.0
 #: factor on the estimated worker peak for what the size estimate does not count
-#: (pyscf's work arrays on the grid, allocator slack). Measured here: the largest VmHWM
-#: of run_scan's workers over the estimate was 1.33-1.35 (water-methanol,
-#: B3LYP-D3(BJ)/def2-SVP, grid levels 2 and 3; benchmarks/scan_throughput.py)
+#: (allocator slack, small pyscf temporaries). Measured here: the largest VmHWM of
+#: run_scan's workers over the margin-included estimate, B3LYP-D3(BJ)/def2-SVP, was 0.64
+#: on water-methanol (9 atoms) and 0.80 on benzene-pyridine (23 atoms); without the
+#: grid-batch term of the estimate it had been 1.16 on 23 atoms
 PEAK_MARGIN = 1.4
 #: label of the orbital-cache term in the size estimate (engine.cost)
 _CACHE_TERM = "DFT orbital values on the grid"
