@@ -237,6 +237,21 @@ ROWS = [
     cmd("store prune bad size", "store prune {t} --max-size 10XB", "--max-size: '10XB' is not a size"),
     cmd("store prune negative size", "store prune {t} --max-size=-1GB", "--max-size: '-1GB' is not a size"),
     cmd("store prune without limit", "store prune {t}", "the following arguments are required: --max-size"),
+    # ------------------------------------------------------------------ later options and commands
+    spec("keep_densities not a flag", "keep_densities", calculation='levels = ["hf/sto-3g"]\nkeep_densities = "yes"'),
+    cmd("show unknown energy unit", "show {d}/scan.nc --unit furlongs", "--unit: invalid choice: 'furlongs'"),
+    cmd("show unknown force unit", "show {d}/scan.nc --force-unit N", "--force-unit: invalid choice: 'N'"),
+    cmd("cube point outside the scan", "cube {d}/scan.nc --point 99 -o {t}/c", "point: 99 is not a point of the scan"),
+    cmd("cube point not a number", "cube {d}/scan.nc --point x -o {t}/c", "--point: invalid int value: 'x'"),
+    cmd("cube spacing zero", "cube {d}/scan.nc --point 0 -o {t}/c --spacing 0", "--spacing: 0.0 bohr is outside"),
+    cmd("cube level not in the scan", "cube {d}/scan.nc --point 0 -o {t}/c --level mp2/x",
+        "level: 'mp2/x' is not in the scan"),
+    cmd("cube missing scan file", "cube {t}/none.nc --point 0 -o {t}/c", "scan file: '{t}/none.nc' does not exist"),
+    cmd("spec missing scan file", "spec {t}/none.nc", "scan file: '{t}/none.nc' does not exist"),
+    cmd("spec output not TOML", "spec {d}/scan.nc -o {t}/x.txt", "--output: '{t}/x.txt' should end in .toml"),
+    cmd("study file missing", "study run {t}/nope.toml -o {t}/s.nc", "study file: '{t}/nope.toml' does not exist"),
+    cmd("study rank of a scan file", "study rank {d}/scan.nc", "schema 'interkit-scan/2' is not 'interkit-study/1'"),
+    cmd("orientation file missing", "orient {t}/nope.toml -o {t}/o.nc", "orientation file: '{t}/nope.toml' does not exist"),
     cmd("unknown command", "frobnicate", "invalid choice: 'frobnicate'"),
 ]
 
