@@ -78,6 +78,8 @@ def test_slider_moves_marker_and_3d_view(explorer, scan):
     anchors = scan.anchors.values[2]
     np.testing.assert_allclose(explorer.scene(2)["line"], anchors, atol=1e-5)
     assert f"{float(scan.distance[2]):.3f} Å" in explorer.point_label.value
+    # numbered from 0 as in the Python API and `interkit cube --point` (one numbering everywhere)
+    assert "point 2 (numbered from 0" in explorer.point_label.value
 
 
 def test_level_selector_limits_curves_and_readout(explorer):

@@ -349,7 +349,7 @@ class ScanExplorer(widgets.VBox):
         factor = float(ds["factor"].values[i]) if "factor" in ds.coords else float("nan")
         self.point_label.value = (f'<span data-index="{i}">{self.distances[i]:.3f} Å'
                                   + (f" (× {factor:.3f} of the start)" if np.isfinite(factor) else "")
-                                  + f" · point {i + 1} of {self.distances.size}</span>")
+                                  + f" · point {i} (numbered from 0, of 0–{self.distances.size - 1})</span>")
         has_force = "force_along" in ds.variables
         head = ["level", "interaction energy", "uncorrected", "BSSE"] + (
             [f"force along / {html.escape(unit_text(self.force_unit))}"] if has_force else [])
