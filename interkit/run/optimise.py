@@ -7,14 +7,16 @@ one geometry: every evaluation runs through :func:`interkit.run_scan`, so it is 
 the result store and a killed optimisation, started again with the same arguments,
 repeats the same steps from the store without computing them again.
 
-Method: quasi-Newton (BFGS update of a model Hessian) with a trust radius. Each step
-is taken from the current geometry (rotations about B's current centre of mass), in
-coordinates where a rotation by ``w`` counts as the length ``w * L``, ``L`` the
-root-mean-square distance of B's atoms from its centre of mass (at least 0.5 Å), so a
-rotation moves atoms about as far as a translation of the same length. The model
-Hessian is ``MODEL_FORCE_CONSTANT`` times the identity in these coordinates, rescaled
-after the first step by ``y.y / s.y`` (Nocedal & Wright, Numerical Optimization, 2nd
-ed., eq. 6.20). A step is accepted when the energy does not rise by more than
+Method: quasi-Newton (BFGS update of a model Hessian) with a trust radius, in the
+coordinates ``q = (t, w L)``: ``t`` the translation of B (Å), ``w`` the rotation vector
+of B about its starting centre of mass (rad), ``L`` the root-mean-square distance of
+B's atoms from its centre of mass (at least 0.5 Å), so a rotation moves atoms about as
+far as a translation of the same length. The gradient in ``w`` is ``-J(w)^T tau`` with
+``J`` the left Jacobian of the rotation vector (:func:`interkit.model.rigid.left_jacobian`).
+The model Hessian (:func:`model_hessian`) has a spring along every A-B contact,
+weighted towards the closest; it is rescaled after the first step to the curvature
+measured along it (``s.y / s.H.s``, cf. Nocedal & Wright, Numerical Optimization, 2nd
+ed., sec. 6.1). A step is accepted when the energy does not rise by more than
 ``ENERGY_NOISE_KCAL_PER_MOL``.
 
 Converged when, at an accepted geometry, the net force on B is shorter than
@@ -38,7 +40,7 @@ from ..model.coordinates import Frames
 from ..model.geometry import Dimer
 from ..model.job import force_method
 from ..model.levels import LevelOfTheory, parse_level
-from ..model.rigid import moved_b
+from ..model.rigid import left_jacobian, moved_b
 from ..model.spec import DEFAULT_SCF_THRESHOLD_HARTREE, ScanSpec
 from .scan import run_scan
 from .store import DEFAULT_STORE
@@ -227,15 +229,16 @@ def optimise_dimer(dimer: Dimer, level: str | LevelOfTheory, *, max_steps: int =
     length = rotation_length(dimer)
     steps: list[dict] = []
 
-    def evaluate(d: Dimer, accepted: bool) -> tuple[Evaluation, np.ndarray]:
+    def evaluate(q: np.ndarray, accepted: bool) -> tuple[Evaluation, np.ndarray]:
+        d = moved_b(dimer, q[:3], q[3:] / length)
         ev = fn(d)
         steps.append({"e_int": ev.e_int, "force": ev.force, "torque": ev.torque, "accepted": accepted,
                       "trust_radius": radius, "coordinates": np.array(d.coordinates)})
-        return ev, np.concatenate([-ev.force, -ev.torque / length])
+        return ev, np.concatenate([-ev.force, -left_jacobian(q[3:] / length).T @ ev.torque / length])
 
-    current = dimer
-    ev, g = evaluate(current, True)
-    h = model_hessian(current, length)
+    q = np.zeros(6)
+    ev, g = evaluate(q, True)
+    h = model_hessian(dimer, length)
     updated = False
     converged = False
     while True:
@@ -248,16 +251,22 @@ def optimise_dimer(dimer: Dimer, level: str | LevelOfTheory, *, max_steps: int =
         if len(steps) >= max_steps or radius < MIN_TRUST_RADIUS_ANGSTROM:
             break
         try:
-            trial = moved_b(current, p[:3], p[3:] / length)
             from ..model.spec import check_contacts
 
-            check_contacts(trial, "optimisation step")
+            check_contacts(moved_b(dimer, (q + p)[:3], (q + p)[3:] / length), "optimisation step")
         except InputError:  # too close: a shorter step instead
             radius = 0.25 * float(np.linalg.norm(p))
             continue
-        ev_new, g_new = evaluate(trial, False)
+        ev_new, g_new = evaluate(q + p, False)
         actual = ev_new.e_int - ev.e_int
-        s, y = p, g_new - g
+        ratio = actual / predicted if predicted < 0 else -1.0
+        step_len = float(np.linalg.norm(p))
+        if ratio < 0.25:
+            radius = 0.25 * step_len
+        elif ratio > 0.75 and step_len > 0.8 * radius:
+            radius = min(2.0 * radius, MAX_TRUST_RADIUS_ANGSTROM)
+        accept = actual <= ENERGY_NOISE_KCAL_PER_MOL
+        s, y = p, g_new - g   # from the old point to the trial point, accepted or not
         sy = float(s @ y)
         if sy > 1e-12 * float(np.linalg.norm(s) * np.linalg.norm(y)):  # keeps H positive definite
             if not updated:  # the model's scale, fitted to the curvature along the first step
@@ -265,15 +274,9 @@ def optimise_dimer(dimer: Dimer, level: str | LevelOfTheory, *, max_steps: int =
                 updated = True
             hs = h @ s
             h = h + np.outer(y, y) / sy - np.outer(hs, hs) / float(s @ hs)
-        ratio = actual / predicted if predicted < 0 else -1.0
-        step_len = float(np.linalg.norm(p))
-        if ratio < 0.25:
-            radius = 0.25 * step_len
-        elif ratio > 0.75 and step_len > 0.8 * radius:
-            radius = min(2.0 * radius, MAX_TRUST_RADIUS_ANGSTROM)
-        if actual <= ENERGY_NOISE_KCAL_PER_MOL:
+        if accept:
             steps[-1]["accepted"] = True
-            current, ev, g = trial, ev_new, g_new
+            q, ev, g = q + p, ev_new, g_new
     attrs = {
         "title": f"rigid-body optimisation: {dimer.name}",
         "level": fn.level.label,
@@ -291,4 +294,4 @@ def optimise_dimer(dimer: Dimer, level: str | LevelOfTheory, *, max_steps: int =
         "interkit_version": __import__("interkit").__version__,
     }
     traj = build_trajectory(steps, dimer, attrs)
-    return RigidBodyOptimum(current, ev.e_int, converged, len(steps), traj)
+    return RigidBodyOptimum(moved_b(dimer, q[:3], q[3:] / length), ev.e_int, converged, len(steps), traj)
