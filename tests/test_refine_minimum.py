@@ -16,7 +16,7 @@ import pytest
 
 import interkit as ik
 from interkit.analysis.minima import find_minimum
-from interkit.run.refine import refine_minimum
+from interkit.analysis.refine import refine_minimum
 
 FACTORS = (0.9, 1.0, 1.2, 1.5, 2.0)
 

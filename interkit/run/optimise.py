@@ -42,6 +42,7 @@ from ..model.job import force_method
 from ..model.levels import LevelOfTheory, parse_level
 from ..model.rigid import left_jacobian, moved_b
 from ..model.spec import DEFAULT_SCF_THRESHOLD_HARTREE, ScanSpec
+from ..version import __version__
 from .scan import run_scan
 from .store import DEFAULT_STORE
 
@@ -291,7 +292,7 @@ def optimise_dimer(dimer: Dimer, level: str | LevelOfTheory, *, max_steps: int =
         "torque_tol_kcal_per_mol": t_tol,
         "rotation_length_angstrom": length,
         "scf_threshold_hartree": float(fn.scf_threshold_hartree),
-        "interkit_version": __import__("interkit").__version__,
+        "interkit_version": __version__,
     }
     traj = build_trajectory(steps, dimer, attrs)
     return RigidBodyOptimum(moved_b(dimer, q[:3], q[3:] / length), ev.e_int, converged, len(steps), traj)

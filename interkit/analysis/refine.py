@@ -28,14 +28,14 @@ import numpy as np
 import xarray as xr
 from scipy.optimize import brentq
 
-from ..analysis.minima import find_minimum
 from ..data.schema import spec_of
 from ..errors import ConvergenceError, InputError, NotAvailableError
 from ..model.coordinates import Frames
 from ..model.geometry import Dimer
 from ..model.spec import ScanSpec
-from .scan import run_scan
-from .store import DEFAULT_STORE
+from ..run.scan import run_scan
+from ..run.store import DEFAULT_STORE
+from .minima import find_minimum
 
 DEFAULT_TOLERANCE_ANGSTROM = 2e-4
 STENCIL_ANGSTROM = 0.01
