@@ -14,9 +14,10 @@ B's atoms from its centre of mass (at least 0.5 Å), so a rotation moves atoms a
 far as a translation of the same length. The gradient in ``w`` is ``-J(w)^T tau`` with
 ``J`` the left Jacobian of the rotation vector (:func:`interkit.model.rigid.left_jacobian`).
 The model Hessian (:func:`model_hessian`) has a spring along every A-B contact,
-weighted towards the closest; it is rescaled after the first step to the curvature
-measured along it (``s.y / s.H.s``, cf. Nocedal & Wright, Numerical Optimization, 2nd
-ed., sec. 6.1). A step is accepted when the energy does not rise by more than
+weighted towards the closest; after the first step it is scaled down to the curvature
+measured along that step (``s.y / s.H.s``, cf. Nocedal & Wright, Numerical Optimization,
+2nd ed., sec. 6.1) when that is softer, never up (a first step down a repulsive wall
+would stiffen the soft turning modes too). A step is accepted when the energy does not rise by more than
 ``ENERGY_NOISE_KCAL_PER_MOL``.
 
 Converged when, at an accepted geometry, the net force on B is shorter than
@@ -271,7 +272,8 @@ def optimise_dimer(dimer: Dimer, level: str | LevelOfTheory, *, max_steps: int =
         sy = float(s @ y)
         if sy > 1e-12 * float(np.linalg.norm(s) * np.linalg.norm(y)):  # keeps H positive definite
             if not updated:  # the model's scale, fitted to the curvature along the first step
-                h = h * (sy / float(s @ h @ s))
+                fac = sy / float(s @ h @ s)
+                h = h * min(fac, 1.0)
                 updated = True
             hs = h @ s
             h = h + np.outer(y, y) / sy - np.outer(hs, hs) / float(s @ hs)
