@@ -105,33 +105,16 @@ def check_grid(ds: xr.Dataset) -> None:
 def save_grid(ds: xr.Dataset, path: str | os.PathLike) -> None:
     """Write an orientation-grid Dataset to netCDF-4 (temporary file, then rename)."""
     check_grid(ds)
-    path = os.fspath(path)
-    folder = os.path.dirname(os.path.abspath(path))
-    if not os.path.isdir(folder):
-        raise InputError(f"output: folder {folder!r} does not exist")
-    from ..fileio import exclusive_temp
+    from .netcdf import write_netcdf
 
-    fd, tmp = exclusive_temp(folder, ".tmp-", ".nc")
-    os.close(fd)
-    try:
-        ds.to_netcdf(tmp, engine="h5netcdf", invalid_netcdf=False)
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    write_netcdf(ds, path)
 
 
 def open_grid(path: str | os.PathLike) -> xr.Dataset:
     """Read an orientation-grid Dataset written by :func:`save_grid` (loaded, file closed)."""
-    path = os.fspath(path)
-    if not os.path.isfile(path):
-        raise InputError(f"grid file: {path!r} does not exist")
-    try:
-        with xr.open_dataset(path, engine="h5netcdf") as handle:
-            ds = handle.load()
-    except (OSError, ValueError) as exc:
-        raise InputError(f"grid file {path!r}: not a readable netCDF file ({exc})") from None
+    from .netcdf import read_netcdf
+
+    ds = read_netcdf(path, "grid")
     check_grid(ds)
     return ds
 

@@ -91,37 +91,20 @@ def validate_trajectory(ds: xr.Dataset) -> None:
 def save_trajectory(ds: xr.Dataset, path: str | os.PathLike) -> None:
     """Write a trajectory Dataset to netCDF-4 (temporary file, then rename)."""
     validate_trajectory(ds)
-    path = os.fspath(path)
-    folder = os.path.dirname(os.path.abspath(path))
-    if not os.path.isdir(folder):
-        raise InputError(f"output: folder {folder!r} does not exist")
-    from ..fileio import exclusive_temp
-
-    fd, tmp = exclusive_temp(folder, ".tmp-", ".nc")
-    os.close(fd)
     out = ds.copy()
     out["accepted"] = out["accepted"].astype("i1")  # netCDF has no boolean type
     out["accepted"].attrs = dict(ds["accepted"].attrs)
     out.attrs = {k: (int(v) if isinstance(v, (bool, np.bool_)) else v) for k, v in ds.attrs.items()}
-    try:
-        out.to_netcdf(tmp, engine="h5netcdf")
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    from .netcdf import write_netcdf
+
+    write_netcdf(out, path)
 
 
 def open_trajectory(path: str | os.PathLike) -> xr.Dataset:
     """Read a trajectory written by :func:`save_trajectory` (fully loaded, file closed)."""
-    path = os.fspath(path)
-    if not os.path.isfile(path):
-        raise InputError(f"trajectory file: {path!r} does not exist")
-    try:
-        with xr.open_dataset(path, engine="h5netcdf") as handle:
-            ds = handle.load()
-    except (OSError, ValueError) as exc:
-        raise InputError(f"trajectory file {path!r}: not a readable netCDF file ({exc})") from None
+    from .netcdf import read_netcdf
+
+    ds = read_netcdf(path, "trajectory")
     validate_trajectory(ds)
     attrs = dict(ds["accepted"].attrs)
     ds["accepted"] = ds["accepted"].astype(bool)

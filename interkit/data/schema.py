@@ -377,20 +377,9 @@ def save_scan(ds: xr.Dataset, path: str | os.PathLike) -> None:
     """Write a scan Dataset to netCDF-4 (atomically: temporary file, then rename)."""
     validate(ds)
     path = os.fspath(path)
-    folder = os.path.dirname(os.path.abspath(path))
-    if not os.path.isdir(folder):
-        raise InputError(f"output: folder {folder!r} does not exist")
-    from ..fileio import exclusive_temp
+    from .netcdf import write_netcdf
 
-    fd, tmp = exclusive_temp(folder, ".tmp-", ".nc")   # mode follows the umask
-    os.close(fd)
-    try:
-        ds.to_netcdf(tmp, engine="h5netcdf", invalid_netcdf=False)
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    write_netcdf(ds, path)
 
 
 def open_scan(path: str | os.PathLike) -> xr.Dataset:
@@ -400,14 +389,10 @@ def open_scan(path: str | os.PathLike) -> xr.Dataset:
     :class:`~interkit.errors.InterkitWarning` that says so (attribute
     ``converted_from_schema``); see :mod:`interkit.data.upgrade`.
     """
+    from .netcdf import read_netcdf
+
     path = os.fspath(path)
-    if not os.path.isfile(path):
-        raise InputError(f"scan file: {path!r} does not exist")
-    try:
-        with xr.open_dataset(path, engine="h5netcdf") as handle:
-            ds = handle.load()
-    except (OSError, ValueError) as exc:
-        raise InputError(f"scan file {path!r}: not a readable netCDF scan ({exc})") from None
+    ds = read_netcdf(path, "scan")
     from .upgrade import upgrade
 
     ds, note = upgrade(ds, SCHEMA_VERSION)

@@ -145,33 +145,17 @@ def study_of(tree: xr.DataTree):
 def save_study(tree: xr.DataTree, path: str | os.PathLike) -> None:
     """Write a study tree to one netCDF-4 file (atomically: temporary file, then rename)."""
     validate_study(tree)
-    path = os.fspath(path)
-    folder = os.path.dirname(os.path.abspath(path))
-    if not os.path.isdir(folder):
-        raise InputError(f"output: folder {folder!r} does not exist")
-    from ..fileio import exclusive_temp
+    from .netcdf import write_netcdf
 
-    fd, tmp = exclusive_temp(folder, ".tmp-", ".nc")
-    os.close(fd)
-    try:
-        tree.to_netcdf(tmp, engine="h5netcdf", invalid_netcdf=False)
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    write_netcdf(tree, path)
 
 
 def open_study(path: str | os.PathLike) -> xr.DataTree:
     """Read a study tree written by :func:`save_study` (fully loaded, file closed)."""
+    from .netcdf import read_netcdf
+
     path = os.fspath(path)
-    if not os.path.isfile(path):
-        raise InputError(f"study file: {path!r} does not exist")
-    try:
-        with xr.open_datatree(path, engine="h5netcdf") as handle:
-            tree = handle.load().copy()
-    except (OSError, ValueError) as exc:
-        raise InputError(f"study file {path!r}: not a readable netCDF study ({exc})") from None
+    tree = read_netcdf(path, "study", tree=True)
     if tree.attrs.get("schema") != STUDY_SCHEMA_VERSION:
         found = tree.attrs.get("schema")
         hint = " (a scan file: open it with interkit.open_scan)" if found == SCAN_SCHEMA_VERSION else ""
