@@ -282,6 +282,56 @@ def test_composite_serves_as_reference(composite_run):
     assert comparison_table(ds).reference == COMPOSITE
 
 
+def test_study_ranks_against_a_composite(composite_run, tmp_path):
+    from interkit.analysis.study_stats import rank_methods
+
+    spec, ds, store = composite_run
+    system = ik.StudySystem("hf-dimer", hf_dimer(), factors=[1.0])
+    study = ik.Study("one", [system], levels=["hf/cc-pvdz", COMPOSITE], scf_threshold_hartree=TIGHT)
+    assert [getattr(lv, "label", lv) for lv in study.levels] == ["hf/cc-pvdz", COMPOSITE]
+    tree = ik.run_study(study, executor="serial", cache=store, progress=False)  # all from the store
+    table = rank_methods(tree, reference=COMPOSITE)
+    row = table[table["curve"] == "hf/cc-pvdz"].iloc[0]
+    # one point: the error is hf minus composite at it (definition of the error)
+    err = float(ds["e_int"].sel(level="hf/cc-pvdz").item() - ds["e_int"].sel(level=COMPOSITE).item())
+    assert float(row["mae_kcal_per_mol"]) == pytest.approx(abs(err), abs=1e-9)
+    assert COMPOSITE not in set(table["curve"])
+
+
+def test_verify_recomputes_the_components(composite_run, tmp_path):
+    _, ds, _ = composite_run
+    path = tmp_path / "c.nc"
+    ik.save_scan(ds, path)
+    table = ik.verify_scan(path, sample=1, executor="serial", progress=False)
+    assert table.passed, str(table)
+
+
+def test_dispersion_schemes_beside_a_composite(tmp_path):
+    from interkit.analysis.comparison import comparison_table
+    from interkit.data.dispersion import flatten_dispersion
+
+    comp = "mp2/cc-pvdz~cc-pvtz"
+    spec = _spec(["b3lyp/cc-pvdz", "hf/cc-pvdz", comp], factors=[1.0], dispersion=["none", "d3bj"])
+    ds = ik.run_scan(spec, executor="serial", cache=tmp_path / "store", progress=False)
+    assert [str(x) for x in ds["level"].values] == ["b3lyp/cc-pvdz", "hf/cc-pvdz", "mp2/cc-pvdz", "mp2/cc-pvtz",
+                                                    "hf/cc-pvtz", comp]
+    assert str(ds["dispersion_status"].sel(level=comp, dispersion="d3bj").values) == "not applicable: a composite level"
+    assert np.isnan(ds["e_int"].sel(level=comp, dispersion="d3bj").values).all()
+    e = {str(lv): float(ds["e_int"].sel(level=lv, dispersion="none").item()) for lv in ds["level"].values}
+    # the formula by hand, X = 2: HF(tz) + (27 c_tz - 8 c_dz) / 19 with c = E_int(mp2) - E_int(hf);
+    # hf/cc-pvdz is its own job (same SCF settings as mp2/cc-pvdz's SCF, converged separately)
+    c_dz, c_tz = e["mp2/cc-pvdz"] - e["hf/cc-pvdz"], e["mp2/cc-pvtz"] - e["hf/cc-pvtz"]
+    assert e[comp] == pytest.approx(e["hf/cc-pvtz"] + (27 * c_tz - 8 * c_dz) / 19, abs=1e-6)
+    assert float(ds["e_int_basis_uncertainty"].sel(level=comp).item()) == pytest.approx(
+        abs((27 * c_tz - 8 * c_dz) / 19 - c_tz), abs=1e-6)
+    flat = flatten_dispersion(ds)
+    assert "b3lyp-d3bj/cc-pvdz" in flat["level"].values and comp in flat["level"].values
+    table = comparison_table(ds)
+    assert table.reference == comp
+    assert "b3lyp-d3bj/cc-pvdz" in [r["curve"] for r in table.rows]
+    ik.validate(ds)
+
+
 def test_cli_scan_and_compare_with_a_composite(composite_run, tmp_path, capsys):
     from interkit.cli.main import main
 
