@@ -381,3 +381,15 @@ def test_s22_composite_matches_s22b(name, tmp_path):
           f"basis uncertainty {float(ds['e_int_basis_uncertainty'].sel(level=S22_COMPOSITE).item()):.3f}")
     assert comp == pytest.approx(S22B[name], abs=0.10)
     assert abs(delta) <= CORRECTION_BOUND_KCAL_PER_MOL
+
+
+def test_launcher_takes_a_composite_level():
+    from conftest import require
+
+    W = require("interkit.widgets", "the notebook layer needs ipywidgets (pip install -e .[test])")
+    launcher = W.ScanLauncher(executor="serial")
+    launcher.load_xyz_text(hf_dimer().to_xyz_string(), "hf-dimer")
+    launcher.levels.value = f"hf/cc-pvdz, {COMPOSITE}"
+    spec = launcher.build_spec()
+    assert spec.requested_levels == ("hf/cc-pvdz", COMPOSITE)
+    assert launcher.n_calculations() == len(plan_scan(spec, check=False).jobs)

@@ -101,6 +101,7 @@ def add_composite_rows(ds: xr.Dataset, plan: ScanPlan, records: dict) -> xr.Data
                                        "interaction energy", "definition": UNCERTAINTY_NOTE})
     out.attrs["composite_recipe_json"] = json.dumps(recipes, sort_keys=True)
     out.attrs["composite_rows"] = COMPOSITE_TOTAL_NOTE
+    out["e_total_hartree"].attrs["composite_rows"] = COMPOSITE_TOTAL_NOTE
     out.attrs["requested_levels_json"] = json.dumps(list(spec.requested_levels))
     return out
 
