@@ -393,3 +393,22 @@ def test_launcher_takes_a_composite_level():
     spec = launcher.build_spec()
     assert spec.requested_levels == ("hf/cc-pvdz", COMPOSITE)
     assert launcher.n_calculations() == len(plan_scan(spec, check=False).jobs)
+
+
+def test_a_missing_component_fails_the_composite_point_and_says_which(composite_run):
+    from interkit.data.schema import assemble
+    from interkit.run.store import ResultStore
+
+    spec, _, store = composite_run
+    plan = plan_scan(spec, check=False)
+    records = {k: ResultStore(store).get(k) for k in plan.jobs}
+    ccsd = spec.levels.index(next(lv for lv in spec.levels if lv.method == "ccsd(t)"))
+    lost = plan.table[(ccsd, 0)]["dimer"]
+    records.pop(lost)
+    ds = assemble(plan, records)
+    comp = ds.sel(level=COMPOSITE).isel(distance=0)
+    assert str(comp["status"].values) == "failed" and np.isnan(float(comp["e_int"]))
+    assert "component ccsd(t)/cc-pvdz: dimer (dimer basis): not computed" in str(comp["status_detail"].values)
+    # the MP2 rows do not depend on it (common practice: nothing computed is lost)
+    assert str(ds["status"].sel(level="mp2/cc-pvtz").values[0]) == "ok"
+    assert str(ds["status"].sel(level="mp2/cc-pvdz (exact scf, exact correlation)").values[0]) == "failed"
