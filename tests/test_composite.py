@@ -248,6 +248,9 @@ def test_dataset_rows_kinds_and_derived_variables(composite_run, tmp_path):
                                   ds["job_key"].sel(level="mp2/cc-pvtz").values)
     recipe = json.loads(ds.attrs["composite_recipe_json"])[COMPOSITE]
     assert recipe["cardinal_numbers"] == [2, 3] and "9639" in recipe["citation"]
+    from interkit.share.methods import methods_references
+
+    assert "helgaker1997" in methods_references(ds) and f"composite level {COMPOSITE}" in ik.methods_text(ds)
     ik.validate(ds)
     ik.save_scan(ds, tmp_path / "c.nc")
     back = ik.open_scan(tmp_path / "c.nc")
