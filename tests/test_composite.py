@@ -61,7 +61,10 @@ def test_cardinal_numbers_and_refusals():
              ("mp2/cc-pvdz~cc-pvtz + ccsd(t)", "is not 'method/basis'"),
              ("ccsd(t)/cc-pvdz~cc-pvtz + ccsd(t)/cc-pvdz", "applies to an MP2 base"),
              ("mp2/cc-pvdz~cc-pvtz~cc-pvqz", "is not of the form"),
-             ("mp2/cc-pvdz~cc-pvtz (exact scf)", "note 'exact scf'")]
+             ("mp2/cc-pvdz~cc-pvtz (exact scf)", "note 'exact scf'"),
+             ("mp2/cc-pvdz + ccsd(t)/cc-pvdz", "needs an extrapolated base"),
+             ("mp2/cc-pvdz~", "is not of the form"),
+             ("mp2/cc-pvdz~cc-pvtz + ccsd(t)/cc-pvdz~cc-pvtz", "is not of the form")]
     for text, message in cases:
         with pytest.raises(InputError, match=message.replace("(", r"\(").replace("+", r"\+")) as info:
             ik.parse_level(text)
@@ -82,8 +85,9 @@ def test_label_round_trip_and_display():
     assert [lv.label for lv in comp.components()] == ["mp2/aug-cc-pvtz", "mp2/aug-cc-pvqz", "ccsd(t)/aug-cc-pvdz"]
     assert [lv.label for lv, _, _ in comp.derived()] == ["hf/aug-cc-pvqz",
                                                           "mp2/aug-cc-pvdz (exact scf, exact correlation)"]
-    # the plain parser is unchanged for plain levels
+    # the plain parser is unchanged for plain levels (a '+' in a basis name stays one)
     assert ik.parse_level("mp2/cc-pvdz").label == "mp2/cc-pvdz"
+    assert ik.parse_level("hf/6-31+g*").basis == "6-31+g*"
 
 
 def test_spec_levels_forces_refusal_and_round_trips(tmp_path):
