@@ -37,10 +37,11 @@ from .errors import (
     ResourceError,
     StoreError,
 )
+from .model.composite import CompositeLevel, parse_level
 from .model.coordinates import AtomPair, CentreOfMass, Frames, ScanCoordinate, Vector
 from .model.demo import demo_catalog, list_demos, load_demo
 from .model.geometry import Dimer
-from .model.levels import LevelOfTheory, parse_level
+from .model.levels import LevelOfTheory
 from .model.orientation import Offset, OrientationGrid, Rotation, Separation
 from .model.orientation_sampling import OrientationSample
 from .model.s22 import s22_study
@@ -68,7 +69,7 @@ from .version import __version__
 
 __all__ = [
     "AtomPair", "CentreOfMass", "analysis", "check_feasibility", "comparison", "ConvergenceError", "DEFAULT_STORE", "fits", "Dimer", "Frames", "InputError",
-    "InterkitError", "InterkitWarning", "LevelOfTheory", "NotAvailableError", "ResourceError",
+    "CompositeLevel", "InterkitError", "InterkitWarning", "LevelOfTheory", "NotAvailableError", "ResourceError",
     "ScanCoordinate", "ScanSpec", "StoreError", "Vector", "__version__", "convert_energy",
     "demo_catalog", "export_scan", "list_demos", "load_demo", "load_spec_toml", "methods_bibtex", "methods_text",
     "open_scan", "parse_level", "rerun_scan", "run_scan", "save_scan", "spec_of", "validate", "verify_scan",
