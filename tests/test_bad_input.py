@@ -239,6 +239,10 @@ ROWS = [
     cmd("store prune without limit", "store prune {t}", "the following arguments are required: --max-size"),
     # ------------------------------------------------------------------ later options and commands
     spec("keep_densities not a flag", "keep_densities", calculation='levels = ["hf/sto-3g"]\nkeep_densities = "yes"'),
+    spec("default fitting basis lacks an element", "jk_auxbasis: pyscf's fitting basis for cc-pvdz, 'cc-pvdz-jkfit', "
+         "has no functions for He", xyz="2\nhelium dimer\nHe 0 0 0\nHe 0 0 3.0\n",
+         system='geometry = "g.xyz"\nfragment_a = [0]', scan='coordinate = "atom-pair"\natoms = [0, 1]\nfactors = [1.0]',
+         calculation='levels = ["hf/cc-pvdz"]'),
     cmd("show unknown energy unit", "show {d}/scan.nc --unit furlongs", "--unit: invalid choice: 'furlongs'"),
     cmd("show unknown force unit", "show {d}/scan.nc --force-unit N", "--force-unit: invalid choice: 'N'"),
     cmd("cube point outside the scan", "cube {d}/scan.nc --point 99 -o {t}/c", "point: 99 is not a point of the scan"),

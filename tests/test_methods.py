@@ -123,3 +123,15 @@ def test_every_reference_entry_is_complete():
         assert {"author", "title", "journal", "volume", "pages", "year"} <= set(fields), key
         assert re.fullmatch(r"(19|20)\d\d", fields["year"]), key
         assert key.endswith(fields["year"]) or fields["year"] in key, key
+
+
+def test_frozen_core_flag_is_described_in_words(tmp_path):
+    """The recorded frozen_core flag reads as what it means, never as 'True'/'False'
+    (the paragraph is for a paper's methods section)."""
+    spec = ik.ScanSpec(dimer=hf_dimer(), coordinate=ik.AtomPair(1, 2), factors=[1.0],
+                       levels=["mp2/sto-3g", "mp2/sto-3g (all-electron)"])
+    ds = ik.run_scan(spec, executor="serial", cache=None, progress=False)
+    text = ik.methods_text(ds)
+    assert "True in the correlation" not in text and "False in the correlation" not in text
+    assert "frozen core orbitals (pyscf's chemical core" in text
+    assert "all electrons correlated (no frozen core) in the correlation treatment" in text

@@ -10,6 +10,9 @@ still come before work:
   (a missing library is reported as such, not as missing parameters);
 * the size of every calculation (:func:`interkit.engine.cost.check_resources`) and of
   the SAPT0 decomposition lies within the spec's limits;
+* the fitting basis pyscf picks for a density-fitted SCF (``jk_auxbasis`` not given)
+  covers every element: pyscf names one partner set for the whole molecule (e.g.
+  ``cc-pvdz-jkfit``), which fails at run time for an element it lacks (He);
 * CCSD(T) on a large dimer basis gets a warning with the measured cost.
 """
 
@@ -60,6 +63,36 @@ def decomposition_cost(spec: ScanSpec) -> dict | None:
     return cost
 
 
+def check_default_fitting_basis(level, symbols) -> None:
+    """Raise InputError when pyscf's own choice of the SCF fitting basis for ``level``
+    (no ``jk_auxbasis`` given) has no functions for one of the elements ``symbols``."""
+    if not level.scf_fitted or level.jk_auxbasis:
+        return
+    from pyscf import gto
+    from pyscf.df.addons import predefined_auxbasis
+
+    from ..model.levels import _basis_has_element
+
+    xc = level.functional if level.method == "dft" else "HF"
+    elements = sorted(set(symbols))
+    mol = gto.Mole()
+    mol.atom = [(e, (0.0, 0.0, 3.0 * k)) for k, e in enumerate(elements)]
+    mol.basis, mol.spin, mol.verbose = level.basis, None, 0
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        try:
+            name = predefined_auxbasis(mol, level.basis, xc)
+        except Exception:  # no partner set known: pyscf generates one per element
+            return
+    if not isinstance(name, str):
+        return
+    lacking = [e for e in elements if not _basis_has_element(name, e)]
+    if lacking:
+        raise InputError(f"level {level.label} jk_auxbasis: pyscf's fitting basis for {level.basis}, "
+                         f"{name!r}, has no functions for {', '.join(lacking)}; give jk_auxbasis "
+                         "(e.g. 'def2-universal-jkfit') or density_fitting = false")
+
+
 def check_feasibility(spec: ScanSpec) -> dict:
     """Run every check of this module on ``spec``.
 
@@ -77,6 +110,7 @@ def check_feasibility(spec: ScanSpec) -> dict:
     for lv in spec.levels:
         if lv.method == "dft" and lv.dispersion:
             check_dispersion_parameters(lv.functional, lv.dispersion)
+        check_default_fitting_basis(lv, spec.dimer.symbols)
     costs = check_resources(spec)
     for lv in spec.levels:
         nbasis = costs[lv.label].get("nbasis") or 0

@@ -158,6 +158,9 @@ def _default(setting: str, level: dict, symbols: list[str], pyscf_note: str) -> 
 
 def _setting(setting: str, level: dict, spec: dict, symbols: list[str], pyscf_note: str) -> str:
     value = _recorded(level, spec, setting)
+    if setting == "frozen_core" and isinstance(value, bool):  # a flag, not a name to print
+        return ("frozen core orbitals (pyscf's chemical core, e.g. the 1s shell of C, N, O and F)" if value
+                else "all electrons correlated (no frozen core)")
     return str(value) if value is not None else _default(setting, level, symbols, pyscf_note)
 
 
