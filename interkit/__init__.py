@@ -33,10 +33,11 @@ from .errors import (
     ResourceError,
     StoreError,
 )
+from .model.composite import CompositeLevel, parse_level
 from .model.coordinates import AtomPair, CentreOfMass, Frames, ScanCoordinate, Vector
 from .model.demo import demo_catalog, list_demos, load_demo
 from .model.geometry import Dimer
-from .model.levels import LevelOfTheory, parse_level
+from .model.levels import LevelOfTheory
 from .model.s22 import s22_study
 from .model.spec import ScanSpec
 from .model.spec_file import load_spec_toml
@@ -60,7 +61,7 @@ from .version import __version__
 
 __all__ = [
     "AtomPair", "CentreOfMass", "analysis", "check_feasibility", "comparison", "ConvergenceError", "DEFAULT_STORE", "fits", "Dimer", "Frames", "InputError",
-    "InterkitError", "InterkitWarning", "LevelOfTheory", "NotAvailableError", "ResourceError",
+    "CompositeLevel", "InterkitError", "InterkitWarning", "LevelOfTheory", "NotAvailableError", "ResourceError",
     "ScanCoordinate", "ScanSpec", "StoreError", "Vector", "__version__", "convert_energy",
     "demo_catalog", "export_scan", "list_demos", "load_demo", "load_spec_toml", "methods_bibtex", "methods_text",
     "open_scan", "parse_level", "rerun_scan", "run_scan", "save_scan", "spec_of", "validate", "verify_scan",

@@ -82,7 +82,7 @@ def resolve_reference(ds: xr.Dataset, reference_level: str | None = None, refere
         label = reference_level
         if has_disp and chosen != "none":
             from ..data.dispersion import scheme_label
-            from ..model.levels import parse_level
+            from ..model.composite import parse_level
 
             label = scheme_label(parse_level(reference_level), chosen)
     elif isinstance(reference, ReferenceCurve):
@@ -302,7 +302,7 @@ def comparison_table(ds: xr.Dataset, reference: str | None = None, external: Ref
         ref, _ = resolve_reference(ds, reference_level=level, reference_dispersion=scheme, variable=variable)
         rows = ranking_table(ds, reference_level=level, reference_dispersion=scheme, **options)
     from ..data.dispersion import scheme_label
-    from ..model.levels import parse_level
+    from ..model.composite import parse_level
 
     for row in rows:
         scheme = row.get("dispersion")

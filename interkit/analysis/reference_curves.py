@@ -102,7 +102,7 @@ def curve_pairs(ds: xr.Dataset, variable: str | None = None) -> dict[str, tuple[
     """Folded label -> (level, scheme or None) of every curve with values of ``variable``
     (default ``e_int``, or ``e_int_nocp`` for a scan run without counterpoise)."""
     from ..data.dispersion import scheme_label
-    from ..model.levels import parse_level
+    from ..model.composite import parse_level
 
     if variable is None:
         variable = "e_int_nocp" if ds.attrs.get("counterpoise", "") == "none" else "e_int"

@@ -126,7 +126,7 @@ def _number(p: Path, lineno: int, row: list[str], col: str, i: int, empty_ok: bo
 def _curve_label(level: str, scheme: str) -> str:
     if not scheme or scheme == "none" or not level:
         return level
-    from ..model.levels import parse_level
+    from ..model.composite import parse_level
     from .dispersion import scheme_label
 
     return scheme_label(parse_level(level), scheme)

@@ -30,6 +30,8 @@ from collections.abc import Callable
 import numpy as np
 import xarray as xr
 
+from ..model.composite import CompositeLevel
+from ..model.composite import parse_level as parse_any_level
 from ..model.job import CP_ROLES, ScanPlan
 from ..model.levels import DISPERSION_LABELS, LevelOfTheory
 from ..units import HARTREE_TO_KCAL_PER_MOL
@@ -51,6 +53,8 @@ def pair_status(level: LevelOfTheory, scheme: str, reason: Callable[[str, str], 
     """``'ok'`` or why (level, scheme) has no values."""
     if scheme == "none":
         return "ok"
+    if isinstance(level, CompositeLevel):
+        return "not applicable: a composite level"
     if level.method != "dft":
         return f"not applicable: {level.method} is not a DFT level"
     why = reason(level.functional, scheme)
@@ -115,7 +119,9 @@ def assemble_with_schemes(plan: ScanPlan, records: dict, terms: dict, assemble_o
     schemes = list(spec.dispersion)
     parts = [assemble_one(plan, _shifted_records(records, terms, s)) for s in schemes]
     base = parts[0]
-    status = np.array([[pair_status(lv, s, reason) for s in schemes] for lv in spec.levels], dtype=object)
+    # rows of composites and of levels derived from their components follow spec.levels
+    rows = [parse_any_level(str(lab)) for lab in base["level"].values]
+    status = np.array([[pair_status(lv, s, reason) for s in schemes] for lv in rows], dtype=object)
     index = xr.IndexVariable("dispersion", np.array(schemes, dtype=str),
                              {"long_name": "post-hoc dispersion correction"})
     ds = base.copy()
@@ -128,6 +134,11 @@ def assemble_with_schemes(plan: ScanPlan, records: dict, terms: dict, assemble_o
         ok = xr.DataArray(status == "ok", dims=("level", "dispersion"))
         ds[name] = stacked.where(ok).assign_attrs(base[name].attrs)
     disp = np.stack([_disp_part(plan, terms, s) for s in schemes], axis=1)
+    if len(rows) > disp.shape[0]:  # derived and composite rows: wavefunction methods, no scheme
+        extra = np.full((len(rows) - disp.shape[0],) + disp.shape[1:], np.nan)
+        if "none" in schemes:
+            extra[:, schemes.index("none"), :] = 0.0
+        disp = np.concatenate([disp, extra])
     disp[status != "ok"] = np.nan
     disp[~np.broadcast_to(base["converged"].values[:, None, :], disp.shape)] = np.nan
     ds["e_disp_corr"] = (("level", "dispersion", "distance"), disp,
@@ -157,14 +168,12 @@ def flatten_dispersion(ds: xr.Dataset) -> xr.Dataset:
     """
     if "dispersion" not in ds.dims:
         return ds
-    from ..model.levels import parse_level
-
     levels = [str(x) for x in ds["level"].values]
     schemes = [str(x) for x in ds["dispersion"].values]
     pairs = available_pairs(ds)
     li = [levels.index(lv) for lv, _ in pairs]
     si = [schemes.index(s) for _, s in pairs]
-    labels = [scheme_label(parse_level(lv), s) for lv, s in pairs]
+    labels = [scheme_label(parse_any_level(lv), s) for lv, s in pairs]
     out = ds.drop_vars(["dispersion_status", "dispersion_label"]).isel(level=li)
     for name in list(out.data_vars):
         if "dispersion" in out[name].dims:

@@ -119,14 +119,16 @@ def assemble(plan: ScanPlan, records: dict[str, dict], missing_reason: str = "no
         ``dispersion`` (see :func:`interkit.engine.dispersion.dispersion_terms`); the
         Dataset then gets a ``dispersion`` dimension (see :mod:`interkit.data.dispersion`).
     """
+    from .composite import add_halfcp
+
     if not plan.spec.dispersion:
-        return _assemble_single(plan, records, missing_reason)
+        return add_halfcp(_assemble_single(plan, records, missing_reason))
     from ..engine.dispersion import scheme_unavailable_reason
     from .dispersion import assemble_with_schemes
 
-    return assemble_with_schemes(plan, records, dispersion_terms or {},
-                                 lambda p, r: _assemble_single(p, r, missing_reason),
-                                 scheme_unavailable_reason)
+    return add_halfcp(assemble_with_schemes(plan, records, dispersion_terms or {},
+                                            lambda p, r: _assemble_single(p, r, missing_reason),
+                                            scheme_unavailable_reason))
 
 
 def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: str) -> xr.Dataset:
@@ -297,6 +299,10 @@ def _assemble_single(plan: ScanPlan, records: dict[str, dict], missing_reason: s
             **_versions(),
         },
     )
+    if getattr(spec, "composites", ()):
+        from .composite import add_composite_rows
+
+        ds = add_composite_rows(ds, plan, records)
     return ds
 
 

@@ -151,9 +151,11 @@ def mp2_solver(mf, level: LevelOfTheory):
     return solver
 
 
-def correlation_energy(mf, level: LevelOfTheory) -> float:
+def correlation_energy(mf, level: LevelOfTheory, extra: dict | None = None) -> float:
     """Correlation energy (hartree; frozen core unless the level says otherwise) of a
-    converged SCF for MP2-type or CCSD(T) levels."""
+    converged SCF for MP2-type or CCSD(T) levels. For CCSD(T), ``extra`` (if given)
+    receives ``mp2_correlation_energy_hartree``: the MP2 energy of the same SCF and
+    frozen core, from the MP2 amplitudes CCSD starts with (composite levels use it)."""
     mol = mf.mol
     ncore = _frozen_core(mol, level)
     if level.method in ("mp2", "scs-mp2"):
@@ -172,6 +174,8 @@ def correlation_energy(mf, level: LevelOfTheory) -> float:
         solver.kernel()
         if not solver.converged:
             raise RuntimeError("CCSD amplitudes did not converge")
+        if extra is not None:
+            extra["mp2_correlation_energy_hartree"] = float(solver.emp2)
         return float(solver.e_corr + solver.ccsd_t())
     return 0.0
 
@@ -236,7 +240,9 @@ def run_energy_job(job: Job, guess=None) -> tuple[dict, object]:
             if want_gradient:
                 e_corr, e_disp = _gradient_outputs(job, mf, level, density, record)
             else:
-                e_corr = correlation_energy(mf, job.level)
+                extra = {}
+                e_corr = correlation_energy(mf, job.level, extra)
+                record.update(extra)
                 e_disp = 0.0
                 if job.level.dispersion:
                     real = job.real_atoms

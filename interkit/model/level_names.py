@@ -65,6 +65,8 @@ def display_label(level_label: str) -> str:
     label comes back unchanged.
     """
     text = str(level_label)
+    if "~" in text:
+        return _composite_text(text)
     core, notes = text, ""
     if text.endswith(")") and " (" in text:
         core, _, rest = text.rpartition(" (")
@@ -82,3 +84,24 @@ def display_label(level_label: str) -> str:
             head = head[: -len(scheme) - 1]
             break
     return f"{method_text(head)}{dispersion}/{basis_text(basis)}{notes}"
+
+
+def _composite_text(text: str) -> str:
+    """``'mp2/aug-cc-pvtz~aug-cc-pvqz + ccsd(t)/aug-cc-pvdz'`` ->
+    ``'MP2/CBS(aug-cc-pVTZ, aug-cc-pVQZ; X^-3) + ΔCCSD(T)/aug-cc-pVDZ'``."""
+    core, notes = text, ""
+    if text.endswith(")") and " (" in text:
+        core, _, rest = text.rpartition(" (")
+        notes = f" ({rest}"
+    base, plus, corr = core.partition("+")
+    if base.count("/") != 1 or base.count("~") != 1:
+        return text
+    method, _, pair = base.partition("/")
+    small, _, large = (p.strip() for p in pair.partition("~"))
+    out = f"{method_text(method)}/CBS({basis_text(small)}, {basis_text(large)}; X^-3)"
+    if plus:
+        if corr.count("/") != 1:
+            return text
+        cm, _, cb = (p.strip() for p in corr.partition("/"))
+        out += f" + Δ{method_text(cm)}/{basis_text(cb)}"
+    return out + notes

@@ -437,7 +437,10 @@ REFERENCE_PREFERENCE = ("ccsd(t)", "mp2", "scs-mp2")
 def default_reference(labels: list[str]) -> str:
     """The most accurate wavefunction level among ``labels`` (else the first label): the
     one rule by which reports, ``interkit compare`` and the comparison widget pick a
-    reference curve when none is named."""
+    reference curve when none is named. Composite (basis-set limit) levels come first."""
+    for label in labels:
+        if "~" in label:
+            return label
     for method in REFERENCE_PREFERENCE:
         for label in labels:
             if label.split("/")[0] == method:

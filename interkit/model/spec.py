@@ -14,6 +14,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import InputError, NotAvailableError
+from .composite import CompositeLevel, computed_levels
+from .composite import parse_level as parse_any_level
 from .coordinates import CentreOfMass, Frames, ScanCoordinate, coordinate_from_dict
 from .geometry import Dimer, covalent_radius_angstrom
 from .levels import (
@@ -22,7 +24,6 @@ from .levels import (
     LevelOfTheory,
     check_basis,
     ecp_assignment,
-    parse_level,
 )
 
 #: inter-fragment atoms may not come closer than this fraction of the sum of their
@@ -108,10 +109,15 @@ class ScanSpec:
     factors : sequence of float, optional
         Multiples of the starting value (exactly one of ``distances``/``factors``
         unless the coordinate is :class:`Frames`).
-    levels : sequence of str or LevelOfTheory
+    levels : sequence of str, LevelOfTheory or CompositeLevel
         Levels of theory, e.g. ``["hf/def2-svp", "b3lyp-d3bj/def2-svp"]``; numerical
         settings (frozen core, fitting, DFT grid, fitting bases) through
         ``ik.parse_level("mp2/cc-pvdz", frozen_core=False)`` or :class:`LevelOfTheory`.
+        Composite levels (``"mp2/cc-pvtz~cc-pvqz + ccsd(t)/cc-pvdz"``, see
+        :mod:`interkit.model.composite`) are computed through their components: after
+        construction ``levels`` holds the computed levels (the plain ones given, then
+        each composite's components not already listed), ``composites`` the composites
+        and ``requested_levels`` the labels as given.
     counterpoise : bool
         Boys–Bernardi counterpoise correction (dimer-basis monomers at every point).
     forces : bool
@@ -163,7 +169,7 @@ class ScanSpec:
     coordinate: ScanCoordinate = field(default_factory=CentreOfMass)
     distances: Sequence[float] | None = None
     factors: Sequence[float] | None = None
-    levels: Sequence[str | LevelOfTheory] = ("hf/def2-svp",)
+    levels: Sequence[str | LevelOfTheory | CompositeLevel] = ("hf/def2-svp",)
     counterpoise: bool = True
     forces: bool = False
     decomposition: str | None = None
@@ -192,22 +198,30 @@ class ScanSpec:
         factors = _positive_grid(self.factors, "factors") if self.factors is not None else None
         object.__setattr__(self, "distances", distances)
         object.__setattr__(self, "factors", factors)
-        if isinstance(self.levels, (str, LevelOfTheory)):
+        if isinstance(self.levels, (str, LevelOfTheory, CompositeLevel)):
             levels_in = [self.levels]
         else:
             levels_in = list(self.levels)
         if not levels_in:
             raise InputError("levels: no level of theory given")
-        levels = tuple(parse_level(x) for x in levels_in)
+        requested = tuple(parse_any_level(x) for x in levels_in)
         for key in ("counterpoise", "forces", "keep_densities"):
             if not isinstance(getattr(self, key), (bool, np.bool_)):
                 raise InputError(f"{key}: {getattr(self, key)!r} is not true or false")
-        if self.forces:
-            levels = _levels_for_forces(levels, any(self.dimer.spins))
-        labels = [lv.label for lv in levels]
+        labels = [lv.label for lv in requested]
         for lab in labels:
             if labels.count(lab) > 1:
                 raise InputError(f"levels: {lab!r} appears twice")
+        composites = tuple(lv for lv in requested if isinstance(lv, CompositeLevel))
+        if composites and self.forces:
+            raise NotAvailableError(f"forces: not available for composite level {composites[0].label!r}")
+        levels = tuple(lv for lv in requested if not isinstance(lv, CompositeLevel))
+        if self.forces:
+            levels = _levels_for_forces(levels, any(self.dimer.spins))
+        levels = computed_levels(levels, composites)
+        object.__setattr__(self, "composites", composites)
+        object.__setattr__(self, "requested_levels", tuple(labels))
+        object.__setattr__(self, "_requested", requested)
         for lv in levels:
             check_basis(lv, self.dimer.symbols)
         object.__setattr__(self, "levels", levels)
@@ -317,6 +331,8 @@ class ScanSpec:
             "distances": list(self.distances) if self.distances is not None else None,
             "factors": list(self.factors) if self.factors is not None else None,
             "levels": [lv.to_dict() for lv in self.levels],
+            # the user's list, only when it holds composites (the computed levels above)
+            **({"requested_levels": [lv.to_dict() for lv in self._requested]} if self.composites else {}),
             "counterpoise": bool(self.counterpoise),
             "forces": bool(self.forces),
             "decomposition": self.decomposition,
@@ -341,7 +357,7 @@ class ScanSpec:
             coordinate=coordinate_from_dict(data["coordinate"]),
             distances=data.get("distances"),
             factors=data.get("factors"),
-            levels=[LevelOfTheory.from_dict(x) for x in data["levels"]],
+            levels=[_level_from_dict(x) for x in data.get("requested_levels") or data["levels"]],
             counterpoise=data.get("counterpoise", True),
             forces=data.get("forces", False),
             decomposition=data.get("decomposition"),
@@ -436,3 +452,9 @@ def _check_dispersion_list(schemes, levels) -> tuple[str, ...] | None:
     if not any(lv.method == "dft" for lv in levels):
         raise InputError("dispersion: the schemes apply to DFT levels only, and no level is DFT")
     return tuple(items)
+
+
+def _level_from_dict(data: dict):
+    if data.get("kind") == "composite":
+        return CompositeLevel.from_dict(data)
+    return LevelOfTheory.from_dict(data)

@@ -6,9 +6,11 @@ import os
 import tomllib
 
 from ..errors import InputError, excerpt
+from .composite import apply_any_settings
+from .composite import parse_level as parse_any_level
 from .coordinates import AtomPair, CentreOfMass, Frames, ScanCoordinate, Vector
 from .geometry import Dimer
-from .levels import LEVEL_SETTINGS, LevelOfTheory, apply_settings, parse_level
+from .levels import LEVEL_SETTINGS, LevelOfTheory
 from .spec import (
     _TOML_KEYS,
     DEFAULT_DECOMPOSITION_BASIS,
@@ -163,8 +165,8 @@ def _levels_with_settings(items: list, common) -> list[LevelOfTheory]:
             text = item
         else:
             raise InputError(f"calculation.levels[{k}]: {item!r} is not a 'method/basis' string")
-        level = parse_level(text)
-        out.append(apply_settings(level, {**common, **own}))
+        level = parse_any_level(text)
+        out.append(apply_any_settings(level, {**common, **own}))
     return out
 
 

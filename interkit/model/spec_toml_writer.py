@@ -128,7 +128,9 @@ def spec_to_toml(spec) -> str:
               f"multiplicities = {_value(list(d.multiplicities))}"]
     if d.dimer_multiplicity is not None:
         system.append(f"dimer_multiplicity = {_value(int(d.dimer_multiplicity))}")
-    calc = [f"levels = {_value([lv.label for lv in spec.levels])}",
+    # a scan with composites lists them as given (their components are not written)
+    labels = list(spec.requested_levels) if spec.composites else [lv.label for lv in spec.levels]
+    calc = [f"levels = {_value(labels)}",
             f"counterpoise = {_value(bool(spec.counterpoise))}",
             f"forces = {_value(bool(spec.forces))}"]
     if spec.decomposition is not None:

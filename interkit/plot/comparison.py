@@ -32,7 +32,7 @@ def compared_curves(ds: xr.Dataset, reference_label: str | None = None,
 
 
 def _style(label: str) -> tuple[str, object]:
-    from ..model.levels import parse_level
+    from ..model.composite import parse_level
 
     level = parse_level(label)
     return (level.dispersion or "none"), SCHEME_STYLES.get(level.dispersion or "none", "solid")
@@ -87,7 +87,7 @@ def plot_comparison(ds: xr.Dataset, reference_level: str | None = None, referenc
         reference_dispersion in (None, "none")) else None
     if reference_level is not None and reference_dispersion not in (None, "none"):
         from ..data.dispersion import scheme_label
-        from ..model.levels import parse_level
+        from ..model.composite import parse_level
 
         own_label = scheme_label(parse_level(reference_level), reference_dispersion)
     chosen = compared_curves(ds, own_label, variable)

@@ -345,6 +345,10 @@ def entry_problem(key: str, job: dict, record: dict) -> str | None:
         e = record["energy_hartree"]
         if isinstance(e, bool) or not isinstance(e, (int, float)) or e != e:
             return "the record's energy_hartree is not a number"
+    level = job.get("level")
+    if isinstance(level, dict) and level.get("method") == "ccsd(t)" and "mp2_correlation_energy_hartree" not in record:
+        # stored before CCSD(T) jobs kept their MP2 part (composite levels need it)
+        return "the CCSD(T) record lacks mp2_correlation_energy_hartree"
     return None
 
 
