@@ -315,6 +315,12 @@ class ScanSpec:
         return self._points  # type: ignore[attr-defined]
 
     @property
+    def levels_as_given(self) -> tuple:
+        """The levels as given (plain and composite, in order; :attr:`requested_levels`
+        are their labels), before composites are replaced by their components."""
+        return self._requested  # type: ignore[attr-defined]
+
+    @property
     def is_rigid(self) -> bool:
         """True when every point is A fixed and B translated (not Frames)."""
         return not isinstance(self.coordinate, Frames)
@@ -332,7 +338,7 @@ class ScanSpec:
             "factors": list(self.factors) if self.factors is not None else None,
             "levels": [lv.to_dict() for lv in self.levels],
             # the user's list, only when it holds composites (the computed levels above)
-            **({"requested_levels": [lv.to_dict() for lv in self._requested]} if self.composites else {}),
+            **({"requested_levels": [lv.to_dict() for lv in self.levels_as_given]} if self.composites else {}),
             "counterpoise": bool(self.counterpoise),
             "forces": bool(self.forces),
             "decomposition": self.decomposition,

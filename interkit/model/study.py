@@ -20,9 +20,10 @@ from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 from ..errors import InputError
+from .composite import CompositeLevel, parse_level
 from .coordinates import CentreOfMass, ScanCoordinate
 from .geometry import Dimer
-from .levels import LevelOfTheory, parse_level
+from .levels import LevelOfTheory
 from .spec import DEFAULT_MEMORY_LIMIT_MB, DEFAULT_SCF_THRESHOLD_HARTREE, ScanSpec
 
 #: a reference distance matches a scan point within this many angstrom
@@ -183,7 +184,7 @@ class Study:
             if s.name in seen:
                 raise InputError(f"systems[{k}]: the name {s.name!r} appears twice")
             seen.add(s.name)
-        levels = [self.levels] if isinstance(self.levels, (str, LevelOfTheory)) else list(self.levels)
+        levels = [self.levels] if isinstance(self.levels, (str, LevelOfTheory, CompositeLevel)) else list(self.levels)
         levels = tuple(parse_level(x) for x in levels)
         object.__setattr__(self, "systems", systems)
         object.__setattr__(self, "levels", levels)
@@ -205,7 +206,7 @@ class Study:
             specs.append(spec)
         object.__setattr__(self, "specs", tuple(specs))
         object.__setattr__(self, "dispersion", specs[0].dispersion)
-        object.__setattr__(self, "levels", specs[0].levels)
+        object.__setattr__(self, "levels", _given(specs[0]))
 
     # ------------------------------------------------------------------ access
     @property
@@ -246,7 +247,7 @@ class Study:
         if not specs:
             raise InputError("specs: a study needs at least one spec")
         first = specs[0]
-        shared = ("levels", "dispersion", "counterpoise", "forces", "scf_threshold_hartree", "memory_limit_mb")
+        shared = ("levels", "requested_levels", "dispersion", "counterpoise", "forces", "scf_threshold_hartree", "memory_limit_mb")
         for k, sp in enumerate(specs):
             if not isinstance(sp, ScanSpec):
                 raise InputError(f"specs[{k}]: {type(sp).__name__} is not an interkit ScanSpec")
@@ -262,7 +263,7 @@ class Study:
             raise InputError(f"categories/references: {len(cats)}/{len(refs)} entries for {len(specs)} specs")
         systems = [StudySystem(sp.name, sp.dimer, sp.coordinate, sp.distances, sp.factors, c, r)
                    for sp, c, r in zip(specs, cats, refs)]
-        return cls(name, systems, first.levels, first.dispersion, first.counterpoise, first.forces,
+        return cls(name, systems, _given(first), first.dispersion, first.counterpoise, first.forces,
                    first.scf_threshold_hartree, first.memory_limit_mb)
 
     # ------------------------------------------------------------------ references
@@ -304,3 +305,8 @@ class Study:
 
 
 __all__ = ["ReferenceValue", "Study", "StudySystem", "check_system_name"]
+
+
+def _given(spec: ScanSpec) -> tuple:
+    """A spec's levels as a study keeps them: composites as given, else as computed."""
+    return spec.levels_as_given if spec.composites else spec.levels

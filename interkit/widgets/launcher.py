@@ -15,10 +15,11 @@ import ipywidgets as widgets
 import numpy as np
 
 from ..errors import InputError, InterkitError
+from ..model.composite import parse_level
 from ..model.coordinates import AtomPair, CentreOfMass
 from ..model.demo import demo_catalog, list_demos, load_demo
 from ..model.geometry import Dimer
-from ..model.levels import DEFAULT_GRID_LEVEL, parse_level
+from ..model.levels import DEFAULT_GRID_LEVEL
 from ..model.spec import DEFAULT_MEMORY_LIMIT_MB, ScanSpec
 from ..run.store import DEFAULT_STORE, resolve_cache
 from .contact_picking import ContactPicker
