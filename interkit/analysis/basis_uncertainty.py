@@ -2,8 +2,9 @@
 
 A composite or extrapolated level carries ``e_int_basis_uncertainty`` (level, distance,
 kcal/mol; NaN for levels that are not extrapolated). It belongs to one interaction-energy
-variable, named by its ``variable`` attr (default ``e_int``, the counterpoise-corrected
-curve): a band is drawn, and a table column reported, only with that variable, so the
+variable, named by its ``variable`` attr if it has one, else the scan's main curve:
+``e_int`` (counterpoise-corrected), or ``e_int_nocp`` for a scan without counterpoise
+(:mod:`interkit.data.composite` takes the spread of that curve): a band is drawn, and a table column reported, only with that variable, so the
 spread of one quantity is never shown around another.
 
 The curve variables a user can choose between (:data:`CURVE_VARIABLES`) are the
@@ -57,7 +58,8 @@ def uncertainty_variable_of(ds: xr.Dataset) -> str | None:
     """The curve variable the basis-set uncertainty of ``ds`` belongs to, or None without one."""
     if UNCERTAINTY_VARIABLE not in ds.variables:
         return None
-    return str(ds[UNCERTAINTY_VARIABLE].attrs.get("variable", "e_int"))
+    main = "e_int_nocp" if ds.attrs.get("counterpoise", "") == "none" else "e_int"
+    return str(ds[UNCERTAINTY_VARIABLE].attrs.get("variable", main))
 
 
 def basis_uncertainty(ds: xr.Dataset, level: str, variable: str = "e_int",
