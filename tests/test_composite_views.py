@@ -251,3 +251,68 @@ def test_compare_refuses_an_unknown_variable(scan, tmp_path, capsys):
     assert main(["compare", str(path), "--variable", "e_int_halfcp"]) == 2
     err = capsys.readouterr().err
     assert "--variable: 'e_int_halfcp' is not in the dataset" in err and "Traceback" not in err
+
+
+# ---------------------------------------------------------------------- a composite row
+COMPOSITE = "mp2/cc-pvdz~cc-pvtz + ccsd(t)/cc-pvdz"
+
+
+def _composite_scan():
+    """A composite scan assembled from made-up component records: every job gets an SCF and a
+    correlation energy (CCSD(T) jobs also their MP2 part), a Morse well in the dimer's."""
+    dimer = ik.Dimer.from_xyz_string(HF_DIMER_XYZ, name="hf-dimer")
+    spec = ik.ScanSpec(dimer=dimer, coordinate=ik.AtomPair(1, 2), factors=list(FACTORS),
+                       levels=[COMPOSITE, "b3lyp/sto-3g"])
+    plan = plan_scan(spec, check=False)
+    r = np.array([p.distance for p in spec.points])
+    records = {}
+    for (li, pi), roles in plan.table.items():
+        for role, key in roles.items():
+            well = _morse(r[pi], depth=2.0 + 0.3 * li, r0=1.9) / 627.5094740631 if role == "dimer" else 0.0
+            scf = {"dimer": -200.0, "a_dimer_basis": -100.001, "b_dimer_basis": -100.001}.get(role, -100.0)
+            corr = -0.4 - 0.01 * li + well if role == "dimer" else -0.2 - 0.005 * li
+            rec = {"status": "ok", "scf_energy_hartree": scf, "correlation_energy_hartree": corr,
+                   "energy_hartree": scf + corr, "wall_time_s": 0.1}
+            if spec.levels[li].method == "ccsd(t)":
+                rec["mp2_correlation_energy_hartree"] = corr + (0.0003 if role == "dimer" else 0.0001)
+            records[key] = rec
+    return assemble(plan, records)
+
+
+def test_band_and_column_of_an_assembled_composite_row(tmp_path):
+    import matplotlib.pyplot as plt
+
+    from interkit.analysis.comparison import comparison_table
+    from interkit.plot.curves import plot_curves
+
+    ds = _composite_scan()
+    kinds = dict(zip(ds["level"].values, ds["level_kind"].values))
+    assert kinds[COMPOSITE] == "composite"
+    u = ds["e_int_basis_uncertainty"].sel(level=COMPOSITE).values
+    assert np.isfinite(u).all() and (u > 0).all()   # the made-up bases differ, so the spread is not zero
+    ax = plot_curves(ds)
+    (band,) = _bands(ax)   # the composite only: components and the functional have NaN uncertainty
+    e = ds["e_int"].sel(level=COMPOSITE).values
+    r = ds["distance"].values
+    edges = _band_edges(band)
+    assert all((round(r[i], 9), round(e[i] + u[i], 9)) in edges for i in range(r.size))
+    plt.close(ax.figure)
+    table = comparison_table(ds, reference=COMPOSITE)
+    assert table.reference_uncertainty_mean_kcal_per_mol == pytest.approx(u.mean())
+    assert table.reference_uncertainty_at_minimum_kcal_per_mol == pytest.approx(u[int(np.argmin(e))])
+    row = next(x for x in table.rows if x["curve"] == "b3lyp/sto-3g")
+    assert row["reference_uncertainty_kcal_per_mol"] == pytest.approx(u.mean())
+
+
+def test_comparison_widget_shows_the_reference_uncertainty(scan, tmp_path):
+    pytest.importorskip("ipywidgets")
+    from interkit.analysis.comparison import comparison_table
+    from interkit.widgets.comparison import CorrectionComparison
+
+    widget = CorrectionComparison(scan, reference=REFERENCE, export_dir=tmp_path)
+    assert "ref. basis-set uncertainty / kcal/mol" in widget.table.value
+    expected = comparison_table(scan, reference=REFERENCE)
+    assert f"{expected.reference_uncertainty_at_minimum_kcal_per_mol:.3f} kcal/mol at its lowest point" \
+        in widget.table.value
+    assert f"<td>{0.92 / 6:.3f}</td>" in widget.table.value   # the mean of the six assigned values
+    assert len(_bands(widget.figure.axes[1])) == 1   # the zero-error band of the reference
