@@ -80,15 +80,17 @@ def add_composite_rows(ds: xr.Dataset, plan: ScanPlan, records: dict) -> xr.Data
     labels = computed + [d[0] for d in derived] + [c.label for c in spec.composites]
     fill = {"status": "failed", "status_detail": "", "job_key": "", "converged": False, "wall_time_s": 0.0}
     out = ds.reindex(level=labels, fill_value={k: v for k, v in fill.items() if k in ds})
-    for name in fill:  # reindex turns missing strings into objects
-        if name in out and out[name].dtype == object:
-            out[name] = out[name].astype(str)
+    text = [n for n in ("status", "status_detail", "job_key") if n in out]
+    for name in text:  # objects while rows are filled: fixed-width strings would truncate
+        out[name] = out[name].astype(object)
     for label, source, field in derived:
         _fill_derived(out, plan, records, label, source, index[source], field)
     recipes, uncertainty = {}, np.full((len(labels), plan.n_points), np.nan)
     for comp in spec.composites:
         uncertainty[labels.index(comp.label)] = _fill_composite(out, plan, records, comp, index)
         recipes[comp.label] = comp.recipe()
+    for name in text:
+        out[name] = out[name].astype(str)
     requested = set(spec.requested_levels)
     kinds = ["composite" if lab in recipes else "requested" if lab in requested else "component" for lab in labels]
     out = out.assign_coords(
@@ -101,6 +103,7 @@ def add_composite_rows(ds: xr.Dataset, plan: ScanPlan, records: dict) -> xr.Data
                                        "interaction energy", "definition": UNCERTAINTY_NOTE})
     out.attrs["composite_recipe_json"] = json.dumps(recipes, sort_keys=True)
     out.attrs["composite_rows"] = COMPOSITE_TOTAL_NOTE
+    out["e_total_hartree"].attrs["composite_rows"] = COMPOSITE_TOTAL_NOTE
     out.attrs["requested_levels_json"] = json.dumps(list(spec.requested_levels))
     return out
 

@@ -10,6 +10,10 @@ e_int_nocp                  level, distance             kcal/mol
                             (level, dispersion, distance when the spec lists
                             dispersion schemes: see :mod:`interkit.data.dispersion`)
 bsse                        level, distance             kcal/mol
+e_int_halfcp                level, distance             kcal/mol (mean of e_int and
+                                                        e_int_nocp)
+e_int_basis_uncertainty     level, distance             kcal/mol (extrapolated levels;
+                                                        NaN elsewhere)
 e_total_hartree             level, distance, role       hartree
 converged                   level, distance             (bool)
 status                      level, distance             ok/retried/
@@ -34,6 +38,9 @@ and ``status_detail`` says which calculation failed and why.
 The attribute ``level_settings_json`` records, per level label, the numerical settings
 used (SCF and correlation fitting, frozen core, DFT grid, the fitting bases pyscf's
 defaults resolved to, the ECPs) and the size estimate of its dimer calculation.
+
+Composite levels add rows after the computed levels, with coordinates ``level_kind`` and
+``used_by`` (see :mod:`interkit.data.composite`).
 
 Sign convention: interaction energies are negative when the dimer is bound. Every
 later variable (forces, components, dispersion corrections) is added to this layout:

@@ -155,7 +155,7 @@ def correlation_energy(mf, level: LevelOfTheory, extra: dict | None = None) -> f
     """Correlation energy (hartree; frozen core unless the level says otherwise) of a
     converged SCF for MP2-type or CCSD(T) levels. For CCSD(T), ``extra`` (if given)
     receives ``mp2_correlation_energy_hartree``: the MP2 energy of the same SCF and
-    frozen core, from the MP2 amplitudes CCSD starts with (composite levels use it)."""
+    frozen core, exact integrals (composite levels use it)."""
     mol = mf.mol
     ncore = _frozen_core(mol, level)
     if level.method in ("mp2", "scs-mp2"):
@@ -175,7 +175,14 @@ def correlation_energy(mf, level: LevelOfTheory, extra: dict | None = None) -> f
         if not solver.converged:
             raise RuntimeError("CCSD amplitudes did not converge")
         if extra is not None:
-            extra["mp2_correlation_energy_hartree"] = float(solver.emp2)
+            # pyscf's MP2 on this SCF (CCSD's own first-order energy takes the orbital
+            # energies from the Fock matrix of the converged density, which differs from
+            # the SCF's at the level of the SCF convergence, ~1e-9 hartree)
+            pt = mp.ump2.UMP2(mf) if is_unrestricted(mf) else mp.mp2.RMP2(mf)
+            pt.frozen = ncore or None
+            pt.verbose = 0
+            pt.kernel()
+            extra["mp2_correlation_energy_hartree"] = float(pt.e_corr)
         return float(solver.e_corr + solver.ccsd_t())
     return 0.0
 

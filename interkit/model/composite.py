@@ -295,6 +295,9 @@ def parse_level(text, **settings) -> LevelOfTheory | CompositeLevel:
         return text.with_settings(settings) if settings else text
     if is_composite_text(text):
         return parse_composite(text).with_settings(settings)
+    if isinstance(text, str) and "/" in text.partition("+")[2]:  # not a basis like 6-31+g*
+        raise InputError(f"levels: {text!r}: a correction '+ method/basis' needs an extrapolated base "
+                         "'method/basisX~basisY'")
     return parse_plain_level(text, **settings)
 
 

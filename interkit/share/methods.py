@@ -269,6 +269,7 @@ def _paragraph(ds: xr.Dataset) -> tuple[str, _Citations]:
     out.append(("The level of theory was " if len(levels) == 1 else "The levels of theory were ")
                + "; ".join(head for head, _ in levels) + ".")
     out += [details for _, details in levels]
+    out += _composite_sentences(ds, cite)
     tol = float(spec.get("scf_threshold_hartree", 1e-8))
     tol_text = f"SCF energies were converged to {tol:.0e} hartree"
     if spec.get("forces"):
@@ -303,6 +304,19 @@ def _paragraph(ds: xr.Dataset) -> tuple[str, _Citations]:
     out.append(f"Versions: {_versions(ds, uses_disp)}; energies converted with {ds.attrs.get('codata', 'CODATA 2018')} "
                "constants.")
     return cite.finish(" ".join(out)), cite
+
+
+def _composite_sentences(ds, cite: _Citations) -> list[str]:
+    """One sentence per composite level (from the Dataset's ``composite_recipe_json``)."""
+    try:
+        recipes = json.loads(ds.attrs.get("composite_recipe_json", "") or "{}")
+    except ValueError:
+        return []
+    return [f"The composite level {label} combines, per interaction energy and each term counterpoise-"
+            f"corrected in its own basis, {r['formula']}, with the two-point X^-3 extrapolation of the "
+            f"correlation energy (X = {r['cardinal_numbers'][0]}, {r['cardinal_numbers'][1]})"
+            + cite.cite(refs.EXTRAPOLATION_REFERENCES) + "."
+            for label, r in recipes.items()]
 
 
 def methods_text(ds) -> str:

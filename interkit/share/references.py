@@ -17,6 +17,10 @@ REFERENCES: dict[str, dict[str, str]] = {
                      "interactions by the differences of separate total energies. Some procedures with "
                      "reduced errors", journal="Mol. Phys.", volume="19", pages="553", year="1970",
                      doi="10.1080/00268977000101561"),
+    "helgaker1997": dict(author="Helgaker, T. and Klopper, W. and Koch, H. and Noga, J.",
+                         title="Basis-set convergence of correlated calculations on water",
+                         journal="J. Chem. Phys.", volume="106", pages="9639", year="1997",
+                         doi="10.1063/1.473863"),
     "becke1993": dict(author="Becke, A. D.", title="Density-functional thermochemistry. III. The role of "
                       "exact exchange", journal="J. Chem. Phys.", volume="98", pages="5648", year="1993",
                       doi="10.1063/1.464913"),
@@ -115,6 +119,7 @@ METHOD_REFERENCES = {"mp2": ("moller1934",), "scs-mp2": ("moller1934", "grimme20
                      "ccsd(t)": ("raghavachari1989",)}
 PROGRAM_REFERENCES = ("sun2018", "sun2020")
 COUNTERPOISE_REFERENCES = ("boys1970",)
+EXTRAPOLATION_REFERENCES = ("helgaker1997",)
 SAPT0_REFERENCES = ("jeziorski1994", "hohenstein2010")
 SSAPT0_REFERENCES = ("parker2014",)
 

@@ -90,9 +90,22 @@ def _level_methods(ds: xr.Dataset) -> dict[str, str]:
 
     try:
         levels = json.loads(ds.attrs["spec_json"])["levels"]
-        return {LevelOfTheory.from_dict(d).label: LevelOfTheory.from_dict(d).method for d in levels}
+        out = {LevelOfTheory.from_dict(d).label: LevelOfTheory.from_dict(d).method for d in levels}
     except (KeyError, ValueError, TypeError, InputError):
         return {}
+    if ds.attrs.get("composite_recipe_json"):
+        # rows derived from component jobs, and composites (correlated: combinations of
+        # correlation energies, each first order in the orbital error)
+        from ..model.composite import CompositeLevel, parse_level
+
+        for label in (str(x) for x in ds["level"].values):
+            if label not in out:
+                try:
+                    lv = parse_level(label)
+                except InputError:
+                    continue
+                out[label] = "composite" if isinstance(lv, CompositeLevel) else lv.method
+    return out
 
 
 def tolerances(ds: xr.Dataset) -> dict[str, Tolerance]:
