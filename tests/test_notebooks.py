@@ -12,7 +12,8 @@ import pytest
 
 NOTEBOOKS = Path(__file__).resolve().parent.parent / "notebooks"
 NAMES = ["01-quickstart.ipynb", "02-levels.ipynb", "03-reopen.ipynb", "04-forces.ipynb", "05-decomposition.ipynb",
-         "06-dispersion.ipynb", "07-share-and-scale.ipynb", "08-studies.ipynb"]
+         "06-dispersion.ipynb", "07-share-and-scale.ipynb", "08-studies.ipynb",
+         "09-composite-reference.ipynb"]
 WIDGET_VIEW = "application/vnd.jupyter.widget-view+json"
 
 
@@ -134,6 +135,30 @@ def test_notebook_executes(name, tmp_path, monkeypatch, saved_scan):
         ranks = [x.split()[1] for x in text.splitlines() if x[:3] in ("1. ", "2. ", "3. ")]
         assert ranks.index("b3lyp-d3bj/sto-3g") < ranks.index("b3lyp/sto-3g")
         assert "row 4, column 'reference_energy'" in text
+    elif name == "09-composite-reference.ipynb":
+        _check_composite_notebook(text)
     else:
         assert "found saved scan" in text and "nothing to compute" in text
         assert "computed and saved" not in text and _widget_views(nb) == 1
+
+
+def _check_composite_notebook(text: str) -> None:
+    """09-composite-reference: the composite is built from its components and ranks 2 functionals
+    x 3 schemes."""
+    import re
+
+    lines = text.splitlines()
+    kinds = [x.split()[0] for x in lines if x.startswith("  ") and x.split()[:1] in (["requested"], ["component"],
+                                                                                     ["composite"])]
+    assert kinds.count("composite") == 1 and kinds.count("requested") == 2 and kinds.count("component") >= 3
+    assert "ranked 6 curves against mp2/cc-pvdz~cc-pvtz + ccsd(t)/cc-pvdz" in text
+    line = next(x for x in lines if x.startswith("composite reference: lowest point"))
+    e_min, _, u_min = (float(w) for w in re.findall(r"-?\d+\.\d+", line))
+    # recalled from memory: neutral hydrogen-bonded dimers bind by roughly 2-8 kcal/mol, and a
+    # cc-pVDZ/cc-pVTZ extrapolation is uncertain by tenths of a kcal/mol, not by whole ones
+    assert -8.0 < e_min < -1.5 and 0.0 < u_min < 1.0
+    ranked = [x for x in lines if re.match(r"^\s*\d+\. \S+/def2-svp", x)]
+    assert len(ranked) == 6
+    # the uncertainty column holds one value for every row (all compared at the same points)
+    assert len({x.split()[4] for x in ranked}) == 1
+    assert "closest to the composite reference:" in text and "half-counterpoise" in text

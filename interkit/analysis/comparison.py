@@ -193,11 +193,19 @@ class ComparisonTable:
     relative : bool
         Errors in per cent of ``|reference|`` instead of kcal/mol.
     variable : str
-        The energy compared (``e_int``, or ``e_int_nocp`` for a scan without counterpoise).
+        The energy compared (``e_int``, ``e_int_nocp`` for a scan without counterpoise, or
+        the one asked for, e.g. ``e_int_halfcp``).
     columns : list of (str, str, str)
-        (column name, header, unit) of the statistics, in order.
+        (column name, header, unit) of the statistics, in order; when the reference has a
+        basis-set uncertainty, the last is ``reference_uncertainty_kcal_per_mol``: its
+        mean over the points each curve is compared at.
     rows : list of dict
         :func:`ranking_table` rows with their folded label under ``"curve"``.
+    reference_uncertainty_at_minimum_kcal_per_mol : float
+        The reference's basis-set uncertainty at its lowest computed point (NaN when it
+        has none).
+    reference_uncertainty_mean_kcal_per_mol : float
+        Its mean over the points of the region (NaN when it has none).
     """
 
     reference: str
@@ -208,19 +216,40 @@ class ComparisonTable:
     variable: str
     columns: list = field(default_factory=list)
     rows: list = field(default_factory=list)
+    reference_uncertainty_at_minimum_kcal_per_mol: float = math.nan
+    reference_uncertainty_mean_kcal_per_mol: float = math.nan
+
+    @property
+    def has_reference_uncertainty(self) -> bool:
+        """True when the reference has a basis-set uncertainty (an extrapolated level)."""
+        return math.isfinite(self.reference_uncertainty_mean_kcal_per_mol)
+
+    def uncertainty_text(self, unit: str = "kcal/mol") -> str:
+        """One sentence on the reference's basis-set uncertainty (in ``unit``), or ``''``."""
+        if not self.has_reference_uncertainty:
+            return ""
+        from ..units import convert_energy
+
+        at_min, mean = (convert_energy(v, "kcal/mol", unit) for v in (
+            self.reference_uncertainty_at_minimum_kcal_per_mol, self.reference_uncertainty_mean_kcal_per_mol))
+        return (f"the reference's basis-set uncertainty is {at_min:.3f} {unit} at its lowest point and "
+                f"{mean:.3f} {unit} on average over the region; column 'ref. basis-set uncertainty' "
+                f"({unit}) is its mean over the points each curve is compared at")
 
     def csv_rows(self) -> list[list]:
         """Comment line, header and rows of the CSV form (column convention of
         :mod:`interkit.data.columns`)."""
         keys = ["rank", "curve"] + [k for k, _, _ in self.columns] + ["n_compared", "status"]
         head = [f"# reference: {self.reference} ({self.chosen_by}); region: {self.region_text}; "
-                f"errors: {'per cent of |reference|' if self.relative else 'kcal/mol'}, curve minus reference"]
+                f"errors: {'per cent of |reference|' if self.relative else 'kcal/mol'}, curve minus reference"
+                + (f"; {self.uncertainty_text()}" if self.has_reference_uncertainty else "")]
         return [head, keys] + [[row.get(k, "") for k in keys] for row in self.rows]
 
 
 def comparison_table(ds: xr.Dataset, reference: str | None = None, external: ReferenceCurve | None = None,
                      region: str = "all", window_angstrom: float | None = None, relative: bool = False,
-                     near_zero_kcal_per_mol: float = NEAR_ZERO_KCAL_PER_MOL) -> ComparisonTable:
+                     near_zero_kcal_per_mol: float = NEAR_ZERO_KCAL_PER_MOL,
+                     variable: str | None = None) -> ComparisonTable:
     """The one statistics table of the report, ``interkit compare`` and the comparison widget.
 
     Parameters
@@ -235,12 +264,24 @@ def comparison_table(ds: xr.Dataset, reference: str | None = None, external: Ref
         An external reference curve instead (then ``reference`` must be None).
     region, window_angstrom, relative, near_zero_kcal_per_mol :
         See :mod:`interkit.analysis.error_statistics`.
+    variable : str, optional
+        The energy compared: ``'e_int'``, ``'e_int_nocp'`` or ``'e_int_halfcp'``
+        (half-counterpoise); default ``e_int``, or ``e_int_nocp`` for a scan without
+        counterpoise.
 
     Returns
     -------
     ComparisonTable
+        When the reference level has a basis-set uncertainty for ``variable``
+        (``e_int_basis_uncertainty``), a last column gives it, so a reader sees whether
+        a curve's error lies within the reference's own uncertainty.
     """
-    variable = "e_int_nocp" if ds.attrs.get("counterpoise", "") == "none" else "e_int"
+    from .basis_uncertainty import basis_uncertainty, check_curve_variable, uncertainty_summary
+
+    if variable is None:
+        variable = "e_int_nocp" if ds.attrs.get("counterpoise", "") == "none" else "e_int"
+    else:
+        check_curve_variable(ds, variable)
     window = check_region(region, window_angstrom)
     options = dict(variable=variable, region=region, window_angstrom=window, relative=relative,
                    near_zero_kcal_per_mol=near_zero_kcal_per_mol)
@@ -266,6 +307,21 @@ def comparison_table(ds: xr.Dataset, reference: str | None = None, external: Ref
     for row in rows:
         scheme = row.get("dispersion")
         row["curve"] = scheme_label(parse_level(row["level"]), scheme) if scheme else row["level"]
-    _, region_text = region_mask(ds["distance"].values, ref, region, window)
-    return ComparisonTable(label, chosen_by, region, region_text, bool(relative), variable,
-                           statistics_columns(relative), rows)
+    in_region, region_text = region_mask(ds["distance"].values, ref, region, window)
+    columns = statistics_columns(relative)
+    unc = basis_uncertainty(ds, level, variable, scheme) if external is None else None
+    summary = {"at_minimum_kcal_per_mol": math.nan, "mean_kcal_per_mol": math.nan}
+    if unc is not None:
+        summary = uncertainty_summary(ref, unc, in_region)
+        columns.append(("reference_uncertainty_kcal_per_mol", "ref. basis-set uncertainty", "kcal/mol"))
+        da = ds[variable]
+        for row in rows:
+            curve = da.sel(level=row["level"])
+            if "dispersion" in curve.dims:
+                curve = curve.sel(dispersion=row["dispersion"])
+            compared = in_region & np.isfinite(curve.transpose("distance").values)
+            if relative:
+                compared &= np.abs(ref) >= near_zero_kcal_per_mol
+            row["reference_uncertainty_kcal_per_mol"] = uncertainty_summary(ref, unc, compared)["mean_kcal_per_mol"]
+    return ComparisonTable(label, chosen_by, region, region_text, bool(relative), variable, columns, rows,
+                           summary["at_minimum_kcal_per_mol"], summary["mean_kcal_per_mol"])

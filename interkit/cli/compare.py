@@ -2,14 +2,17 @@
 
     interkit compare scan.nc [--reference LABEL | --reference-file FILE [--reference-curve LABEL]]
                              [--region all|bound|window] [--window X] [--relative] [--table out.csv]
-                             [--unit kJ/mol]
+                             [--unit kJ/mol] [--variable e_int|e_int_nocp|e_int_halfcp]
 
 The reference is a curve of the same scan, named by its folded label (e.g.
 ``mp2/def2-svp`` or ``b3lyp-d3bj/def2-svp``), or an external curve: a CSV file with
 columns ``distance_angstrom`` and ``e_int_kcal_per_mol``, or another saved scan (``.nc``;
 ``--reference-curve`` picks its curve); by default the most accurate wavefunction level
 of the scan (:func:`interkit.model.levels.default_reference`, the rule of the report and
-the comparison widget too). The table is
+the comparison widget too). ``--variable`` picks the energy compared: counterpoise-corrected
+(``e_int``, the default), uncorrected (``e_int_nocp``) or half-counterpoise
+(``e_int_halfcp``). When the reference has a basis-set uncertainty (an extrapolated or
+composite level), the table has a column with it. The table is
 :func:`interkit.analysis.comparison.comparison_table`'s, the same as the report's.
 """
 
@@ -42,6 +45,10 @@ def add_commands(sub) -> None:
     p.add_argument("--relative", action="store_true",
                    help="errors in per cent of |reference| (points with |reference| < 0.1 kcal/mol left out)")
     p.add_argument("--table", metavar="CSV", help="also write the ranking to this CSV file")
+    p.add_argument("--variable", choices=("e_int", "e_int_nocp", "e_int_halfcp"), default=None,
+                   help="energy compared: e_int (counterpoise-corrected), e_int_nocp (uncorrected) or "
+                        "e_int_halfcp (half-counterpoise) (default: e_int, or e_int_nocp for a scan "
+                        "without counterpoise)")
     from .output import add_unit_options
 
     add_unit_options(p, forces=False)
@@ -59,20 +66,22 @@ def _table(ds, args):
     external = reference_from_file(args.reference_file, args.reference_curve) if args.reference_file else None
     try:
         return comparison_table(ds, reference=args.reference, external=external, region=args.region,
-                                window_angstrom=args.window, relative=args.relative)
+                                window_angstrom=args.window, relative=args.relative,
+                                variable=getattr(args, "variable", None))
     except InputError as exc:
         text = str(exc)
         for word, option in (("reference:", "--reference:"), ("window_angstrom:", "--window:"),
-                             ("region:", "--region:")):
+                             ("region:", "--region:"), ("variable:", "--variable:")):
             if text.startswith(word):
                 text = option + text[len(word):]
         raise InputError(text) from None
 
 
-def format_table(table, unit: str = "kcal/mol") -> list[str]:
+def format_table(table, unit: str = "kcal/mol", counterpoise: bool = False) -> list[str]:
     """The printed lines of a :class:`~interkit.analysis.comparison.ComparisonTable`, with
     energies in ``unit`` (relative errors stay in per cent) and levels in the trade's
-    spelling."""
+    spelling; ``counterpoise`` says the scan has counterpoise calculations (so uncorrected
+    curves were compared by choice)."""
     from ..model.level_names import display_label
 
     shown_unit = "per cent of |reference|" if table.relative else unit
@@ -83,7 +92,12 @@ def format_table(table, unit: str = "kcal/mol") -> list[str]:
              f"ΔR_min in Å",
              f"region: {table.region_text}"]
     if table.variable == "e_int_nocp":
-        lines.append("the scan ran without counterpoise correction: the uncorrected curves (e_int_nocp) are compared")
+        lines.append("the uncorrected curves (e_int_nocp) are compared" if counterpoise else
+                     "the scan ran without counterpoise correction: the uncorrected curves (e_int_nocp) are compared")
+    elif table.variable == "e_int_halfcp":
+        lines.append("the half-counterpoise curves (e_int_halfcp: mean of corrected and uncorrected) are compared")
+    if table.has_reference_uncertainty:
+        lines.append(f"note: {table.uncertainty_text(unit)}")
     width = max([26] + [len(display_label(r["curve"])) + 2 for r in table.rows])
     widths = [max(10, len(h) + 2) for _, h, _ in table.columns]
     lines.append(f"{'rank':>4s}  {'curve':<{width}s}"
@@ -116,7 +130,8 @@ def run_compare(args) -> int:
         check_output(args.table, "--table", (".csv",), "CSV")
     ds = open_scan(args.scan)
     table = _table(ds, args)
-    print("\n".join(format_table(table, getattr(args, "unit", "kcal/mol"))))
+    print("\n".join(format_table(table, getattr(args, "unit", "kcal/mol"),
+                                  ds.attrs.get("counterpoise", "") != "none")))
     if "dispersion_status" in ds.variables:
         for level in ds["level"].values:
             for scheme in ds["dispersion"].values:

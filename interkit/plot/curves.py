@@ -18,7 +18,8 @@ from .style import (
     level_style,
 )
 
-__all__ = ["LEVEL_COLOURS", "plain_text", "plot_curves", "plot_forces", "curve_values", "default_ylim"]
+__all__ = ["LEVEL_COLOURS", "plain_text", "plot_curves", "plot_forces", "curve_values", "default_ylim",
+           "draw_uncertainty_band"]
 
 
 def plain_text(text: object) -> str:
@@ -27,9 +28,13 @@ def plain_text(text: object) -> str:
     return str(text).replace("\\$", "$").replace("$", "\\$")
 
 
-def curve_values(ds: xr.Dataset, level: str, unit: str = "kcal/mol") -> tuple[np.ndarray, str]:
-    """The energies drawn for ``level`` in ``unit``, and their variable: the
+def curve_values(ds: xr.Dataset, level: str, unit: str = "kcal/mol",
+                 variable: str | None = None) -> tuple[np.ndarray, str]:
+    """The energies drawn for ``level`` in ``unit``, and their variable: ``variable`` if
+    given (a key of :data:`interkit.analysis.basis_uncertainty.CURVE_VARIABLES`), else the
     counterpoise-corrected ``e_int``, or ``e_int_nocp`` when no counterpoise was computed."""
+    if variable is not None:
+        return convert_energy(ds[variable].sel(level=level).values, "kcal/mol", unit), variable
     e = convert_energy(ds["e_int"].sel(level=level).values, "kcal/mol", unit)
     if np.all(np.isnan(e)):
         return convert_energy(ds["e_int_nocp"].sel(level=level).values, "kcal/mol", unit), "e_int_nocp"
@@ -61,7 +66,8 @@ def full_ylim(values: np.ndarray) -> tuple[float, float] | None:
 
 def plot_curves(ds: xr.Dataset, ax=None, unit: str = "kcal/mol", show_uncorrected: bool = False,
                 show_bsse: bool = False, selected: float | None = None, levels=None,
-                show_minimum: bool = True, ylim: tuple[float, float] | str | None = None):
+                show_minimum: bool = True, ylim: tuple[float, float] | str | None = None,
+                variable: str | None = None):
     """Interaction energy against the scan coordinate, one curve per level.
 
     Each level is drawn as its computed points joined by the natural cubic spline that
@@ -87,14 +93,27 @@ def plot_curves(ds: xr.Dataset, ax=None, unit: str = "kcal/mol", show_uncorrecte
     ylim : (float, float) or 'wall', optional
         Energy-axis range in ``unit``; ``'wall'`` shows every value (the repulsive wall);
         default: the range that shows the well (:func:`default_ylim`).
+    variable : str, optional
+        The curve drawn: ``'e_int'`` (counterpoise-corrected), ``'e_int_nocp'``
+        (uncorrected) or ``'e_int_halfcp'`` (half-counterpoise, the mean of the two);
+        default ``e_int``, or ``e_int_nocp`` for a scan without counterpoise.
 
     Returns
     -------
     matplotlib.axes.Axes
+
+    Notes
+    -----
+    A level with a finite basis-set uncertainty (``e_int_basis_uncertainty``, for the
+    variable drawn) gets a shaded band E ± uncertainty at its points, labelled
+    "basis-set uncertainty".
     """
+    from ..analysis.basis_uncertainty import check_curve_variable
     from ..analysis.minima import curve_interpolant, find_minimum
 
     ds = flatten_dispersion(ds)
+    if variable is not None:
+        check_curve_variable(ds, variable)
     import matplotlib.pyplot as plt
 
     if ax is None:
@@ -106,11 +125,14 @@ def plot_curves(ds: xr.Dataset, ax=None, unit: str = "kcal/mol", show_uncorrecte
     for level in chosen:
         st = level_style(all_levels.index(level) if level in all_levels else chosen.index(level))
         colour = st["color"]
-        e, _ = curve_values(ds, level, unit)
+        e, shown = curve_values(ds, level, unit, variable)
         xs, ys = curve_interpolant(r, e)
         ax.plot(xs, ys, color=colour, ls=st["ls"], lw=1.8, label=legend_label(level))
         ax.plot(r, e, ls="none", marker=st["marker"], ms=4.5, color=colour, mec="white", mew=0.6, zorder=3)
         drawn.append(e)
+        band = draw_uncertainty_band(ax, ds, level, shown, r, e, unit, colour)
+        if band is not None:
+            drawn.extend(band)
         if show_minimum:   # the spline is linear in E: its minimum in any unit is the same point
             m = find_minimum(r, e)
             if m.interior:
@@ -138,6 +160,28 @@ def plot_curves(ds: xr.Dataset, ax=None, unit: str = "kcal/mol", show_uncorrecte
     if limits is not None:
         ax.set_ylim(*limits)
     return ax
+
+
+def draw_uncertainty_band(ax, ds: xr.Dataset, level: str, variable: str, r: np.ndarray, e: np.ndarray,
+                          unit: str, colour: str, label: str | None = None):
+    """Shade ``e`` ± the basis-set uncertainty of ``level`` (``e`` in ``unit``) when it
+    has one for ``variable``; return the band's (lower, upper) values, or None.
+
+    The band joins the computed points (``fill_between``, gid ``interkit-basis-band``)
+    and leaves gaps at points where the energy or the uncertainty is unknown.
+    """
+    from ..analysis.basis_uncertainty import BAND_LABEL, basis_uncertainty
+
+    u = basis_uncertainty(ds, level, variable)
+    if u is None:
+        return None
+    u = convert_energy(u, "kcal/mol", unit)
+    ok = np.isfinite(e) & np.isfinite(u)
+    lower, upper = np.where(ok, e - u, np.nan), np.where(ok, e + u, np.nan)
+    text = label if label is not None else legend_label(level, BAND_LABEL)
+    band = ax.fill_between(r, lower, upper, where=ok, color=colour, alpha=0.2, lw=0, label=text, zorder=1)
+    band.set_gid("interkit-basis-band")
+    return lower, upper
 
 
 def plot_forces(ds: xr.Dataset, ax=None, levels=None, show_fit: bool = True, show_split: bool = False,

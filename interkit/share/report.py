@@ -127,16 +127,20 @@ def _table(header: list[str], rows: list[list], text: tuple[int, ...] = (0,)) ->
 
 
 def _energy_section(ds: xr.Dataset, unit: str = "kcal/mol") -> str:
+    from ..analysis.basis_uncertainty import basis_uncertainty
     from ..model.level_names import display_label
     from ..plot.curves import plot_curves
     from ..units import convert_energy
 
     levels = [str(x) for x in ds["level"].values]
     cp = ds.attrs.get("counterpoise", "") != "none"
+    banded = any(basis_uncertainty(ds, lv, "e_int") is not None for lv in levels)
     parts = ["<h2>Interaction-energy curves</h2>",
              _figure(lambda ax: plot_curves(ds, ax=ax, show_uncorrected=cp, unit=unit),
                      "Counterpoise-corrected interaction energy (solid) and uncorrected (dashed) against "
-                     "the scan coordinate; shaded bands mark failed points." if cp else
+                     "the scan coordinate; shaded bands mark failed points"
+                     + ("; a shaded band along a curve is its basis-set uncertainty" if banded else "") + "."
+                     if cp else
                      "Interaction energy (no counterpoise correction) against the scan coordinate.",
                      "interaction-energy curves")]
     variable = "e_int" if cp else "e_int_nocp"
@@ -255,7 +259,8 @@ def _comparison_section(ds: xr.Dataset, reference: str | None, explicit: bool, o
     return ("<h2>Levels against a reference</h2>"
             f'<p class="note">Reference: <b>{_e(display_label(table.reference))}</b> '
             f"({_e(how)}). Region: {_e(table.region_text)}. Errors are curve minus reference, {_e(unit)}; "
-            "a positive well-depth error ΔDe means a deeper well. The reference is itself a model result.</p>"
+            "a positive well-depth error ΔDe means a deeper well. The reference is itself a model result"
+            + (f"; {_e(table.uncertainty_text())}" if table.has_reference_uncertainty else "") + ".</p>"
             + _table(header, rows, text=(1, len(header) - 1)).replace("<table", '<table class="statistics"', 1))
 
 

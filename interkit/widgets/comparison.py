@@ -200,8 +200,9 @@ class CorrectionComparison(widgets.VBox):
                 cells.append(f"<td>{v:.3f}</td>" if np.isfinite(v) else "<td>–</td>")
             body.append(f"<tr><td>{row['rank']}</td><td>{html.escape(row['curve'])}</td>{''.join(cells)}"
                         f"<td>{row['n_compared']}</td></tr>")
+        note = f"; {html.escape(table.uncertainty_text(unit))}" if table.has_reference_uncertainty else ""
         return (f'<div style="font-size:85%">reference: {html.escape(table.reference)} ({table.chosen_by}); '
-                f"region: {html.escape(table.region_text)}</div>"
+                f"region: {html.escape(table.region_text)}{note}</div>"
                 '<table class="interkit-ranking-table" style="border-collapse:collapse;font-size:90%">'
                 f"<thead><tr><th>rank</th><th>curve</th>{head}<th>points</th></tr></thead>"
                 f"<tbody>{''.join(body)}</tbody></table>")

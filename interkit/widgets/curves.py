@@ -27,10 +27,11 @@ from ..plot.style import level_colour  # noqa: F401 (re-exported for the widgets
 MARKER_COLOUR = "#111111"
 
 
-def shown_energy(ds: xr.Dataset, level: str, unit: str) -> np.ndarray:
-    """The curve drawn for ``level``: corrected energies, or uncorrected if no
-    counterpoise was computed (as :func:`interkit.plot.curves.plot_curves` does), in ``unit``."""
-    return curve_values(ds, level, unit)[0]
+def shown_energy(ds: xr.Dataset, level: str, unit: str, variable: str | None = None) -> np.ndarray:
+    """The curve drawn for ``level``: ``variable`` if given, else corrected energies, or
+    uncorrected if no counterpoise was computed (as :func:`interkit.plot.curves.plot_curves`
+    does), in ``unit``."""
+    return curve_values(ds, level, unit, variable)[0]
 
 
 def ipympl_available() -> bool:
@@ -100,6 +101,8 @@ class CurvePanel:
         self._guide = None
         self.levels: list[str] = []
         self.unit = "kcal/mol"
+        #: the energy variable drawn (None: e_int, or e_int_nocp without counterpoise)
+        self.variable: str | None = None
         self.ylim: tuple[float, float] | None = None
         self.marker_xy: dict[str, tuple[float, float]] = {}
         self._curves: dict[str, np.ndarray] = {}
@@ -108,11 +111,11 @@ class CurvePanel:
     def _draw(self, unit: str, show_uncorrected: bool, show_bsse: bool) -> None:
         """Draw the static curves of ``self.levels`` on ``self.ax``."""
         plot_curves(self.ds, ax=self.ax, unit=unit, show_uncorrected=show_uncorrected,
-                    show_bsse=show_bsse, levels=self.levels, ylim=self.ylim)
+                    show_bsse=show_bsse, levels=self.levels, ylim=self.ylim, variable=self.variable)
 
     def _marked_values(self, level: str, unit: str) -> np.ndarray:
         """The values the marker of ``level`` follows, one per point."""
-        return shown_energy(self.ds, level, unit)
+        return shown_energy(self.ds, level, unit, self.variable)
 
     def value_range(self) -> tuple[float, float] | None:
         """The y range that shows every marked value of the drawn levels (the wall included)."""
@@ -120,12 +123,15 @@ class CurvePanel:
         return full_ylim(np.concatenate(values)) if values else None
 
     def redraw(self, levels, unit: str, show_uncorrected: bool, show_bsse: bool, index: int,
-               ylim: tuple[float, float] | None = None) -> None:
+               ylim: tuple[float, float] | None = None, variable: str | None = None) -> None:
         """Draw the curves from scratch, then place the marker at point ``index``.
 
-        ``ylim`` is the energy-axis range in ``unit`` (default: the range showing the well).
+        ``ylim`` is the energy-axis range in ``unit`` (default: the range showing the well);
+        ``variable`` the energy drawn (``e_int``, ``e_int_nocp`` or ``e_int_halfcp``;
+        default as :func:`interkit.plot.curves.plot_curves`). A level with a basis-set
+        uncertainty gets its shaded band.
         """
-        self.levels, self.unit, self.ylim = list(levels), unit, ylim
+        self.levels, self.unit, self.ylim, self.variable = list(levels), unit, ylim, variable
         self.figure.set_layout_engine("constrained")
         self.ax.clear()
         self._draw(unit, show_uncorrected, show_bsse)

@@ -42,6 +42,21 @@ def _fmt(value: float, unit: str) -> str:
     return f"{value:.{digits}f} {unit}"
 
 
+def curve_variable_options(ds: xr.Dataset) -> list[tuple[str, str]]:
+    """(label, variable) of the curves the explorer can draw: the default (``''``, the
+    counterpoise-corrected curve or the uncorrected one of a scan without counterpoise),
+    and with counterpoise the half-counterpoise and uncorrected curves it has."""
+    from ..analysis.basis_uncertainty import CURVE_VARIABLES
+
+    if ds.attrs.get("counterpoise", "") == "none":
+        return [("uncorrected", "")]
+    out = [("counterpoise-corrected", "")]
+    for name in ("e_int_halfcp", "e_int_nocp"):
+        if name in ds.variables:
+            out.append((CURVE_VARIABLES[name], name))
+    return out
+
+
 class ScanExplorer(widgets.VBox):
     """Explore a counterpoise-corrected interaction-energy scan.
 
@@ -73,6 +88,11 @@ class ScanExplorer(widgets.VBox):
         Energy-axis range of the curve panel, in the display unit.
     show_uncorrected, show_bsse : bool
         Draw the uncorrected curve / the BSSE as well.
+    variable : str
+        The energy of the curve panel: ``'e_int'`` (counterpoise-corrected), or
+        ``'e_int_halfcp'`` (half-counterpoise) / ``'e_int_nocp'`` (uncorrected) when the
+        scan has them (control "curve"); ``''`` = the default of
+        :func:`interkit.plot.curves.plot_curves`.
     """
 
     index = traitlets.Int(0)
@@ -81,6 +101,7 @@ class ScanExplorer(widgets.VBox):
     force_unit = traitlets.Unicode("kcal/mol/angstrom")
     show_uncorrected = traitlets.Bool(False)
     show_bsse = traitlets.Bool(False)
+    variable = traitlets.Unicode("")
 
     def __init__(self, ds: xr.Dataset | str | os.PathLike, unit: str = "kcal/mol",
                  export_dir: str | os.PathLike | None = None, cache: str | os.PathLike | None = None):
@@ -113,13 +134,19 @@ class ScanExplorer(widgets.VBox):
         if ds.attrs.get("counterpoise") == "none":
             self.bsse_box.disabled = True
             self.bsse_box.tooltip = "no counterpoise calculations in this scan"
+        self.variable_select = widgets.Dropdown(options=curve_variable_options(ds), value="",
+                                                description="curve", layout=widgets.Layout(width="300px"),
+                                                tooltip="the interaction energy drawn")
+        self.variable_select.add_class("interkit-curve-variable")
+        self.variable_select.layout.display = None if len(self.variable_select.options) > 1 else "none"
         self.force_unit_select = widgets.Dropdown(options=list(FORCE_UNITS), value="kcal/mol/angstrom",
                                                   description="force unit", layout=widgets.Layout(width="260px"))
         self.force_unit_select.add_class("interkit-force-unit")
         self.level_select.options = [(ALL_LEVELS, ALL_LEVELS)] + [(display_label(lv), lv) for lv in self.levels]
         for name, control in (("index", self.slider), ("level", self.level_select),
                               ("unit", self.unit_select), ("show_uncorrected", self.uncorrected_box),
-                              ("show_bsse", self.bsse_box), ("force_unit", self.force_unit_select)):
+                              ("show_bsse", self.bsse_box), ("force_unit", self.force_unit_select),
+                              ("variable", self.variable_select)):
             widgets.link((self, name), (control, "value"))
         # y range of the energy panel: the well by default, the repulsive wall on request
         self.wall_box = widgets.Checkbox(value=False, description="show repulsive wall", indent=False)
@@ -190,6 +217,7 @@ class ScanExplorer(widgets.VBox):
         controls = widgets.VBox([
             widgets.HBox([self.slider, self.point_label]),
             widgets.HBox([self.level_select, self.uncorrected_box, self.bsse_box]),
+            widgets.HBox([self.variable_select]),
             widgets.HBox([self.unit_select] + ([self.force_unit_select] if self.has_forces else [])),
         ])
         export_row = widgets.VBox([
@@ -280,12 +308,14 @@ class ScanExplorer(widgets.VBox):
             self.force_panel.move_marker(self.index)
         self._update_components()
 
-    @traitlets.observe("level", "unit", "show_uncorrected", "show_bsse", "force_unit")
+    @traitlets.observe("level", "unit", "show_uncorrected", "show_bsse", "force_unit", "variable")
     def _on_view_change(self, change) -> None:
         if not hasattr(self, "curves"):
             return
         if change["name"] == "unit" and change["new"] not in DISPLAY_UNITS:
             raise traitlets.TraitError(f"unit: {change['new']!r} is not one of {', '.join(DISPLAY_UNITS)}")
+        if change["name"] == "variable" and change["new"] not in dict(curve_variable_options(self.ds)).values():
+            raise traitlets.TraitError(f"variable: {change['new']!r} is not a curve of this scan")
         if change["name"] == "force_unit" and change["new"] not in FORCE_UNITS:
             raise traitlets.TraitError(f"force_unit: {change['new']!r} is not one of {', '.join(FORCE_UNITS)}")
         if change["name"] == "unit" and self.force_unit != MATCHING_FORCE_UNIT[self.unit]:
@@ -305,7 +335,8 @@ class ScanExplorer(widgets.VBox):
             self.view3d.set_frames(self.scenes(), self.index)
 
     def _redraw_curves(self) -> None:
-        self.curves.redraw(self.shown_levels, self.unit, self.show_uncorrected, self.show_bsse, self.index)
+        self.curves.redraw(self.shown_levels, self.unit, self.show_uncorrected, self.show_bsse, self.index,
+                           variable=self.variable or None)
         if self.force_panel is not None:
             self.force_panel.redraw(self.shown_levels, self.force_unit, False, False, self.index)
         self.headline.value = headline_html(self._headline_rows, self.unit, self.levels, self.shown_levels)
