@@ -303,6 +303,8 @@ def test_study_ranks_against_a_composite(composite_run, tmp_path):
     err = float(ds["e_int"].sel(level="hf/cc-pvdz").item() - ds["e_int"].sel(level=COMPOSITE).item())
     assert float(row["mae_kcal_per_mol"]) == pytest.approx(abs(err), abs=1e-9)
     assert COMPOSITE not in set(table["curve"])
+    # its components (not asked for) are parts of the reference, not ranked methods
+    assert set(table["curve"]) == {"hf/cc-pvdz"}
 
 
 def test_verify_recomputes_the_components(composite_run, tmp_path):

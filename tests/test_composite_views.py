@@ -316,3 +316,18 @@ def test_comparison_widget_shows_the_reference_uncertainty(scan, tmp_path):
         in widget.table.value
     assert f"<td>{0.92 / 6:.3f}</td>" in widget.table.value   # the mean of the six assigned values
     assert len(_bands(widget.figure.axes[1])) == 1   # the zero-error band of the reference
+
+
+def test_comparison_ranks_the_components_only_when_asked():
+    """The rows a composite is made of (not asked for) are parts of the reference, not
+    candidates: the table leaves them out unless include_components=True."""
+    from interkit.analysis.comparison import comparison_table
+
+    ds = _composite_scan()
+    kinds = dict(zip((str(x) for x in ds["level"].values), (str(k) for k in ds["level_kind"].values)))
+    components = {lv for lv, k in kinds.items() if k == "component"}
+    assert "mp2/cc-pvtz" in components
+    curves = {r["level"] for r in comparison_table(ds, reference=COMPOSITE).rows}
+    assert curves == {"b3lyp/sto-3g"}
+    curves_all = {r["level"] for r in comparison_table(ds, reference=COMPOSITE, include_components=True).rows}
+    assert components <= curves_all and "b3lyp/sto-3g" in curves_all

@@ -249,7 +249,7 @@ class ComparisonTable:
 def comparison_table(ds: xr.Dataset, reference: str | None = None, external: ReferenceCurve | None = None,
                      region: str = "all", window_angstrom: float | None = None, relative: bool = False,
                      near_zero_kcal_per_mol: float = NEAR_ZERO_KCAL_PER_MOL,
-                     variable: str | None = None) -> ComparisonTable:
+                     variable: str | None = None, include_components: bool = False) -> ComparisonTable:
     """The one statistics table of the report, ``interkit compare`` and the comparison widget.
 
     Parameters
@@ -268,6 +268,10 @@ def comparison_table(ds: xr.Dataset, reference: str | None = None, external: Ref
         The energy compared: ``'e_int'``, ``'e_int_nocp'`` or ``'e_int_halfcp'``
         (half-counterpoise); default ``e_int``, or ``e_int_nocp`` for a scan without
         counterpoise.
+    include_components : bool
+        Also rank the rows that a composite level is made of and that were not asked for
+        (``level_kind == 'component'``, e.g. ``mp2/aug-cc-pvtz`` inside
+        ``mp2/aug-cc-pvtz~aug-cc-pvqz + ccsd(t)/aug-cc-pvdz``); default False.
 
     Returns
     -------
@@ -304,6 +308,9 @@ def comparison_table(ds: xr.Dataset, reference: str | None = None, external: Ref
     from ..data.dispersion import scheme_label
     from ..model.composite import parse_level
 
+    if not include_components and "level_kind" in ds.coords:
+        kind = dict(zip((str(x) for x in ds["level"].values), (str(k) for k in ds["level_kind"].values)))
+        rows = [row for row in rows if kind.get(row["level"]) != "component"]
     for row in rows:
         scheme = row.get("dispersion")
         row["curve"] = scheme_label(parse_level(row["level"]), scheme) if scheme else row["level"]

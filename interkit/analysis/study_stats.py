@@ -145,7 +145,10 @@ def study_errors(tree: xr.DataTree, reference: str | os.PathLike | None = None, 
     pandas.DataFrame
         Columns :data:`ERROR_COLUMNS`; energies and errors in kcal/mol, distances in
         angstrom, relative errors in percent (NaN below the relative floor). Failed
-        points (NaN) are left out. ``attrs`` record the reference, region and points.
+        points (NaN) are left out, and so are the rows a composite level is made of that
+        were not asked for (``level_kind == 'component'``: parts of a reference, not
+        candidates; list such a level in the study to rank it). ``attrs`` record the
+        reference, region and points.
     """
     if region not in REGIONS:
         raise InputError(f"region: {region!r} is not one of {', '.join(REGIONS)}")
@@ -167,8 +170,10 @@ def study_errors(tree: xr.DataTree, reference: str | os.PathLike | None = None, 
         flat = flatten_dispersion(ds)
         r = ds["distance"].values
         f = ds["factor"].values if "factor" in ds.variables else np.full(r.shape, np.nan)
+        parts = ({str(lv) for lv, kind in zip(ds["level"].values, ds["level_kind"].values) if str(kind) == "component"}
+                 if "level_kind" in ds.coords else set())
         for lab in flat["level"].values:
-            if str(lab) == ref_name:
+            if str(lab) == ref_name or str(lab) in parts:
                 continue
             e = np.asarray(flat["e_int"].sel(level=lab).values, dtype=float)
             for k in np.flatnonzero(keep & np.isfinite(e)):
