@@ -40,7 +40,7 @@ from interkit.run.plan import plan_scan
 from interkit.units import ANGSTROM_TO_BOHR, HARTREE_TO_KCAL_PER_MOL
 
 FACTORS = (0.85, 0.9, 0.95, 1.0, 1.05, 1.1, 1.2, 1.35, 1.5, 1.75)
-FULL_CASES = (("water_methanol", "def2-svp", 10), ("methane_ethene", "def2-svp", 6),
+FULL_CASES = (("water_methanol", "def2-svp", 10), ("nma_water", "def2-svp", 6),
               ("benzene_pyridine", "def2-svp", 3), ("water_methanol", "def2-tzvp", 10))
 QUICK_CASES = (("water_methanol", "def2-svp", 3),)
 XC = "b3lyp"
