@@ -26,8 +26,14 @@ def load_saved(ds_or_path) -> tuple[xr.Dataset, str | None]:
     ds_or_path : xarray.Dataset or path-like
         A scan Dataset, or the ``.nc`` file written by :func:`interkit.save_scan`.
     """
+    from ..data.grid import GRID_SCHEMA, is_grid_file
     from ..data.schema import open_scan, validate
 
+    if (ds_or_path.attrs.get("schema") == GRID_SCHEMA if isinstance(ds_or_path, xr.Dataset)
+            else isinstance(ds_or_path, (str, os.PathLike)) and is_grid_file(ds_or_path)):
+        raise InputError(f"scan: {'the Dataset' if isinstance(ds_or_path, xr.Dataset) else repr(os.fspath(ds_or_path))} "
+                         f"is an orientation grid ({GRID_SCHEMA!r}); use interkit.verify_grid, rerun_grid, "
+                         "export_grid or write_grid_report")
     if isinstance(ds_or_path, xr.Dataset):
         validate(ds_or_path)
         return ds_or_path, None
