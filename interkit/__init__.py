@@ -21,8 +21,11 @@ from __future__ import annotations
 
 from . import analysis
 from .analysis import comparison, fits
+from .analysis.refine import refine_minimum
+from .analysis.site_fits import fit_site_site
 from .analysis.study_stats import rank_methods, study_errors, study_statistics
 from .data.grid import cell_dimer, open_grid, save_grid
+from .data.rigid_trajectory import open_trajectory, save_trajectory, trajectory_dimer
 from .data.schema import open_scan, save_scan, spec_of, validate
 from .data.study_tree import open_study, save_study
 from .errors import (
@@ -48,6 +51,7 @@ from .model.study_file import load_study_toml
 from .model.study_folder import read_study_folder
 from .run.densities import DensitiesNotStoredError, compute_point_densities, load_point_densities
 from .run.feasibility import check_feasibility
+from .run.optimise import optimise_dimer
 from .run.orientation import run_orientation_scan
 from .run.scan import run_scan
 from .run.store import DEFAULT_STORE
@@ -79,6 +83,8 @@ __all__ = [
     # orientations: rotations, offsets, two-axis grids and orientation samples
     "Offset", "OrientationGrid", "OrientationSample", "Rotation", "Separation", "cell_dimer", "open_grid",
     "run_orientation_scan", "save_grid", "export_grid", "rerun_grid", "verify_grid", "write_grid_report",
+    # the bound geometry and site-site fits
+    "fit_site_site", "open_trajectory", "optimise_dimer", "refine_minimum", "save_trajectory", "trajectory_dimer",
 ]
 
 

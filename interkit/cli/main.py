@@ -14,10 +14,13 @@
     interkit methods scan.nc [--bibtex refs.bib]     # methods paragraph for a paper
     interkit inspect FILE.xyz [--charges QA QB]       # atoms, fragments, closest A-B contacts
     interkit cube scan.nc --point K -o DIR            # densities of one point as cube files
+    interkit optimise IN.toml|IN.xyz -o traj.nc [--level L]   # rigid-body CP minimum, final XYZ
+    interkit fit-sites scan.nc ... --model lj|buckingham-tt    # site-site parameters, CSV/JSON
     interkit --version
 
 The saved-file commands (rerun, verify, report, export) live in :mod:`interkit.cli.saved`;
-methods, inspect and systems in :mod:`interkit.cli.extras`.
+methods, inspect and systems in :mod:`interkit.cli.extras`; optimise and fit-sites in
+:mod:`interkit.cli.rigid`.
 
 Exit status: 0 success; 1 finished, but some points failed (the summary names them) or
 a check is off tolerance; 2 usage error or bad input (one line, nothing written); 3
@@ -90,6 +93,9 @@ def _build_parser() -> argparse.ArgumentParser:
     from .orientation import add_commands as add_orientation
 
     add_orientation(sub, _add_run_options)
+    from .rigid import add_commands as add_rigid
+
+    add_rigid(sub)   # optimise, fit-sites
 
     p = sub.add_parser("store", help="inspect or shrink a result store (the --cache folder)")
     store_sub = p.add_subparsers(dest="store_command", metavar="ACTION", parser_class=_Parser)
@@ -409,6 +415,9 @@ def main(argv: list[str] | None = None) -> int:
     from .orientation import cmd_orient
 
     handlers["orient"] = lambda a: cmd_orient(a, _run)   # orientation scans
+    from .rigid import HANDLERS as RIGID_HANDLERS
+
+    handlers.update(RIGID_HANDLERS)   # optimise, fit-sites
     try:
         return handlers[args.command](args)
     except InterkitError as exc:
