@@ -111,9 +111,11 @@ def test_rerun_grid_equals_the_original_within_the_scf_scatter(saved_grid, tmp_p
 def test_scan_functions_point_a_grid_to_the_grid_functions(saved_grid):
     path, _ = saved_grid
     for call in (lambda: ik.verify_scan(path), lambda: ik.rerun_scan(ik.open_grid(path)),
-                 lambda: ik.export_scan(path, str(path) + ".csv")):
+                 lambda: ik.export_scan(path, str(path) + ".csv"),
+                 lambda: ik.export_scan(ik.open_grid(path), str(path) + ".csv")):
         with pytest.raises(ik.InputError, match="orientation grid.*verify_grid"):
             call()
+    assert not (path.parent / (path.name + ".csv")).exists()     # nothing written
 
 
 def test_sampled_orientations_verify_and_export_their_quaternions(tmp_path):
