@@ -46,6 +46,8 @@ def _figures(ds: xr.Dataset, unit: str) -> str:
     names = grid_of(ds).names
     variable, kind = _variable(ds)
     scheme = _scheme(ds)
+    if scheme is not None:
+        kind += f", dispersion scheme {scheme} (the first of the file's schemes)"
     if len(names) == 1:
         return _figure(lambda ax: plot_grid_line(ds, variable, ax=ax, unit=unit, dispersion=scheme),
                        f"Interaction energy ({kind}) along {names[0]}; stars mark the lowest point of each level.",
@@ -80,7 +82,8 @@ def _minimum_section(ds: xr.Dataset, unit: str) -> str:
                     + [_num(convert_energy(low["energy_kcal_per_mol"], "kcal/mol", unit)), f"point {low['point']}"])
     return ("<h2>Lowest grid point</h2>"
             '<p class="note">The computed grid point with the lowest interaction energy (not an interpolated '
-            "minimum: its position is known to the grid spacing).</p>"
+            "minimum: its position is known to the grid spacing)"
+            + (f"; dispersion scheme {_e(_scheme(ds))}" if _scheme(ds) else "") + ".</p>"
             + _table(["level"] + [_axis_head(ds, n) for n in names] + [f"E_int / {unit}", "note"], rows,
                      text=(0, len(names) + 2)))
 
