@@ -66,6 +66,9 @@ def test_optimiser_converges_rigidly_and_resumes_from_the_store(tmp_path):
     # thresholds met at the final geometry (the documented defaults)
     assert float(tr["force_norm"][-1]) <= 0.02 and float(tr["torque_norm"][-1]) <= 0.02
     assert bool(tr["accepted"][-1])
+    # the settings that change the result are recorded
+    assert tr.attrs["force_tol_kcal_per_mol_per_angstrom"] == 0.02 and tr.attrs["torque_tol_kcal_per_mol"] == 0.02
+    assert tr.attrs["energy_tol_kcal_per_mol"] == 1e-4 and "level_settings_json" in tr.attrs
     # accepted energies never rise by more than the documented noise allowance (1e-6 kcal/mol)
     e_acc = tr["e_int"].values[tr["accepted"].values]
     assert np.all(np.diff(e_acc) <= 1e-6)
@@ -98,3 +101,17 @@ def test_optimiser_refuses_levels_without_analytic_forces_and_bad_settings():
         optimise_dimer(_start(), LEVEL, max_steps=0, cache=None)
     with pytest.raises(ik.InputError, match="force_tol_kcal_per_mol_per_angstrom"):
         optimise_dimer(_start(), LEVEL, force_tol_kcal_per_mol_per_angstrom=-1, cache=None)
+
+
+def test_an_interrupted_optimisation_keeps_its_steps(tmp_path):
+    class Interrupted(RigidBodyEnergy):
+        def __call__(self, dimer):
+            if self.evaluations == 2:
+                raise KeyboardInterrupt
+            return super().__call__(dimer)
+
+    with pytest.raises(KeyboardInterrupt) as info:
+        optimise_dimer(_start(), LEVEL, energy=Interrupted(LEVEL, cache=tmp_path / "store"))
+    tr = info.value.trajectory
+    assert tr.sizes["step"] == 2 and not tr.attrs["converged"]
+    assert np.isfinite(tr["e_int"].values).all()

@@ -223,7 +223,8 @@ def refine_minimum(ds: xr.Dataset, level: str | None = None, *,
         {"e_int": ("distance", [done[r][0] for r in order],
                    {"units": "kcal/mol", "long_name": "counterpoise-corrected interaction energy"})},
         coords={"distance": ("distance", order, {"units": "angstrom"})},
-        attrs={"level": level, "method": method})
+        attrs={"level": level, "method": method, "tolerance_angstrom": tol,
+               "stencil_angstrom": STENCIL_ANGSTROM if not forces else float("nan")})
     if forces:
         pts["force_along"] = ("distance", [done[r][1] for r in order],
                               {"units": "kcal/mol/angstrom", "long_name": "net force on B along the coordinate"})

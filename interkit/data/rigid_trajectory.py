@@ -12,7 +12,8 @@ order computed, rejected trial steps included)::
     trust_radius     step                  angstrom      trust radius when the step was taken
     coordinates      step, atom, xyz       angstrom      geometry of the dimer
 
-Attributes: level, thresholds (with units in their names), converged, evaluations,
+Attributes: level and its settings (``level_settings_json``), thresholds (with units in
+their names), converged, evaluations,
 the start and the final dimer as JSON (``dimer_json``, ``final_dimer_json``).
 """
 

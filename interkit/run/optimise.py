@@ -29,6 +29,7 @@ kcal/mol): the predicted energy change of the step not taken.
 
 from __future__ import annotations
 
+import json
 import os
 from dataclasses import dataclass
 
@@ -218,6 +219,12 @@ def optimise_dimer(dimer: Dimer, level: str | LevelOfTheory, *, max_steps: int =
     Returns
     -------
     RigidBodyOptimum
+
+    Raises
+    ------
+    Exception
+        An error or interrupt during the run carries the steps so far as
+        ``exc.trajectory`` (besides the copies in the store).
     """
     if not isinstance(dimer, Dimer):
         raise InputError(f"dimer: expected an interkit.Dimer, got {type(dimer).__name__}")
@@ -238,63 +245,74 @@ def optimise_dimer(dimer: Dimer, level: str | LevelOfTheory, *, max_steps: int =
                       "trust_radius": radius, "coordinates": np.array(d.coordinates)})
         return ev, np.concatenate([-ev.force, -left_jacobian(q[3:] / length).T @ ev.torque / length])
 
-    q = np.zeros(6)
-    ev, g = evaluate(q, True)
-    h = model_hessian(dimer, length)
-    updated = False
-    converged = False
-    while True:
-        p = _trust_step(g, h, radius)
-        predicted = float(g @ p + 0.5 * p @ h @ p)
-        if (np.linalg.norm(ev.force) <= f_tol and np.linalg.norm(ev.torque) <= t_tol
-                and -predicted <= e_tol):
-            converged = True
-            break
-        if len(steps) >= max_steps or radius < MIN_TRUST_RADIUS_ANGSTROM:
-            break
-        try:
-            from ..model.spec import check_contacts
+    def attrs(converged: bool) -> dict:
+        return {
+            "title": f"rigid-body optimisation: {dimer.name}",
+            "level": fn.level.label,
+            "level_settings_json": json.dumps(fn.level.settings(), sort_keys=True, default=str),
+            "counterpoise": "Boys-Bernardi",
+            "method": "quasi-Newton (BFGS) with a trust radius in B's translation and rotation about its "
+                      "centre of mass; monomers rigid, A fixed",
+            "converged": converged,
+            "evaluations": len(steps),
+            "calculations_computed": fn.computed,
+            "energy_tol_kcal_per_mol": e_tol,
+            "force_tol_kcal_per_mol_per_angstrom": f_tol,
+            "torque_tol_kcal_per_mol": t_tol,
+            "rotation_length_angstrom": length,
+            "scf_threshold_hartree": float(fn.scf_threshold_hartree),
+            "interkit_version": __version__,
+        }
 
-            check_contacts(moved_b(dimer, (q + p)[:3], (q + p)[3:] / length), "optimisation step")
-        except InputError:  # too close: a shorter step instead
-            radius = 0.25 * float(np.linalg.norm(p))
-            continue
-        ev_new, g_new = evaluate(q + p, False)
-        actual = ev_new.e_int - ev.e_int
-        ratio = actual / predicted if predicted < 0 else -1.0
-        step_len = float(np.linalg.norm(p))
-        if ratio < 0.25:
-            radius = 0.25 * step_len
-        elif ratio > 0.75 and step_len > 0.8 * radius:
-            radius = min(2.0 * radius, MAX_TRUST_RADIUS_ANGSTROM)
-        accept = actual <= ENERGY_NOISE_KCAL_PER_MOL
-        s, y = p, g_new - g   # from the old point to the trial point, accepted or not
-        sy = float(s @ y)
-        if sy > 1e-12 * float(np.linalg.norm(s) * np.linalg.norm(y)):  # keeps H positive definite
-            if not updated:  # the model's scale, fitted to the curvature along the first step
-                fac = sy / float(s @ h @ s)
-                h = h * min(fac, 1.0)
-                updated = True
-            hs = h @ s
-            h = h + np.outer(y, y) / sy - np.outer(hs, hs) / float(s @ hs)
-        if accept:
-            steps[-1]["accepted"] = True
-            q, ev, g = q + p, ev_new, g_new
-    attrs = {
-        "title": f"rigid-body optimisation: {dimer.name}",
-        "level": fn.level.label,
-        "counterpoise": "Boys-Bernardi",
-        "method": "quasi-Newton (BFGS) with a trust radius in B's translation and rotation about its "
-                  "centre of mass; monomers rigid, A fixed",
-        "converged": converged,
-        "evaluations": len(steps),
-        "calculations_computed": fn.computed,
-        "energy_tol_kcal_per_mol": e_tol,
-        "force_tol_kcal_per_mol_per_angstrom": f_tol,
-        "torque_tol_kcal_per_mol": t_tol,
-        "rotation_length_angstrom": length,
-        "scf_threshold_hartree": float(fn.scf_threshold_hartree),
-        "interkit_version": __version__,
-    }
-    traj = build_trajectory(steps, dimer, attrs)
+    try:
+        q = np.zeros(6)
+        ev, g = evaluate(q, True)
+        h = model_hessian(dimer, length)
+        updated = False
+        converged = False
+        while True:
+            p = _trust_step(g, h, radius)
+            predicted = float(g @ p + 0.5 * p @ h @ p)
+            if (np.linalg.norm(ev.force) <= f_tol and np.linalg.norm(ev.torque) <= t_tol
+                    and -predicted <= e_tol):
+                converged = True
+                break
+            if len(steps) >= max_steps or radius < MIN_TRUST_RADIUS_ANGSTROM:
+                break
+            try:
+                from ..model.spec import check_contacts
+
+                check_contacts(moved_b(dimer, (q + p)[:3], (q + p)[3:] / length), "optimisation step")
+            except InputError:  # too close: a shorter step instead
+                radius = 0.25 * float(np.linalg.norm(p))
+                continue
+            ev_new, g_new = evaluate(q + p, False)
+            actual = ev_new.e_int - ev.e_int
+            ratio = actual / predicted if predicted < 0 else -1.0
+            step_len = float(np.linalg.norm(p))
+            if ratio < 0.25:
+                radius = 0.25 * step_len
+            elif ratio > 0.75 and step_len > 0.8 * radius:
+                radius = min(2.0 * radius, MAX_TRUST_RADIUS_ANGSTROM)
+            accept = actual <= ENERGY_NOISE_KCAL_PER_MOL
+            s, y = p, g_new - g   # from the old point to the trial point, accepted or not
+            sy = float(s @ y)
+            if sy > 1e-12 * float(np.linalg.norm(s) * np.linalg.norm(y)):  # keeps H positive definite
+                if not updated:  # the model's scale, fitted to the curvature along the first step
+                    fac = sy / float(s @ h @ s)
+                    h = h * min(fac, 1.0)
+                    updated = True
+                hs = h @ s
+                h = h + np.outer(y, y) / sy - np.outer(hs, hs) / float(s @ hs)
+            if accept:
+                steps[-1]["accepted"] = True
+                q, ev, g = q + p, ev_new, g_new
+    except BaseException as exc:  # the steps so far are in the store, and on the exception
+        if steps:
+            try:
+                exc.trajectory = build_trajectory(steps, dimer, attrs(False))
+            except Exception:
+                pass
+        raise
+    traj = build_trajectory(steps, dimer, attrs(converged))
     return RigidBodyOptimum(moved_b(dimer, q[:3], q[3:] / length), ev.e_int, converged, len(steps), traj)
