@@ -58,6 +58,9 @@ from .run.scan import run_scan
 from .run.store import DEFAULT_STORE
 from .run.study import run_study
 from .share.export import export_scan
+from .share.grid_export import export_grid
+from .share.grid_replay import rerun_grid, verify_grid
+from .share.grid_report import write_grid_report
 from .share.methods import methods_bibtex, methods_text
 from .share.replay import rerun_scan, verify_scan
 from .share.report import write_report
@@ -80,7 +83,7 @@ __all__ = [
     "write_study_report",
     # orientations: rotations, offsets, two-axis grids and orientation samples
     "Offset", "OrientationGrid", "OrientationSample", "Rotation", "Separation", "cell_dimer", "open_grid",
-    "run_orientation_scan", "save_grid",
+    "run_orientation_scan", "save_grid", "export_grid", "rerun_grid", "verify_grid", "write_grid_report",
     # the bound geometry and site-site fits
     "fit_site_site", "open_trajectory", "optimise_dimer", "refine_minimum", "save_trajectory", "trajectory_dimer",
 ]

@@ -13,7 +13,7 @@ import pytest
 NOTEBOOKS = Path(__file__).resolve().parent.parent / "notebooks"
 NAMES = ["01-quickstart.ipynb", "02-levels.ipynb", "03-reopen.ipynb", "04-forces.ipynb", "05-decomposition.ipynb",
          "06-dispersion.ipynb", "07-share-and-scale.ipynb", "08-studies.ipynb",
-         "09-composite-reference.ipynb"]
+         "09-composite-reference.ipynb", "10-orientations.ipynb"]
 WIDGET_VIEW = "application/vnd.jupyter.widget-view+json"
 
 
@@ -137,6 +137,23 @@ def test_notebook_executes(name, tmp_path, monkeypatch, saved_scan):
         assert "row 4, column 'reference_energy'" in text
     elif name == "09-composite-reference.ipynb":
         _check_composite_notebook(text)
+    elif name == "10-orientations.ipynb":
+        import re
+
+        lines = text.splitlines()
+        assert "converged: True" in text and _widget_views(nb) == 0
+        start, best = (float(v) for v in re.findall(r"(-?\d+\.\d+) kcal/mol at the", next(
+            x for x in lines if x.startswith("E_int (counterpoise-corrected):"))))
+        assert best < start     # the optimiser went downhill from the tabulated geometry
+        low = next(x for x in lines if x.startswith("lowest grid point:"))
+        r_grid = float(re.search(r"H···O = ([\d.]+) Å", low).group(1))
+        r_opt = float(re.search(r"H···O = ([\d.]+) Å", next(x for x in lines if x.startswith("optimiser:"))).group(1))
+        # a minimum in all six rigid-body coordinates is the minimum of every 2-D slice through
+        # it (rigid-body mechanics, common practice): angle 0, the grid distance next to it (spacing 0.2 Å)
+        assert "angle = 0°" in low and abs(r_grid - r_opt) < 0.1
+        assert "verify: every variable within its tolerance" in text
+        assert "level,angle_degree,distance_angstrom,point,variable,value,unit,status" in text
+        assert "site-site fit X-X epsilon" in text and "site-site fit X-X sigma" in text
     else:
         assert "found saved scan" in text and "nothing to compute" in text
         assert "computed and saved" not in text and _widget_views(nb) == 1

@@ -322,6 +322,12 @@ def _cmd_demo(args) -> int:
 
 
 def _cmd_show(args) -> int:
+    from ..data.grid import is_grid_file
+
+    if is_grid_file(args.scan):   # an orientation grid (interkit orient)
+        from .grid_files import cmd_show
+
+        return cmd_show(args)
     from ..data.schema import open_scan
 
     ds = open_scan(args.scan)

@@ -6,6 +6,8 @@
     interkit export scan.nc -o out.csv|out.json|out.xyz|out.extxyz [--format F] [--unit UNIT] [--level L]
 
 ``rerun`` and ``verify`` exit with status 1 when a number lies outside its tolerance.
+Each command also takes an orientation-grid file (``interkit orient`` output; it is
+recognised by its schema attribute, see :mod:`interkit.cli.grid_files`).
 """
 
 from __future__ import annotations
@@ -88,7 +90,18 @@ def _finish(table) -> int:
     return 0 if table.passed else 1
 
 
+def _grid(args) -> bool:
+    """True when the file named on the command line is an orientation grid (its schema)."""
+    from ..data.grid import is_grid_file
+
+    return is_grid_file(args.scan)
+
+
 def cmd_rerun(args) -> int:
+    if _grid(args):
+        from .grid_files import cmd_rerun as rerun_grid
+
+        return rerun_grid(args, _executor)
     from ..share.replay import rerun_scan
     from .output import check_scan_output
 
@@ -107,6 +120,10 @@ def cmd_rerun(args) -> int:
 
 
 def cmd_verify(args) -> int:
+    if _grid(args):
+        from .grid_files import cmd_verify as verify_grid
+
+        return verify_grid(args)
     from ..share.replay import verify_scan
 
     table = verify_scan(args.scan, sample=args.sample, seed=args.seed,
@@ -116,6 +133,10 @@ def cmd_verify(args) -> int:
 
 
 def cmd_report(args) -> int:
+    if _grid(args):
+        from .grid_files import cmd_report as grid_report
+
+        return grid_report(args)
     from ..data.schema import open_scan
     from ..share.report import write_report
     from .output import check_output, force_unit_of
@@ -129,6 +150,10 @@ def cmd_report(args) -> int:
 
 
 def cmd_export(args) -> int:
+    if _grid(args):
+        from .grid_files import cmd_export as export_grid
+
+        return export_grid(args)
     from ..data.schema import open_scan
     from ..share.export import FORMATS, export_format, export_scan
     from .output import check_output

@@ -18,6 +18,7 @@ kJ/mol/nm              ``_kj_per_mol_per_nm``          ``force_along_kj_per_mol_
 eV/angstrom            ``_ev_per_angstrom``            ``force_along_ev_per_angstrom``
 hartree/bohr           ``_hartree_per_bohr``           ``force_along_hartree_per_bohr``
 second                 ``_s``                      ``wall_time_s``
+degree                 ``_degree``                 ``angle_degree``
 =====================  ==========================  =====================================
 
 Dimensionless numbers (``factor``, ``rank``, ``n_compared``) and text (``curve``,
@@ -57,6 +58,7 @@ UNIT_SUFFIXES = {
     "eV/angstrom": "ev_per_angstrom",
     "hartree/bohr": "hartree_per_bohr",
     "s": "s",
+    "degree": "degree",
 }
 _NAME = re.compile(r"^[a-z][a-z0-9]*(_[a-z0-9]+)*$")
 DISTANCE_COLUMN = "distance_angstrom"

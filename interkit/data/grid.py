@@ -138,3 +138,67 @@ def cell_dimer(ds: xr.Dataset, **where):
     dimer = spec_of(ds).dimer
     coords = ds["coordinates"].isel(index).values
     return dimer.with_coordinates(coords)
+
+
+def flat_view(ds: xr.Dataset) -> xr.Dataset:
+    """The grid Dataset as the flat scan it was computed as (inverse of :func:`grid_dataset`).
+
+    The axes are replaced by one dimension ``distance`` holding the flat point number
+    (``p = i * n2 + j``, units ``1``); variables the grid adds (``point``, an axis's extra
+    variables such as the quaternions of an orientation sample) are left out, so the
+    result lines up with a recomputation of the flat scan (:func:`interkit.verify_grid`).
+    """
+    grid = grid_of(ds)
+    names, shape = grid.names, grid.shape
+    n = int(np.prod(shape))
+    grid_only = {"point"} | {k for ax in grid.axes for k in ax.extra_coordinates()}
+    data_vars = {}
+    for name, var in ds.data_vars.items():
+        if name in grid_only:
+            continue
+        if not set(names) & set(var.dims):
+            data_vars[name] = var.variable
+            continue
+        k = var.dims.index(names[0])
+        if var.dims[k:k + len(names)] != names:
+            raise InputError(f"dataset variable {name}: dimensions {var.dims} do not hold the axes {names} in order")
+        dims = var.dims[:k] + (FLAT_DIM,) + var.dims[k + len(names):]
+        values = var.values.reshape(var.shape[:k] + (n,) + var.shape[k + len(names):])
+        data_vars[name] = (dims, values, dict(var.attrs))
+    coords = {name: var.variable for name, var in ds.coords.items()
+              if not set(var.dims) & set(names) and name != "quaternion_component"}
+    coords[FLAT_DIM] = (FLAT_DIM, np.arange(n, dtype=float), {"units": "1", "long_name": "flat point number"})
+    attrs = dict(ds.attrs)
+    attrs["schema"] = str(ds.attrs.get("flat_schema", ""))
+    return xr.Dataset(data_vars=data_vars, coords=coords, attrs=attrs)
+
+
+def cell_labels(ds: xr.Dataset) -> list[str]:
+    """Text naming every grid point in flat order, e.g. ``'point 4 (angle = 20 degree,
+    distance = 3.2 angstrom)'``."""
+    grid = grid_of(ds)
+    out = []
+    for p, idx in enumerate(np.ndindex(*grid.shape)):
+        parts = [f"{ax.name} = {ax.values[k]:g}" + (f" {ax.units}" if ax.units != "1" else "")
+                 for ax, k in zip(grid.axes, idx)]
+        out.append(f"point {p} ({', '.join(parts)})")
+    return out
+
+
+def file_schema(path: str | os.PathLike) -> str | None:
+    """The ``schema`` attribute of a netCDF file (None when it has none or cannot be read,
+    so that the reader of the expected kind reports the problem)."""
+    path = os.fspath(path)
+    if not os.path.isfile(path):
+        return None
+    try:
+        with xr.open_dataset(path, engine="h5netcdf") as handle:
+            schema = handle.attrs.get("schema")
+    except (OSError, ValueError):
+        return None
+    return str(schema) if schema is not None else None
+
+
+def is_grid_file(path: str | os.PathLike) -> bool:
+    """True when ``path`` is a netCDF file of an orientation grid (:data:`GRID_SCHEMA`)."""
+    return file_schema(path) == GRID_SCHEMA

@@ -1,5 +1,6 @@
 """Maps of two-axis orientation scans (Dataset in, Axes out): a heat map with contour
-lines of the interaction energy, the grid minimum and the minimum-energy path."""
+lines of the interaction energy, the grid minimum and the minimum-energy path; and the
+curve of a one-axis scan (:func:`plot_grid_line`)."""
 
 from __future__ import annotations
 
@@ -9,7 +10,7 @@ import xarray as xr
 from ..analysis.grid_minima import axis_names, grid_energies, grid_minimum, minimum_energy_path
 from ..errors import InputError
 from ..units import convert_energy
-from .style import MINIMUM_MARKER, energy_axis_label, legend_label
+from .style import MINIMUM_MARKER, energy_axis_label, legend_label, level_style
 
 #: gid of the artists a test or a widget looks up
 MINIMUM_GID = "grid-minimum"
@@ -77,5 +78,36 @@ def plot_map(ds: xr.Dataset, level: str | None = None, variable: str = "e_int", 
     ax.set_ylabel(_axis_label(ds, names[1]))
     lv = level if level is not None else str(ds["level"].values[0])
     ax.set_title(legend_label(lv, variable))
+    ax.legend(loc="best", fontsize="small")
+    return ax
+
+
+def plot_grid_line(ds: xr.Dataset, variable: str = "e_int", ax=None, unit: str = "kcal/mol",
+                   dispersion: str | None = None):
+    """The interaction energy of every level along the single axis of a one-axis grid
+    (e.g. an angle scan); failed points are gaps, the lowest point of each level is marked.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+    """
+    names = axis_names(ds)
+    if len(names) != 1:
+        raise InputError(f"grid: a line plot needs one axis, the Dataset has {len(names)} ({', '.join(names)})")
+    if ax is None:
+        import matplotlib.pyplot as plt
+
+        _, ax = plt.subplots(figsize=(6, 4.2))
+    x = ds[names[0]].values
+    for k, level in enumerate(str(v) for v in ds["level"].values):
+        y = convert_energy(grid_energies(ds, level, variable, dispersion).values, "kcal/mol", unit)
+        style = level_style(k)
+        ax.plot(x, y, ms=4, label=legend_label(level), **style)
+        if np.isfinite(y).any():
+            i = int(np.nanargmin(y))
+            ax.plot([x[i]], [y[i]], ls="none", marker=MINIMUM_MARKER, ms=12, color=style.get("color"), mec="black")
+    ax.axhline(0.0, color="0.6", lw=0.8)
+    ax.set_xlabel(_axis_label(ds, names[0]))
+    ax.set_ylabel(energy_axis_label(unit, "E_int" if variable == "e_int" else variable))
     ax.legend(loc="best", fontsize="small")
     return ax

@@ -379,8 +379,11 @@ def export_scan(ds, path: str | os.PathLike, fmt: str | None = None, unit: str =
     str
         The path written.
     """
+    from .provenance import refuse_grid
+
     path = os.fspath(path)
     kind = export_format(path, fmt)
+    refuse_grid(ds)   # a grid Dataset has no single distance axis: export_grid
     if not isinstance(ds, xr.Dataset):
         from .provenance import load_saved
 

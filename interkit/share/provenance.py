@@ -28,12 +28,30 @@ def load_saved(ds_or_path) -> tuple[xr.Dataset, str | None]:
     """
     from ..data.schema import open_scan, validate
 
+    refuse_grid(ds_or_path)
     if isinstance(ds_or_path, xr.Dataset):
         validate(ds_or_path)
         return ds_or_path, None
     if isinstance(ds_or_path, (str, os.PathLike)):
         return open_scan(ds_or_path), os.fspath(ds_or_path)
     raise InputError(f"scan: expected an xarray.Dataset or the path of a .nc file, got {type(ds_or_path).__name__}")
+
+
+def refuse_grid(ds_or_path) -> None:
+    """Raise InputError, pointing at the grid functions, when ``ds_or_path`` is an
+    orientation grid (a Dataset or file with the grid schema) rather than a scan."""
+    from ..data.grid import GRID_SCHEMA, is_grid_file
+
+    if isinstance(ds_or_path, xr.Dataset):
+        if ds_or_path.attrs.get("schema") != GRID_SCHEMA:
+            return
+        what = "the Dataset"
+    elif isinstance(ds_or_path, (str, os.PathLike)) and is_grid_file(ds_or_path):
+        what = repr(os.fspath(ds_or_path))
+    else:
+        return
+    raise InputError(f"scan: {what} is an orientation grid ({GRID_SCHEMA!r}); use interkit.verify_grid, "
+                     "rerun_grid, export_grid or write_grid_report")
 
 
 def rebuild_spec(ds: xr.Dataset, path: str | None = None):
