@@ -155,3 +155,22 @@ def test_argon_dimer_c6_from_a_buckingham_tt_fit(tmp_path):
     ds = ik.run_scan(spec, executor="serial", cache=tmp_path / "store", progress=False)
     fit = sf.fit_site_site(ds, "buckingham-tt", c8=True)
     assert fit.c6_hartree_bohr6(("Ar", "Ar")) == pytest.approx(64.3, rel=0.25)
+
+
+def test_fit_takes_an_orientation_grid(tmp_path):
+    """Every cell of an orientation grid is a fitting point (the grid's flat view): LJ
+    energies of one site type put on a 2 x 2 angle x distance grid come back exactly."""
+    d = s22_dimer("Water_dimer")
+    grid = ik.OrientationGrid(d, [ik.Rotation((0.2, -0.4, 0.9), [0.0, 25.0]), ik.Separation([2.9, 3.3])])
+    ds = ik.run_orientation_scan(grid, executor="serial", cache=None, progress=False, levels=["hf/sto-3g"])
+    types = {"O": "X", "H": "X"}
+    from interkit.data.grid import flat_view
+
+    flat = flat_view(ds)
+    geoms = [d.with_coordinates(c) for c in flat["coordinates"].values]
+    data = sf._collect([(g, 0.0) for g in geoms], [0] * len(geoms), sf._types_of(geoms, types), None)
+    e = sf._model("lj", False, data, np.array([0.1, 2.9]))
+    ds["e_int"].values[0] = e.reshape(ds["e_int"].values[0].shape)
+    fit = sf.fit_site_site({"map": ds}, "lj", types=types)
+    assert fit.parameter("epsilon", ("X", "X"))[0] == pytest.approx(0.1, rel=1e-6)
+    assert fit.parameter("sigma", ("X", "X"))[0] == pytest.approx(2.9, rel=1e-6)

@@ -395,9 +395,13 @@ def fit_site_site_points(dimers, energies, model: str = "lj", *, types=None, cha
 
 
 def scan_points(ds: xr.Dataset, level: str | None = None, variable: str = "e_int"):
-    """(dimers, energies in kcal/mol) of every point of one level of a scan Dataset."""
+    """(dimers, energies in kcal/mol) of every point of one level of a scan Dataset or
+    an orientation grid (every cell; see :func:`interkit.data.grid.flat_view`)."""
+    from ..data.grid import GRID_SCHEMA, flat_view
     from ..data.schema import spec_of
 
+    if ds.attrs.get("schema") == GRID_SCHEMA:
+        ds = flat_view(ds)
     spec = spec_of(ds)
     labels = [str(x) for x in ds["level"].values]
     if level is None:
