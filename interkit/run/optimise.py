@@ -7,7 +7,7 @@ one geometry: every evaluation runs through :func:`interkit.run_scan`, so it is 
 the result store and a killed optimisation, started again with the same arguments,
 repeats the same steps from the store without computing them again.
 
-Method: quasi-Newton (BFGS update of a model Hessian) with a trust radius, in the
+Method: quasi-Newton (symmetric rank-one update of a model Hessian) with a trust radius, in the
 coordinates ``q = (t, w L)``: ``t`` the translation of B (Å), ``w`` the rotation vector
 of B about its starting centre of mass (rad), ``L`` the root-mean-square distance of
 B's atoms from its centre of mass (at least 0.5 Å), so a rotation moves atoms about as
@@ -17,8 +17,14 @@ The model Hessian (:func:`model_hessian`) has a spring along every A-B contact,
 weighted towards the closest; after the first step it is scaled down to the curvature
 measured along that step (``s.y / s.H.s``, cf. Nocedal & Wright, Numerical Optimization,
 2nd ed., sec. 6.1) when that is softer, never up (a first step down a repulsive wall
-would stiffen the soft turning modes too). A step is accepted when the energy does not rise by more than
-``ENERGY_NOISE_KCAL_PER_MOL``.
+would stiffen the soft turning modes too). Every evaluated pair of points updates the
+Hessian by the symmetric rank-one formula (SR1; Nocedal & Wright sec. 6.2), which
+approaches the true Hessian in fewer steps than BFGS; its eigenvalues are then kept at
+least ``MIN_CURVATURE_KCAL_PER_MOL_PER_ANGSTROM2`` in size (absolute values), so every
+step goes downhill. A step is accepted when the energy does not rise by more than
+``ENERGY_NOISE_KCAL_PER_MOL``. After a poor step the new trust radius is the minimum of
+the cubic through the energies and the gradients along the step at both its ends
+(Nocedal & Wright sec. 3.5), between 0.1 and 0.8 of the step, instead of a fixed quarter.
 
 Converged when, at an accepted geometry, the net force on B is shorter than
 ``force_tol`` (default 0.02 kcal/mol/Å, 1.7e-5 hartree/bohr), the torque shorter than
@@ -60,6 +66,8 @@ ENERGY_NOISE_KCAL_PER_MOL = 1e-6
 DEFAULT_TRUST_RADIUS_ANGSTROM = 0.3
 MAX_TRUST_RADIUS_ANGSTROM = 0.5
 MIN_TRUST_RADIUS_ANGSTROM = 1e-4
+#: smallest |eigenvalue| the quasi-Newton Hessian keeps (kcal/mol/Å², scaled coordinates)
+MIN_CURVATURE_KCAL_PER_MOL_PER_ANGSTROM2 = 0.3
 
 
 @dataclass
@@ -176,6 +184,30 @@ def _trust_step(g: np.ndarray, h: np.ndarray, radius: float) -> np.ndarray:
     return vecs @ (-gt / (vals + hi))
 
 
+def _cubic_fraction(e0: float, e1: float, d0: float, d1: float) -> float:
+    """Minimiser ``t`` of the cubic with energies ``e0, e1`` and slopes ``d0, d1`` at
+    ``t = 0, 1`` (any consistent units), clipped to [0.1, 0.8]; 0.5 when it has none."""
+    a = d0 + d1 - 2.0 * (e1 - e0)
+    b = 3.0 * (e1 - e0) - 2.0 * d0 - d1
+    if abs(a) < 1e-12:
+        t = -d0 / (2.0 * b) if b > 0 else 0.5
+    else:
+        disc = b * b - 3.0 * a * d0
+        t = (-b + np.sqrt(disc)) / (3.0 * a) if disc >= 0 else 0.5
+    return float(np.clip(t, 0.1, 0.8)) if np.isfinite(t) else 0.5
+
+
+def _sr1_update(h: np.ndarray, s: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """SR1 update of ``h`` by the step ``s`` and gradient change ``y`` (skipped when its
+    denominator is tiny), eigenvalues then at least the curvature floor in size."""
+    r = y - h @ s
+    den = float(r @ s)
+    if abs(den) <= 1e-6 * float(np.linalg.norm(r) * np.linalg.norm(s)):
+        return h
+    vals, vecs = np.linalg.eigh(h + np.outer(r, r) / den)
+    return (vecs * np.maximum(np.abs(vals), MIN_CURVATURE_KCAL_PER_MOL_PER_ANGSTROM2)) @ vecs.T
+
+
 def _positive(value, name: str) -> float:
     try:
         x = float(value)
@@ -251,7 +283,7 @@ def optimise_dimer(dimer: Dimer, level: str | LevelOfTheory, *, max_steps: int =
             "level": fn.level.label,
             "level_settings_json": json.dumps(fn.level.settings(), sort_keys=True, default=str),
             "counterpoise": "Boys-Bernardi",
-            "method": "quasi-Newton (BFGS) with a trust radius in B's translation and rotation about its "
+            "method": "quasi-Newton (SR1) with a trust radius in B's translation and rotation about its "
                       "centre of mass; monomers rigid, A fixed",
             "converged": converged,
             "evaluations": len(steps),
@@ -290,20 +322,19 @@ def optimise_dimer(dimer: Dimer, level: str | LevelOfTheory, *, max_steps: int =
             actual = ev_new.e_int - ev.e_int
             ratio = actual / predicted if predicted < 0 else -1.0
             step_len = float(np.linalg.norm(p))
-            if ratio < 0.25:
-                radius = 0.25 * step_len
+            if ratio < 0.25:  # the cubic along the step from both ends' energies and slopes
+                radius = step_len * _cubic_fraction(ev.e_int, ev_new.e_int, float(g @ p), float(g_new @ p))
             elif ratio > 0.75 and step_len > 0.8 * radius:
                 radius = min(2.0 * radius, MAX_TRUST_RADIUS_ANGSTROM)
             accept = actual <= ENERGY_NOISE_KCAL_PER_MOL
             s, y = p, g_new - g   # from the old point to the trial point, accepted or not
             sy = float(s @ y)
-            if sy > 1e-12 * float(np.linalg.norm(s) * np.linalg.norm(y)):  # keeps H positive definite
+            if sy > 1e-12 * float(np.linalg.norm(s) * np.linalg.norm(y)):
                 if not updated:  # the model's scale, fitted to the curvature along the first step
                     fac = sy / float(s @ h @ s)
                     h = h * min(fac, 1.0)
                     updated = True
-                hs = h @ s
-                h = h + np.outer(y, y) / sy - np.outer(hs, hs) / float(s @ hs)
+                h = _sr1_update(h, s, y)
             if accept:
                 steps[-1]["accepted"] = True
                 q, ev, g = q + p, ev_new, g_new
