@@ -43,3 +43,17 @@ def test_cubic_fraction_finds_the_minimum_of_a_cubic():
     assert _cubic_fraction(0.36, 0.16, -1.2, 0.8) == pytest.approx(0.6, abs=1e-12)
     # e(t) = (t - 0.02)^2: the minimum lies below the lower clip 0.1
     assert _cubic_fraction(0.0004, 0.9604, -0.04, 1.96) == pytest.approx(0.1)
+
+
+def test_line_minimum_between_the_ends_beyond_the_end_or_none():
+    from interkit.run.optimise import _line_minimum
+
+    # overshoot: e(t) = (t - 0.3)^2 (t + 1) as above, minimum at 0.3 (worked by hand)
+    assert _line_minimum(0.09, 0.98, -0.51, 3.29) == pytest.approx(0.3, abs=1e-12)
+    # still falling at the end: e(t) = (t - 1.3)^2, minimum 0.3 of a step beyond (by hand:
+    # e(0) = 1.69, e(1) = 0.09, e'(0) = -2.6, e'(1) = -0.6)
+    assert _line_minimum(1.69, 0.09, -2.6, -0.6) == pytest.approx(1.3, abs=1e-12)
+    # e(t) = (t - 1.05)^2: within 0.1 of the end, the step's own end point is kept
+    assert _line_minimum(1.1025, 0.0025, -2.1, -0.1) is None
+    # uphill at the start: no line minimum to use
+    assert _line_minimum(0.0, 1.0, 0.5, 1.5) is None
