@@ -317,8 +317,8 @@ def optimise_dimer(dimer: Dimer, level: str | LevelOfTheory, *, max_steps: int =
             "level": fn.level.label,
             "level_settings_json": json.dumps(fn.level.settings(), sort_keys=True, default=str),
             "counterpoise": "Boys-Bernardi",
-            "method": "quasi-Newton (SR1) with a trust radius and cubic line minima in B's translation and rotation about its "
-                      "centre of mass; monomers rigid, A fixed",
+            "method": "quasi-Newton (SR1) with a trust radius and cubic line minima in B's translation "
+                      "and rotation about its centre of mass; monomers rigid, A fixed",
             "converged": converged,
             "evaluations": len(steps),
             "calculations_computed": fn.computed,
