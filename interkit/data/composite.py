@@ -10,6 +10,8 @@ Coordinates ``level_kind`` ('requested', 'component', 'composite') and ``used_by
 Each composite interaction energy is combined component by component, each from the
 dimer and ghosted (or own-basis) calculations of its own basis:
 ``E_int = E_int^HF(Y) + CBS[E_int^corr(X), E_int^corr(Y)] + (E_int^corr,CC - E_int^corr,MP2)(corr. basis)``.
+A single-basis composite (``mp2/B + ccsd(t)/b``) takes E_int^HF(B) + E_int^corr(B) in
+place of the first two terms; its basis-set uncertainty is NaN.
 """
 
 from __future__ import annotations
