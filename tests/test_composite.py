@@ -62,7 +62,7 @@ def test_cardinal_numbers_and_refusals():
              ("ccsd(t)/cc-pvdz~cc-pvtz + ccsd(t)/cc-pvdz", "applies to an MP2 base"),
              ("mp2/cc-pvdz~cc-pvtz~cc-pvqz", "is not of the form"),
              ("mp2/cc-pvdz~cc-pvtz (exact scf)", "note 'exact scf'"),
-             ("mp2/cc-pvdz + ccsd(t)/cc-pvdz", "needs an extrapolated base"),
+             ("mp2/cc-pvdz~cc-pvtz + ccsd(t)/cc-pvdz + ccsd(t)/cc-pvdz", "is not of the form"),
              ("mp2/cc-pvdz~", "is not of the form"),
              ("mp2/cc-pvdz~cc-pvtz + ccsd(t)/cc-pvdz~cc-pvtz", "is not of the form")]
     for text, message in cases:

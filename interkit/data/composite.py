@@ -10,6 +10,8 @@ Coordinates ``level_kind`` ('requested', 'component', 'composite') and ``used_by
 Each composite interaction energy is combined component by component, each from the
 dimer and ghosted (or own-basis) calculations of its own basis:
 ``E_int = E_int^HF(Y) + CBS[E_int^corr(X), E_int^corr(Y)] + (E_int^corr,CC - E_int^corr,MP2)(corr. basis)``.
+A single-basis composite (``mp2/B + ccsd(t)/b``) takes E_int^HF(B) + E_int^corr(B) in
+place of the first two terms; its basis-set uncertainty is NaN.
 """
 
 from __future__ import annotations
@@ -26,7 +28,8 @@ from ..units import HARTREE_TO_KCAL_PER_MOL
 UNCERTAINTY_NOTE = (
     "basis-set uncertainty of an extrapolated level: |E_int(composite) - E_int(same recipe "
     "with the larger basis's correlation energy instead of the extrapolated one)|, the "
-    "spread between the two bases; NaN for levels that are not extrapolated")
+    "spread between the two bases; NaN for levels that are not extrapolated (including a single-basis "
+    "composite)")
 HALFCP_LONG_NAME = "half-counterpoise interaction energy (mean of corrected and uncorrected)"
 COMPOSITE_TOTAL_NOTE = ("e_total_hartree, job_key and scf_cycles are empty for composite rows (no single "
                         "calculation) and those of the source job for derived rows; wall_time_s is 0 for "
@@ -139,15 +142,19 @@ def _fill_derived(out, plan, records, label, source, li, field) -> None:
 
 def _fill_composite(out, plan, records, comp: CompositeLevel, index: dict) -> np.ndarray:
     """Fill one composite row; return its basis-set uncertainty (kcal/mol) per point."""
-    small, large = comp.extrapolated()
-    ls, ll = index[small.label], index[large.label]
+    base = comp.base_levels()
+    large = base[-1]
+    ll = index[large.label]
     hf_cp, hf_nocp = _parts(plan, records, ll, "scf_energy_hartree")
-    cs_cp, cs_nocp = _parts(plan, records, ls, "correlation_energy_hartree")
     cl_cp, cl_nocp = _parts(plan, records, ll, "correlation_energy_hartree")
-    x = comp.x_small
-    cbs_cp, cbs_nocp = extrapolate_inverse_cube(cs_cp, cl_cp, x), extrapolate_inverse_cube(cs_nocp, cl_nocp, x)
+    if comp.extrapolates:
+        cs_cp, cs_nocp = _parts(plan, records, index[base[0].label], "correlation_energy_hartree")
+        x = comp.x_small
+        cbs_cp, cbs_nocp = extrapolate_inverse_cube(cs_cp, cl_cp, x), extrapolate_inverse_cube(cs_nocp, cl_nocp, x)
+    else:  # one base basis: its own correlation energy, nothing extrapolated
+        cbs_cp, cbs_nocp = cl_cp, cl_nocp
     e_cp, e_nocp = hf_cp + cbs_cp, hf_nocp + cbs_nocp
-    rows = [small.label, large.label]
+    rows = [lv.label for lv in base]
     corr = comp.correction()
     if corr is not None:
         lc = index[corr.label]
@@ -174,6 +181,8 @@ def _fill_composite(out, plan, records, comp: CompositeLevel, index: dict) -> np
     e_cp[failed] = np.nan
     e_nocp[failed] = np.nan
     spread = np.abs(cbs_cp - cl_cp) if plan.spec.counterpoise else np.abs(cbs_nocp - cl_nocp)
+    if not comp.extrapolates:
+        spread[:] = np.nan  # no second basis to take a spread from
     spread[failed] = np.nan
     row = {"level": comp.label}
     out["e_int"].loc[row] = e_cp

@@ -1,11 +1,18 @@
 """Composite levels: a correlation energy extrapolated to the basis-set limit from two
-consecutive correlation-consistent bases, plus an optional higher-level correction.
+consecutive correlation-consistent bases, plus an optional higher-level correction; or
+MP2 in one basis plus a higher-level correction in a smaller one (additive form).
 
 String form (interkit's own): ``"mp2/aug-cc-pvtz~aug-cc-pvqz + ccsd(t)/aug-cc-pvdz"``.
 ``A~B`` is the pair the correlation energy is extrapolated from (cardinal numbers X and
 X+1, Hartree–Fock taken at B); ``+ method/basis`` adds the correction (that method's
 correlation energy minus MP2's, both from one SCF in that basis). A trailing
 ``(all-electron)`` correlates every electron in all components.
+
+``"mp2/aug-cc-pvtz + ccsd(t)/aug-cc-pvdz"`` (one base basis, any basis, correction
+required) is the additive estimate of CCSD(T) in the base basis,
+E(CCSD(T)/B) ~ E(MP2/B) + [E(CCSD(T)/b) - E(MP2/b)], as used for the S22 reference
+interaction energies (Jurečka, Šponer, Černý, Hobza, Phys. Chem. Chem. Phys. 8, 1985
+(2006)); nothing is extrapolated.
 
 Every component is an ordinary computed level (a job per role and point); the
 combination is made per interaction energy, component by component, so each carries its
@@ -18,6 +25,7 @@ import re
 from dataclasses import dataclass
 
 from ..errors import InputError
+from .level_names import split_correction
 from .levels import LevelOfTheory
 from .levels import parse_level as parse_plain_level
 
@@ -30,6 +38,8 @@ EXTRAPOLATION_FORMULA = "E_corr(CBS) = (Y^3 E_corr(Y) - X^3 E_corr(X)) / (Y^3 - 
 _CARDINALS = {"d": 2, "t": 3, "q": 4, "5": 5, "6": 6}
 _ZETA = {v: k for k, v in _CARDINALS.items()}
 #: correlation-consistent families: prefix (aug-, d-aug-, jun-/may-/apr-) + cc-p[c|wc]v + X + z
+ADDITIVE_CITATION = ("P. Jurečka, J. Šponer, J. Černý, P. Hobza, Phys. Chem. Chem. Phys. 8, 1985 (2006): "
+                     "MP2 interaction energy plus the CCSD(T) - MP2 difference in a smaller basis")
 _CC_BASIS = re.compile(r"^((?:d-aug-|aug-|jun-|may-|apr-)?cc-p(?:c|wc)?v)([dtq56])z$")
 
 
@@ -88,14 +98,16 @@ def extrapolate_inverse_cube(e_small, e_large, x_small: int):
 
 @dataclass(frozen=True)
 class CompositeLevel:
-    """An extrapolated level, optionally with a higher-level correction.
+    """An extrapolated level, optionally with a higher-level correction, or an MP2 level
+    in one basis with a required higher-level correction (not extrapolated).
 
     Parameters
     ----------
     base_method : {'mp2', 'ccsd(t)'}
-        Method whose correlation energy is extrapolated.
-    bases : (str, str)
-        The consecutive pair, smaller first (e.g. ``('aug-cc-pvtz', 'aug-cc-pvqz')``).
+        Method whose correlation energy is extrapolated (MP2 for a single basis).
+    bases : (str, str) or (str,)
+        The consecutive pair, smaller first (e.g. ``('aug-cc-pvtz', 'aug-cc-pvqz')``), or
+        one basis (any basis pyscf knows; then ``correction_method`` is required).
     correction_method : {None, 'ccsd(t)'}
         Adds E_corr(method) - E_corr(MP2) in ``correction_basis`` (same SCF); MP2 base only.
     correction_basis : str, optional
@@ -105,7 +117,7 @@ class CompositeLevel:
     """
 
     base_method: str
-    bases: tuple[str, str]
+    bases: tuple[str, str] | tuple[str]
     correction_method: str | None = None
     correction_basis: str | None = None
     frozen_core: bool = True
@@ -114,10 +126,12 @@ class CompositeLevel:
         method = str(self.base_method).strip().lower()
         if method not in BASE_METHODS:
             raise InputError(f"level composite: method {self.base_method!r} is not one of {', '.join(BASE_METHODS)}")
-        if isinstance(self.bases, str) or len(tuple(self.bases)) != 2:
-            raise InputError(f"level composite: bases {self.bases!r} is not a pair of basis-set names")
-        small, large = (str(b).strip().lower() for b in self.bases)
-        check_consecutive(small, large, f"{method}/{small}~{large}")
+        if isinstance(self.bases, str) or len(tuple(self.bases)) not in (1, 2) or \
+                not all(str(b).strip() for b in self.bases):
+            raise InputError(f"level composite: bases {self.bases!r} is not one basis-set name or a pair")
+        bases = tuple(str(b).strip().lower() for b in self.bases)
+        if len(bases) == 2:
+            check_consecutive(*bases, f"{method}/{bases[0]}~{bases[1]}")
         corr = self.correction_method.strip().lower() if self.correction_method else None
         cbasis = self.correction_basis.strip().lower() if self.correction_basis else None
         if corr is not None and corr not in CORRECTION_METHODS:
@@ -127,10 +141,13 @@ class CompositeLevel:
             raise InputError("level composite: a correction needs both a method and a basis")
         if corr is not None and method != "mp2":
             raise InputError(f"level composite: a {corr} correction applies to an MP2 base, not {method}")
+        if len(bases) == 1 and corr is None:
+            raise InputError(f"level composite: {method}/{bases[0]} without a correction is a plain level "
+                             "(give it as such, or add '+ method/basis')")
         if not isinstance(self.frozen_core, bool):
             raise InputError(f"level composite frozen_core: {self.frozen_core!r} is not true or false")
         object.__setattr__(self, "base_method", method)
-        object.__setattr__(self, "bases", (small, large))
+        object.__setattr__(self, "bases", bases)
         object.__setattr__(self, "correction_method", corr)
         object.__setattr__(self, "correction_basis", cbasis)
 
@@ -140,14 +157,21 @@ class CompositeLevel:
         return None
 
     @property
+    def extrapolates(self) -> bool:
+        """True for the two-basis (extrapolated) form, False for the single-basis one."""
+        return len(self.bases) == 2
+
+    @property
     def x_small(self) -> int:
-        """Cardinal number X of the smaller basis."""
+        """Cardinal number X of the smaller basis (extrapolated form only)."""
+        if not self.extrapolates:
+            raise InputError(f"level {self.label!r}: not extrapolated (one base basis), no cardinal number")
         return cardinal_number(self.bases[0])
 
     @property
     def label(self) -> str:
         """Canonical string form; :func:`parse_composite` reads it back."""
-        text = f"{self.base_method}/{self.bases[0]}~{self.bases[1]}"
+        text = f"{self.base_method}/{'~'.join(self.bases)}"
         if self.correction_method:
             text += f" + {self.correction_method}/{self.correction_basis}"
         return text + ("" if self.frozen_core else " (all-electron)")
@@ -157,7 +181,13 @@ class CompositeLevel:
 
     def extrapolated(self) -> tuple[LevelOfTheory, LevelOfTheory]:
         """The two computed levels whose correlation energies are extrapolated."""
+        if not self.extrapolates:
+            raise InputError(f"level {self.label!r}: not extrapolated (one base basis)")
         return self._level(self.base_method, self.bases[0]), self._level(self.base_method, self.bases[1])
+
+    def base_levels(self) -> tuple[LevelOfTheory, ...]:
+        """The computed base levels: the extrapolated pair, or the single base level."""
+        return tuple(self._level(self.base_method, b) for b in self.bases)
 
     def correction(self) -> LevelOfTheory | None:
         """The computed level of the correction (exact integrals), or None."""
@@ -166,16 +196,16 @@ class CompositeLevel:
         return self._level(self.correction_method, self.correction_basis)
 
     def components(self) -> tuple[LevelOfTheory, ...]:
-        """Levels computed as jobs: the extrapolated pair, then the correction's level."""
+        """Levels computed as jobs: the base level(s), then the correction's level."""
         corr = self.correction()
-        return self.extrapolated() + ((corr,) if corr is not None else ())
+        return self.base_levels() + ((corr,) if corr is not None else ())
 
     def derived(self) -> tuple[tuple[LevelOfTheory, LevelOfTheory, str], ...]:
         """Rows derived from the component jobs without a calculation of their own:
-        ``(level, source level, record field)``. Hartree–Fock at the larger basis (the
-        SCF part of the larger extrapolated job) and MP2 in the correction basis (from
+        ``(level, source level, record field)``. Hartree–Fock at the larger (or only) base
+        basis (the SCF part of that MP2 job) and MP2 in the correction basis (from
         the correction job's own SCF; the field holds its MP2 correlation energy)."""
-        large = self.extrapolated()[1]
+        large = self.base_levels()[-1]
         hf = LevelOfTheory("hf", large.basis, density_fitting=large.scf_fitted, jk_auxbasis=large.jk_auxbasis)
         out = [(hf, large, "scf_energy_hartree")]
         corr = self.correction()
@@ -187,21 +217,23 @@ class CompositeLevel:
 
     def recipe(self) -> dict:
         """How the composite is made (JSON-safe), for the Dataset's attrs."""
-        small, large = self.extrapolated()
+        base = self.base_levels()
         hf = self.derived()[0][0]
         terms = [f"E_int[{hf.label}]",
-                 f"CBS(E_int^corr[{small.label}], E_int^corr[{large.label}])"]
+                 f"CBS(E_int^corr[{base[0].label}], E_int^corr[{base[1].label}])" if self.extrapolates
+                 else f"E_int^corr[{base[0].label}]"]
         if self.correction_method:
             terms.append(f"E_int^corr[{self.correction().label}] - E_int^corr[{self.derived()[1][0].label}]")
         return {
             "formula": " + ".join(terms),
-            "extrapolation": EXTRAPOLATION_FORMULA,
-            "bases": list(self.bases), "cardinal_numbers": [self.x_small, self.x_small + 1],
+            "extrapolation": EXTRAPOLATION_FORMULA if self.extrapolates else None,
+            "bases": list(self.bases),
+            "cardinal_numbers": [self.x_small, self.x_small + 1] if self.extrapolates else None,
             "base_method": self.base_method,
             "correction": (f"{self.correction_method} - mp2 in {self.correction_basis} (one SCF, exact integrals)"
                            if self.correction_method else None),
             "frozen_core": self.frozen_core,
-            "citation": EXTRAPOLATION_CITATION,
+            "citation": EXTRAPOLATION_CITATION if self.extrapolates else ADDITIVE_CITATION,
             "components": [lv.label for lv in self.components()],
             "derived": [lv.label for lv, _, _ in self.derived()],
         }
@@ -254,8 +286,9 @@ def computed_levels(plain, composites) -> tuple[LevelOfTheory, ...]:
 
 
 def is_composite_text(text) -> bool:
-    """True when ``text`` is a string in the composite form (it contains ``~``)."""
-    return isinstance(text, str) and "~" in text
+    """True when ``text`` is a string in a composite form: it contains ``~``, or a
+    ``method/basis`` followed by a ``+ method/basis`` correction."""
+    return isinstance(text, str) and ("~" in text or split_correction(text)[1] is not None)
 
 
 def parse_composite(text: str) -> CompositeLevel:
@@ -268,15 +301,21 @@ def parse_composite(text: str) -> CompositeLevel:
             raise InputError(f"levels: {text!r}: note {note.strip()!r} is not 'all-electron' "
                              "(the only note a composite level takes)")
         frozen = False
-    base, plus, corr = raw.partition("+")
+    base, corr = split_correction(raw)
+    plus = corr is not None
+    if not plus and "~" in raw:  # '+' without a 'method/basis' after it
+        base, plus, corr = raw.partition("+")
+    corr = corr or ""
     if plus and not corr.strip():
         raise InputError(f"levels: {text!r}: nothing after '+' (expected '+ method/basis')")
-    if base.count("~") != 1 or corr.count("~") or base.count("/") != 1:
-        raise InputError(f"levels: {text!r} is not of the form 'method/basisX~basisY [+ method/basis]'")
+    if base.count("~") > 1 or corr.count("~") or base.count("/") != 1 or (not plus and "~" not in base):
+        raise InputError(f"levels: {text!r} is not of the form 'method/basisX~basisY [+ method/basis]' "
+                         "or 'mp2/basis + method/basis'")
     method, _, pair = base.partition("/")
-    small, _, large = (p.strip() for p in pair.partition("~"))
-    if not method.strip() or not small or not large:
-        raise InputError(f"levels: {text!r} is not of the form 'method/basisX~basisY [+ method/basis]'")
+    bases = tuple(p.strip() for p in pair.split("~"))
+    if not method.strip() or not all(bases):
+        raise InputError(f"levels: {text!r} is not of the form 'method/basisX~basisY [+ method/basis]' "
+                         "or 'mp2/basis + method/basis'")
     cmethod = cbasis = None
     if plus:
         if corr.count("/") != 1:
@@ -284,20 +323,17 @@ def parse_composite(text: str) -> CompositeLevel:
         cmethod, _, cbasis = (p.strip() for p in corr.partition("/"))
         if not cmethod or not cbasis:
             raise InputError(f"levels: {text!r}: the correction {corr.strip()!r} is not 'method/basis'")
-    return CompositeLevel(method.strip(), (small, large), cmethod, cbasis, frozen)
+    return CompositeLevel(method.strip(), bases, cmethod, cbasis, frozen)
 
 
 def parse_level(text, **settings) -> LevelOfTheory | CompositeLevel:
-    """Parse a level string: a composite (``'mp2/cc-pvdz~cc-pvtz + ccsd(t)/cc-pvdz'``)
-    into a :class:`CompositeLevel`, anything else as
+    """Parse a level string: a composite (``'mp2/cc-pvdz~cc-pvtz + ccsd(t)/cc-pvdz'``,
+    ``'mp2/cc-pvtz + ccsd(t)/cc-pvdz'``) into a :class:`CompositeLevel`, anything else as
     :func:`interkit.model.levels.parse_level` does."""
     if isinstance(text, CompositeLevel):
         return text.with_settings(settings) if settings else text
     if is_composite_text(text):
         return parse_composite(text).with_settings(settings)
-    if isinstance(text, str) and "/" in text.partition("+")[2]:  # not a basis like 6-31+g*
-        raise InputError(f"levels: {text!r}: a correction '+ method/basis' needs an extrapolated base "
-                         "'method/basisX~basisY'")
     return parse_plain_level(text, **settings)
 
 

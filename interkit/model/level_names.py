@@ -65,7 +65,7 @@ def display_label(level_label: str) -> str:
     label comes back unchanged.
     """
     text = str(level_label)
-    if "~" in text:
+    if "~" in text or _is_additive(text):
         return _composite_text(text)
     core, notes = text, ""
     if text.endswith(")") and " (" in text:
@@ -86,19 +86,43 @@ def display_label(level_label: str) -> str:
     return f"{method_text(head)}{dispersion}/{basis_text(basis)}{notes}"
 
 
+def _is_additive(text: str) -> bool:
+    """True for the single-basis composite form ``'mp2/B + ccsd(t)/b'`` (a ``+`` followed
+    by ``method/basis``; a ``+`` inside a basis name like ``6-31+g*`` is not one)."""
+    return split_correction(text)[1] is not None
+
+
+def split_correction(text: str) -> tuple[str, str | None]:
+    """``text`` split at the ``+`` that starts a ``+ method/basis`` correction:
+    ``(base, correction)``, or ``(text, None)`` without one. A ``+`` inside a basis name
+    (``6-31+g*``) does not start a correction: the correction's method has no ``+``."""
+    for pos in (i for i, ch in enumerate(text) if ch == "+"):
+        head, tail = text[:pos], text[pos + 1:]
+        if "/" in head and tail.count("/") == 1 and "+" not in tail.partition("/")[0]:
+            return head, tail
+    return text, None
+
+
 def _composite_text(text: str) -> str:
     """``'mp2/aug-cc-pvtz~aug-cc-pvqz + ccsd(t)/aug-cc-pvdz'`` ->
-    ``'MP2/CBS(aug-cc-pVTZ, aug-cc-pVQZ; X^-3) + ΔCCSD(T)/aug-cc-pVDZ'``."""
+    ``'MP2/CBS(aug-cc-pVTZ, aug-cc-pVQZ; X^-3) + ΔCCSD(T)/aug-cc-pVDZ'``,
+    ``'mp2/aug-cc-pvtz + ccsd(t)/aug-cc-pvdz'`` -> ``'MP2/aug-cc-pVTZ + ΔCCSD(T)/aug-cc-pVDZ'``."""
     core, notes = text, ""
     if text.endswith(")") and " (" in text:
         core, _, rest = text.rpartition(" (")
         notes = f" ({rest}"
-    base, plus, corr = core.partition("+")
-    if base.count("/") != 1 or base.count("~") != 1:
+    base, corr = split_correction(core)
+    plus = corr is not None
+    if not plus and "~" in core:
+        base, plus, corr = core.partition("+")
+    if base.count("/") != 1 or base.count("~") > 1 or (not plus and "~" not in base):
         return text
     method, _, pair = base.partition("/")
-    small, _, large = (p.strip() for p in pair.partition("~"))
-    out = f"{method_text(method)}/CBS({basis_text(small)}, {basis_text(large)}; X^-3)"
+    if "~" in pair:
+        small, _, large = (p.strip() for p in pair.partition("~"))
+        out = f"{method_text(method)}/CBS({basis_text(small)}, {basis_text(large)}; X^-3)"
+    else:
+        out = f"{method_text(method)}/{basis_text(pair.strip())}"
     if plus:
         if corr.count("/") != 1:
             return text

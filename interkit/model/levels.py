@@ -13,7 +13,7 @@ from functools import lru_cache
 import numpy as np
 
 from ..errors import InputError
-from .level_names import DISPERSION_LABELS, display_label  # noqa: F401 (display_label: public here)
+from .level_names import DISPERSION_LABELS, display_label, split_correction  # noqa: F401 (display_label: public here)
 
 WAVEFUNCTION_METHODS = ("hf", "mp2", "scs-mp2", "ccsd(t)")
 #: post-hoc dispersion corrections: two-body D3 with zero or Becke–Johnson damping, D4;
@@ -437,12 +437,18 @@ REFERENCE_PREFERENCE = ("ccsd(t)", "mp2", "scs-mp2")
 def default_reference(labels: list[str]) -> str:
     """The most accurate wavefunction level among ``labels`` (else the first label): the
     one rule by which reports, ``interkit compare`` and the comparison widget pick a
-    reference curve when none is named. Composite (basis-set limit) levels come first."""
+    reference curve when none is named. Composite (basis-set limit) levels come first; a
+    single-basis composite ``mp2/B + ccsd(t)/b`` ranks as its correction's method, after
+    the plain levels of that method."""
     for label in labels:
         if "~" in label:
             return label
+    corrections = {label: split_correction(label)[1] for label in labels}
     for method in REFERENCE_PREFERENCE:
         for label in labels:
-            if label.split("/")[0] == method:
+            if corrections[label] is None and label.split("/")[0] == method:
+                return label
+        for label in labels:
+            if corrections[label] is not None and corrections[label].split("/")[0].strip() == method:
                 return label
     return labels[0]

@@ -315,11 +315,18 @@ def _composite_sentences(ds, cite: _Citations) -> list[str]:
         recipes = json.loads(ds.attrs.get("composite_recipe_json", "") or "{}")
     except ValueError:
         return []
-    return [f"The composite level {label} combines, per interaction energy and each term counterpoise-"
-            f"corrected in its own basis, {r['formula']}, with the two-point X^-3 extrapolation of the "
-            f"correlation energy (X = {r['cardinal_numbers'][0]}, {r['cardinal_numbers'][1]})"
-            + cite.cite(refs.EXTRAPOLATION_REFERENCES) + "."
-            for label, r in recipes.items()]
+    out = []
+    for label, r in recipes.items():
+        head = (f"The composite level {label} combines, per interaction energy and each term counterpoise-"
+                f"corrected in its own basis, {r['formula']}")
+        if r.get("cardinal_numbers"):
+            out.append(head + f", with the two-point X^-3 extrapolation of the correlation energy (X = "
+                       f"{r['cardinal_numbers'][0]}, {r['cardinal_numbers'][1]})"
+                       + cite.cite(refs.EXTRAPOLATION_REFERENCES) + ".")
+        else:  # one base basis: the additive estimate, nothing extrapolated
+            out.append(head + ", an additive estimate of the correction's method in the base basis (no "
+                       "extrapolation)" + cite.cite(refs.ADDITIVE_REFERENCES) + ".")
+    return out
 
 
 def methods_text(ds) -> str:

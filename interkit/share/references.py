@@ -21,6 +21,10 @@ REFERENCES: dict[str, dict[str, str]] = {
                          title="Basis-set convergence of correlated calculations on water",
                          journal="J. Chem. Phys.", volume="106", pages="9639", year="1997",
                          doi="10.1063/1.473863"),
+    "jurecka2006": dict(author="Jure{\\v{c}}ka, P. and {\\v{S}}poner, J. and {\\v{C}}ern{\\'{y}}, J. and Hobza, P.",
+                        title="Benchmark database of accurate (MP2 and CCSD(T) complete basis set limit) "
+                        "interaction energies of small model complexes, DNA base pairs, and amino acid pairs",
+                        journal="Phys. Chem. Chem. Phys.", volume="8", pages="1985", year="2006"),
     "becke1993": dict(author="Becke, A. D.", title="Density-functional thermochemistry. III. The role of "
                       "exact exchange", journal="J. Chem. Phys.", volume="98", pages="5648", year="1993",
                       doi="10.1063/1.464913"),
@@ -120,6 +124,8 @@ METHOD_REFERENCES = {"mp2": ("moller1934",), "scs-mp2": ("moller1934", "grimme20
 PROGRAM_REFERENCES = ("sun2018", "sun2020")
 COUNTERPOISE_REFERENCES = ("boys1970",)
 EXTRAPOLATION_REFERENCES = ("helgaker1997",)
+#: MP2 in one basis plus CCSD(T) - MP2 in a smaller one (single-basis composite)
+ADDITIVE_REFERENCES = ("jurecka2006",)
 SAPT0_REFERENCES = ("jeziorski1994", "hohenstein2010")
 SSAPT0_REFERENCES = ("parker2014",)
 
