@@ -7,7 +7,7 @@ one geometry: every evaluation runs through :func:`interkit.run_scan`, so it is 
 the result store and a killed optimisation, started again with the same arguments,
 repeats the same steps from the store without computing them again.
 
-Method: quasi-Newton (symmetric rank-one update of a model Hessian) with a trust radius in the
+Method: quasi-Newton (BFGS update of a model Hessian) with a trust radius, in the
 coordinates ``q = (t, w L)``: ``t`` the translation of B (Å), ``w`` the rotation vector
 of B about its starting centre of mass (rad), ``L`` the root-mean-square distance of
 B's atoms from its centre of mass (at least 0.5 Å), so a rotation moves atoms about as
@@ -17,21 +17,8 @@ The model Hessian (:func:`model_hessian`) has a spring along every A-B contact,
 weighted towards the closest; after the first step it is scaled down to the curvature
 measured along that step (``s.y / s.H.s``, cf. Nocedal & Wright, Numerical Optimization,
 2nd ed., sec. 6.1) when that is softer, never up (a first step down a repulsive wall
-would stiffen the soft turning modes too). Every evaluated pair of points updates the
-Hessian by the symmetric rank-one formula (SR1; Nocedal & Wright sec. 6.2), which, unlike
-BFGS, reproduces the Hessian of a quadratic after six independent steps (their Theorem
-6.1) and may learn a negative curvature; its eigenvalues are then kept at
-least ``MIN_CURVATURE_KCAL_PER_MOL_PER_ANGSTROM2`` in size (absolute values), so every
-step goes downhill. A step is accepted when the energy does not rise by more than
-``ENERGY_NOISE_KCAL_PER_MOL``. Along every step the energies and the gradient
-projections at its two ends fix a cubic (Nocedal & Wright sec. 3.5); when the step
-overshot the minimum of that line, or the energy still falls at its end and the cubic's
-minimum lies up to half a step beyond, the next quasi-Newton step starts from that line
-minimum, with the gradient interpolated linearly and the energy from the cubic
-(Schlegel, J. Comput. Chem. 3, 214 (1982)); a rejected step then costs one evaluation
-and no shrinking of the trust radius. Without such a minimum a poor step shrinks the
-radius to the cubic's minimum (0.1 to 0.8 of the step). The convergence test uses only
-evaluated geometries.
+would stiffen the soft turning modes too). A step is accepted when the energy does not rise by more than
+``ENERGY_NOISE_KCAL_PER_MOL``.
 
 Converged when, at an accepted geometry, the net force on B is shorter than
 ``force_tol`` (default 0.02 kcal/mol/Å, 1.7e-5 hartree/bohr), the torque shorter than
@@ -73,8 +60,6 @@ ENERGY_NOISE_KCAL_PER_MOL = 1e-6
 DEFAULT_TRUST_RADIUS_ANGSTROM = 0.3
 MAX_TRUST_RADIUS_ANGSTROM = 0.5
 MIN_TRUST_RADIUS_ANGSTROM = 1e-4
-#: smallest |eigenvalue| the quasi-Newton Hessian keeps (kcal/mol/Å², scaled coordinates)
-MIN_CURVATURE_KCAL_PER_MOL_PER_ANGSTROM2 = 0.3
 
 
 @dataclass
@@ -191,57 +176,6 @@ def _trust_step(g: np.ndarray, h: np.ndarray, radius: float) -> np.ndarray:
     return vecs @ (-gt / (vals + hi))
 
 
-def _cubic(e0: float, e1: float, d0: float, d1: float) -> tuple[float, float]:
-    """Coefficients ``(b, a)`` of ``e(t) = e0 + d0 t + b t^2 + a t^3`` with energies
-    ``e0, e1`` and slopes ``d0, d1`` at ``t = 0, 1`` (Hermite cubic)."""
-    return 3.0 * (e1 - e0) - 2.0 * d0 - d1, d0 + d1 - 2.0 * (e1 - e0)
-
-
-def _cubic_fraction(e0: float, e1: float, d0: float, d1: float, lo: float = 0.1,
-                    hi: float = 0.8) -> float:
-    """Minimiser ``t`` of the cubic with energies ``e0, e1`` and slopes ``d0, d1`` at
-    ``t = 0, 1`` (any consistent units), clipped to [lo, hi]; 0.5 when it has none."""
-    b, a = _cubic(e0, e1, d0, d1)
-    if abs(a) < 1e-12:
-        t = -d0 / (2.0 * b) if b > 0 else 0.5
-    else:
-        disc = b * b - 3.0 * a * d0
-        t = (-b + np.sqrt(disc)) / (3.0 * a) if disc >= 0 else 0.5
-    return float(np.clip(t, lo, hi)) if np.isfinite(t) else 0.5
-
-
-def _line_minimum(e0: float, e1: float, d0: float, d1: float) -> float | None:
-    """Where the next step starts, as a fraction of the last step (None: at its end).
-
-    Between the ends (0.05..0.95) when the step overshot the minimum of the line
-    (``d0 < 0 < d1``), beyond the end (1..1.5) when the energy still falls at it and
-    the cubic has its minimum there; None when that is within 0.1 of the end or the
-    cubic's minimum is not below both ends' energies."""
-    if d0 >= 0:
-        return None
-    if d1 > 0:
-        t = _cubic_fraction(e0, e1, d0, d1, 0.05, 0.95)
-    elif e1 <= e0:
-        t = _cubic_fraction(e0, e1, d0, d1, 1.0, 1.5)
-    else:
-        return None
-    b, a = _cubic(e0, e1, d0, d1)
-    if abs(t - 1.0) <= 0.1 or e0 + d0 * t + b * t * t + a * t**3 >= min(e0, e1):
-        return None
-    return t
-
-
-def _sr1_update(h: np.ndarray, s: np.ndarray, y: np.ndarray) -> np.ndarray:
-    """SR1 update of ``h`` by the step ``s`` and gradient change ``y`` (skipped when its
-    denominator is tiny), eigenvalues then at least the curvature floor in size."""
-    r = y - h @ s
-    den = float(r @ s)
-    if abs(den) <= 1e-6 * float(np.linalg.norm(r) * np.linalg.norm(s)):
-        return h
-    vals, vecs = np.linalg.eigh(h + np.outer(r, r) / den)
-    return (vecs * np.maximum(np.abs(vals), MIN_CURVATURE_KCAL_PER_MOL_PER_ANGSTROM2)) @ vecs.T
-
-
 def _positive(value, name: str) -> float:
     try:
         x = float(value)
@@ -317,8 +251,8 @@ def optimise_dimer(dimer: Dimer, level: str | LevelOfTheory, *, max_steps: int =
             "level": fn.level.label,
             "level_settings_json": json.dumps(fn.level.settings(), sort_keys=True, default=str),
             "counterpoise": "Boys-Bernardi",
-            "method": "quasi-Newton (SR1) with a trust radius and cubic line minima in B's translation "
-                      "and rotation about its centre of mass; monomers rigid, A fixed",
+            "method": "quasi-Newton (BFGS) with a trust radius in B's translation and rotation about its "
+                      "centre of mass; monomers rigid, A fixed",
             "converged": converged,
             "evaluations": len(steps),
             "calculations_computed": fn.computed,
@@ -334,53 +268,45 @@ def optimise_dimer(dimer: Dimer, level: str | LevelOfTheory, *, max_steps: int =
         q = np.zeros(6)
         ev, g = evaluate(q, True)
         h = model_hessian(dimer, length)
-        qb, gb, eb = q, g, ev.e_int  # base of the next step: q, or the line minimum before it
         updated = False
         converged = False
         while True:
-            p_here = _trust_step(g, h, radius)
+            p = _trust_step(g, h, radius)
+            predicted = float(g @ p + 0.5 * p @ h @ p)
             if (np.linalg.norm(ev.force) <= f_tol and np.linalg.norm(ev.torque) <= t_tol
-                    and -float(g @ p_here + 0.5 * p_here @ h @ p_here) <= e_tol):
+                    and -predicted <= e_tol):
                 converged = True
                 break
             if len(steps) >= max_steps or radius < MIN_TRUST_RADIUS_ANGSTROM:
                 break
-            p = _trust_step(gb, h, radius)
-            predicted = float(gb @ p + 0.5 * p @ h @ p)
             try:
                 from ..model.spec import check_contacts
 
-                check_contacts(moved_b(dimer, (qb + p)[:3], (qb + p)[3:] / length), "optimisation step")
+                check_contacts(moved_b(dimer, (q + p)[:3], (q + p)[3:] / length), "optimisation step")
             except InputError:  # too close: a shorter step instead
                 radius = 0.25 * float(np.linalg.norm(p))
                 continue
-            ev_new, g_new = evaluate(qb + p, False)
-            actual = ev_new.e_int - eb
+            ev_new, g_new = evaluate(q + p, False)
+            actual = ev_new.e_int - ev.e_int
             ratio = actual / predicted if predicted < 0 else -1.0
             step_len = float(np.linalg.norm(p))
-            s, y = qb + p - q, g_new - g   # from the last accepted point to the trial point
-            accept = ev_new.e_int - ev.e_int <= ENERGY_NOISE_KCAL_PER_MOL
-            e_old, d0, d1 = ev.e_int, float(g @ s), float(g_new @ s)
-            t = _line_minimum(e_old, ev_new.e_int, d0, d1)
-            if ratio < 0.25:  # the next step starts at the line minimum, else a shorter one
-                radius = step_len if t is not None else step_len * _cubic_fraction(e_old, ev_new.e_int, d0, d1)
+            if ratio < 0.25:
+                radius = 0.25 * step_len
             elif ratio > 0.75 and step_len > 0.8 * radius:
                 radius = min(2.0 * radius, MAX_TRUST_RADIUS_ANGSTROM)
+            accept = actual <= ENERGY_NOISE_KCAL_PER_MOL
+            s, y = p, g_new - g   # from the old point to the trial point, accepted or not
             sy = float(s @ y)
-            if sy > 1e-12 * float(np.linalg.norm(s) * np.linalg.norm(y)):
+            if sy > 1e-12 * float(np.linalg.norm(s) * np.linalg.norm(y)):  # keeps H positive definite
                 if not updated:  # the model's scale, fitted to the curvature along the first step
                     fac = sy / float(s @ h @ s)
                     h = h * min(fac, 1.0)
                     updated = True
-                h = _sr1_update(h, s, y)
-            q_old, g_old = q, g
+                hs = h @ s
+                h = h + np.outer(y, y) / sy - np.outer(hs, hs) / float(s @ hs)
             if accept:
                 steps[-1]["accepted"] = True
-                q, ev, g = qb + p, ev_new, g_new
-            qb, gb, eb = q, g, ev.e_int
-            if t is not None:  # energy from the cubic, gradient interpolated linearly
-                b3, a3 = _cubic(e_old, ev_new.e_int, d0, d1)
-                qb, gb, eb = q_old + t * s, g_old + t * y, e_old + d0 * t + b3 * t * t + a3 * t**3
+                q, ev, g = q + p, ev_new, g_new
     except BaseException as exc:  # the steps so far are in the store, and on the exception
         if steps:
             try:
