@@ -15,6 +15,7 @@ import csv
 
 import numpy as np
 import pytest
+from conftest import require
 
 import interkit as ik
 from interkit.data.schema import assemble
@@ -134,7 +135,7 @@ def test_comparison_plot_shades_the_reference_and_the_zero_error_band(scan):
 
 
 def test_explorer_curve_panel_draws_the_band(scan, tmp_path):
-    pytest.importorskip("ipywidgets")
+    require("ipywidgets", "the notebook layer needs ipywidgets (pip install -e .[test])")
     from interkit.widgets.explorer import ScanExplorer
 
     ex = ScanExplorer(scan, export_dir=tmp_path)
@@ -161,7 +162,7 @@ def test_curve_plot_draws_the_half_counterpoise_curve_when_asked(scan):
 
 
 def test_explorer_curve_control_switches_to_half_counterpoise(scan, tmp_path):
-    pytest.importorskip("ipywidgets")
+    require("ipywidgets", "the notebook layer needs ipywidgets (pip install -e .[test])")
     from interkit.widgets.explorer import ScanExplorer
 
     ex = ScanExplorer(scan, export_dir=tmp_path)
@@ -305,7 +306,7 @@ def test_band_and_column_of_an_assembled_composite_row(tmp_path):
 
 
 def test_comparison_widget_shows_the_reference_uncertainty(scan, tmp_path):
-    pytest.importorskip("ipywidgets")
+    require("ipywidgets", "the notebook layer needs ipywidgets (pip install -e .[test])")
     from interkit.analysis.comparison import comparison_table
     from interkit.widgets.comparison import CorrectionComparison
 

@@ -13,7 +13,7 @@ import re
 
 import numpy as np
 import pytest
-from conftest import s22_dimer
+from conftest import require, s22_dimer
 
 import interkit as ik
 from interkit.cli.main import main
@@ -192,7 +192,7 @@ def test_grid_json_has_a_qcschema_molecule_per_point(saved_grid, tmp_path):
 
 # ---------------------------------------------------------------------- report and show
 def test_grid_report_and_show(saved_grid, tmp_path, capsys):
-    pytest.importorskip("matplotlib")
+    require("matplotlib", "the notebook layer needs matplotlib (pip install -e .[test])")
     path, _ = saved_grid
     ds = ik.open_grid(path)
     out = tmp_path / "grid.html"
@@ -215,7 +215,7 @@ def test_grid_report_and_show(saved_grid, tmp_path, capsys):
 
 
 def test_one_axis_grid_report_draws_the_curve(tmp_path):
-    pytest.importorskip("matplotlib")
+    require("matplotlib", "the notebook layer needs matplotlib (pip install -e .[test])")
     grid = ik.OrientationGrid(s22_dimer("Water_dimer"), ik.Rotation((0.0, 0.0, 1.0), [-20.0, 0.0, 20.0]))
     ds = ik.run_orientation_scan(grid, executor="serial", cache=None, progress=False, levels=[LEVEL])
     text = open(ik.write_grid_report(ds, tmp_path / "line.html"), encoding="utf-8").read()

@@ -14,7 +14,7 @@ import math
 import numpy as np
 import pytest
 import xarray as xr
-from conftest import s22_dimer
+from conftest import require, s22_dimer
 
 import interkit as ik
 from interkit.units import HARTREE_TO_KCAL_PER_MOL
@@ -111,7 +111,7 @@ def test_grid_dataset_keeps_every_variable_and_round_trips(angle_map, tmp_path):
 
 
 def test_map_marks_the_grid_minimum_and_the_minimum_energy_path(angle_map):
-    pytest.importorskip("matplotlib")
+    require("matplotlib", "the notebook layer needs matplotlib (pip install -e .[test])")
     import matplotlib
 
     matplotlib.use("Agg")
@@ -189,7 +189,7 @@ def test_orient_command_writes_the_grid_and_refuses_bad_input(water, tmp_path, c
 
 
 def test_map_explorer_click_shows_that_cell(angle_map):
-    pytest.importorskip("ipywidgets")
+    require("ipywidgets", "the notebook layer needs ipywidgets (pip install -e .[test])")
     from types import SimpleNamespace
 
     from interkit.widgets.map_explorer import MapExplorer
@@ -197,7 +197,7 @@ def test_map_explorer_click_shows_that_cell(angle_map):
     grid, ds = angle_map
     for interactive in (False, True):
         if interactive:
-            pytest.importorskip("ipympl")
+            require("ipympl", "the notebook layer needs ipympl (pip install -e .[test])")
         ex = MapExplorer(ds, interactive=interactive)
         e = ds["e_int"].values[0]
         assert ex.cell == np.unravel_index(np.nanargmin(e), e.shape)      # opens on the grid minimum
