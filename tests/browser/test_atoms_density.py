@@ -188,8 +188,12 @@ def test_clicking_two_atoms_sets_the_contact_and_density_surfaces_draw(notebook_
         assert atom_b in scene["index"]["B"]
         page.wait_for_function("n => parseInt(document.querySelector('.interkit-launcher .interkit-atom-b select')"
                                ".selectedOptions[0].textContent) === n", arg=atom_b, timeout=20_000)
+        # the note is its own synced trait: wait for it, not only for the two fields
+        expected = f"{scene['symbols'][atom_a]}{atom_a} (A)"
+        page.wait_for_function("t => document.querySelector('.interkit-launcher .interkit-pick-note')"
+                               ".textContent.includes(t)", arg=expected, timeout=20_000)
         note = page.text_content(".interkit-launcher .interkit-pick-note")
-        assert f"{scene['symbols'][atom_a]}{atom_a} (A)" in note and "from 0" in note, note
+        assert expected in note and "from 0" in note, note
         _shot(page, f"atoms-picked-{kind}.png")
         # the explorer's deformation-density isosurfaces (gain and loss) are drawn
         surf = page.wait_for_selector(".interkit-explorer .interkit-3d[data-surfaces='2']", timeout=60_000)
