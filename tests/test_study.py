@@ -104,7 +104,7 @@ def test_study_of_three_s22_dimers_equals_three_separate_scans(three_study, thre
 
 
 def test_one_executor_call_and_one_progress_count(three_study, monkeypatch):
-    import interkit.run.study as run_study_module
+    import interkit.run.scan as run_study_module  # run_study hands its chunks to scan.execute_chunks
 
     calls = []
     original = run_study_module.run_serial

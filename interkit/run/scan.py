@@ -106,6 +106,25 @@ def resolve_executor(executor, workers: int | None):
     return executor, dask_executor, n_workers
 
 
+def execute_chunks(chunks, jobs, store, report, executor: str, dask_executor, n_workers: int,
+                   pool: dict | None, cancel) -> dict[str, dict]:
+    """Hand the chunks to the executor run_scan/run_study resolved: the Dask executor,
+    this process (with the pool's orbital-cache budget) or local worker processes."""
+    store_root = os.fspath(store.root) if store is not None else None
+    if dask_executor is not None:
+        return dask_executor.run(chunks, jobs, store_root, report, cancel)
+    if executor == "serial" or n_workers == 1:
+        from ..engine.numint_cache import set_cache_budget
+
+        old_budget = set_cache_budget(pool["cache_mb"])
+        try:
+            return run_serial(chunks, jobs, store_root, report, cancel)
+        finally:
+            set_cache_budget(old_budget)
+    return run_processes(chunks, jobs, store_root, report, workers=min(n_workers, len(chunks)), cancel=cancel,
+                         cache_mb=pool["cache_mb"])
+
+
 def run_scan(
     spec: ScanSpec,
     executor: str = "processes",
@@ -190,22 +209,8 @@ def run_scan(
     t0 = time.perf_counter()
     try:
         if n_todo:
-            store_root = os.fspath(store.root) if store is not None else None
-            if dask_executor is not None:
-                new = dask_executor.run(chunks, plan.jobs, store_root, report, cancel)
-            elif executor == "serial" or n_workers == 1 or len(chunks) == 1 and n_workers == 1:
-                from ..engine.numint_cache import set_cache_budget
-
-                old_budget = set_cache_budget(pool["cache_mb"])
-                try:
-                    new = run_serial(chunks, plan.jobs, store_root, report, cancel)
-                finally:
-                    set_cache_budget(old_budget)
-            else:
-                new = run_processes(chunks, plan.jobs, store_root, report,
-                                    workers=min(n_workers, len(chunks)), cancel=cancel,
-                                    cache_mb=pool["cache_mb"])
-            records.update(new)
+            records.update(execute_chunks(chunks, plan.jobs, store, report, executor, dask_executor, n_workers,
+                                          pool, cancel))
         not_stored = _not_stored(records, store)
         cancelled = cancel is not None and cancel.is_set()
         t_disp = time.perf_counter()

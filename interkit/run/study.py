@@ -24,9 +24,8 @@ from ..data.schema import assemble
 from ..data.study_tree import build_study_tree
 from ..errors import InputError, InterkitError, InterkitWarning
 from ..model.study import Study
-from .executors import run_processes, run_serial
 from .plan import plan_scan
-from .scan import _make_progress, _not_stored, fit_pool, posthoc_dispersion, resolve_executor
+from .scan import _make_progress, _not_stored, execute_chunks, fit_pool, posthoc_dispersion, resolve_executor
 from .store import ResultStore
 
 
@@ -141,21 +140,8 @@ def run_study(study: Study, executor="processes", cache: str | os.PathLike | Non
     t0 = time.perf_counter()
     try:
         if n_todo:
-            root = os.fspath(store.root) if store is not None else None
-            if dask_executor is not None:
-                new = dask_executor.run(chunks, jobs, root, report, cancel)
-            elif executor == "serial" or n_workers == 1:
-                from ..engine.numint_cache import set_cache_budget
-
-                old_budget = set_cache_budget(pool["cache_mb"])
-                try:
-                    new = run_serial(chunks, jobs, root, report, cancel)
-                finally:
-                    set_cache_budget(old_budget)
-            else:
-                new = run_processes(chunks, jobs, root, report, workers=min(n_workers, len(chunks)), cancel=cancel,
-                                    cache_mb=pool["cache_mb"])
-            records.update(new)
+            records.update(execute_chunks(chunks, jobs, store, report, executor, dask_executor, n_workers, pool,
+                                          cancel))
         not_stored = set(_not_stored(records, store))
         cancelled = cancel is not None and cancel.is_set()
         datasets, failures = {}, {}
