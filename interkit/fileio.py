@@ -11,6 +11,17 @@ import os
 import tempfile
 
 
+def existing_folder(path: str | os.PathLike, field: str) -> str:
+    """``path`` as a string once its folder exists; else :class:`InputError` naming ``field``."""
+    from .errors import InputError
+
+    path = os.fspath(path)
+    folder = os.path.dirname(os.path.abspath(path))
+    if not os.path.isdir(folder):
+        raise InputError(f"{field}: folder {folder!r} does not exist")
+    return path
+
+
 def current_umask() -> int:
     """The process umask (read without changing it where the system allows)."""
     try:

@@ -367,29 +367,55 @@ def test_cli_scan_and_compare_with_a_composite(composite_run, tmp_path, capsys):
 #: S22B CCSD(T)/CBS, kcal/mol (Marshall, Burns, Sherrill, J. Chem. Phys. 135, 194102 (2011))
 S22B = {"Water_dimer": -4.989, "Ammonia_dimer": -3.133, "Methane_dimer": -0.527}
 S22_COMPOSITE = "mp2/aug-cc-pvtz~aug-cc-pvqz + ccsd(t)/aug-cc-pvdz"
-#: for these small dimers the CCSD(T) - MP2 correction in aug-cc-pVDZ is a few tenths of a
-#: kcal/mol at most (recalled from memory of the S22 composite tables; not a cited number)
-CORRECTION_BOUND_KCAL_PER_MOL = 0.30
+#: the same MP2/CBS with the correction in aug-cc-pVTZ (computed for the water dimer only)
+S22_COMPOSITE_TZ = "mp2/aug-cc-pvtz~aug-cc-pvqz + ccsd(t)/aug-cc-pvtz"
+#: For hydrogen-bonded and aliphatic dispersion contacts the CCSD(T) - MP2 correction is a few
+#: hundredths of a kcal/mol (Jurečka et al., PCCP 8, 1985 (2006); Marshall et al. 2011; the
+#: size recalled from memory), against 1.5-2.5 kcal/mol for pi stacks (memory). Marshall et
+#: al. 2011 also report that an aug-cc-pVDZ correction can miss its basis-set limit by up to
+#: about a tenth (memory), which is why S22B takes it in larger bases: hence the 0.10 bound
+#: on the aDZ correction and the larger-basis correction used for the sign when the two differ.
+CORRECTION_BOUND_KCAL_PER_MOL = 0.10
+
+
+def _correction(e, basis: str) -> float:
+    return float(e.sel(level=f"ccsd(t)/{basis}") - e.sel(level=f"mp2/{basis} (exact scf, exact correlation)"))
 
 
 @pytest.mark.slow
 @pytest.mark.parametrize("name", sorted(S22B))
 def test_s22_composite_matches_s22b(name, tmp_path):
     """MP2/CBS(aTZ, aQZ) + ΔCCSD(T)/aDZ on the S22 geometries of ``ase.data.s22``
-    (Jurečka et al., PCCP 8, 1985 (2006)) within 0.10 kcal/mol of S22B."""
+    (Jurečka et al., PCCP 8, 1985 (2006)) within 0.10 kcal/mol of S22B; the correction's
+    sign and size against the correction that S22B implies (S22B minus our MP2/CBS)."""
     from conftest import s22_dimer
 
-    spec = ik.ScanSpec(dimer=s22_dimer(name), coordinate=ik.CentreOfMass(), factors=[1.0],
-                       levels=[S22_COMPOSITE])
+    levels = [S22_COMPOSITE] + ([S22_COMPOSITE_TZ] if name == "Water_dimer" else [])
+    spec = ik.ScanSpec(dimer=s22_dimer(name), coordinate=ik.CentreOfMass(), factors=[1.0], levels=levels)
     ds = ik.run_scan(spec, executor="serial", cache=tmp_path / "store", progress=False)
     assert (ds["status"] != "failed").all(), ds["status_detail"].values
     e = ds["e_int"].isel(distance=0)
     comp = float(e.sel(level=S22_COMPOSITE))
-    delta = float(e.sel(level="ccsd(t)/aug-cc-pvdz") - e.sel(level="mp2/aug-cc-pvdz (exact scf, exact correlation)"))
-    print(f"{name}: composite {comp:.3f} kcal/mol (S22B {S22B[name]}), correction {delta:+.3f}, "
-          f"basis uncertainty {float(ds['e_int_basis_uncertainty'].sel(level=S22_COMPOSITE).item()):.3f}")
+    delta_dz = _correction(e, "aug-cc-pvdz")
+    mp2_cbs = comp - delta_dz
+    implied = S22B[name] - mp2_cbs  # the correction the CCSD(T)/CBS reference asks of our MP2/CBS
+    deltas = {"aug-cc-pvdz": delta_dz}
+    if name == "Water_dimer":
+        deltas["aug-cc-pvtz"] = _correction(e, "aug-cc-pvtz")
+    print(f"{name}: composite {comp:.3f} kcal/mol (S22B {S22B[name]}), MP2/CBS {mp2_cbs:.3f}, implied "
+          f"correction {implied:+.3f}, computed " + ", ".join(f"{b} {d:+.3f}" for b, d in deltas.items())
+          + f", basis uncertainty {float(ds['e_int_basis_uncertainty'].sel(level=S22_COMPOSITE).item()):.3f}")
     assert comp == pytest.approx(S22B[name], abs=0.10)
-    assert abs(delta) <= CORRECTION_BOUND_KCAL_PER_MOL
+    # size: small, as reported for these contacts, and within 0.10 of the implied correction
+    assert abs(delta_dz) <= CORRECTION_BOUND_KCAL_PER_MOL
+    assert abs(delta_dz - implied) <= 0.10
+    # sign: the correction in the largest basis computed has the sign S22B implies; where a
+    # larger basis was computed it is closer to the implied value than the aDZ one
+    largest = list(deltas)[-1]
+    assert np.sign(deltas[largest]) == np.sign(implied), (deltas, implied)
+    if len(deltas) > 1:
+        assert abs(deltas[largest] - implied) < abs(delta_dz - implied), (deltas, implied)
+        assert deltas[largest] == pytest.approx(implied, abs=0.03)
 
 
 def test_launcher_takes_a_composite_level():

@@ -59,12 +59,9 @@ def cmd_show(args) -> int:
 
 def cmd_verify(args) -> int:
     from ..share.grid_replay import verify_grid
+    from .output import verify_and_print
 
-    table = verify_grid(args.scan, sample=args.sample, seed=args.seed,
-                        executor="serial" if args.serial else "processes", workers=args.workers,
-                        progress=not args.quiet, log=print)
-    print(table)
-    return 0 if table.passed else 1
+    return verify_and_print(verify_grid, args.scan, args)
 
 
 def cmd_rerun(args, executor_of) -> int:

@@ -129,3 +129,12 @@ def force_unit_of(args) -> str:
     from ..units import MATCHING_FORCE_UNIT
 
     return getattr(args, "force_unit", None) or MATCHING_FORCE_UNIT[getattr(args, "unit", "kcal/mol")]
+
+
+def verify_and_print(verify, path: str, args) -> int:
+    """Run ``verify`` (scan, grid or study replay) on ``path`` with the command line's
+    sample, seed, executor and progress options; print its table; exit code 0 when it passed."""
+    table = verify(path, sample=args.sample, seed=args.seed, executor="serial" if args.serial else "processes",
+                   workers=args.workers, progress=not args.quiet, log=print)
+    print(table)
+    return 0 if table.passed else 1

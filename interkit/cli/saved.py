@@ -125,11 +125,9 @@ def cmd_verify(args) -> int:
 
         return verify_grid(args)
     from ..share.replay import verify_scan
+    from .output import verify_and_print
 
-    table = verify_scan(args.scan, sample=args.sample, seed=args.seed,
-                        executor="serial" if args.serial else "processes", workers=args.workers,
-                        progress=not args.quiet, log=print)
-    return _finish(table)
+    return verify_and_print(verify_scan, args.scan, args)
 
 
 def cmd_report(args) -> int:

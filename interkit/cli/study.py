@@ -140,12 +140,9 @@ def cmd_rank(args) -> int:
 
 def cmd_verify(args) -> int:
     from ..share.study_replay import verify_study
+    from .output import verify_and_print
 
-    check = verify_study(args.study, sample=args.sample, seed=args.seed,
-                         executor="serial" if args.serial else "processes", workers=args.workers,
-                         progress=not args.quiet, log=print)
-    print(check)
-    return 0 if check.passed else 1
+    return verify_and_print(verify_study, args.study, args)
 
 
 def cmd_rerun(args) -> int:

@@ -19,6 +19,7 @@ from ..model.job import Job, failed_record
 from ..model.levels import SCS_OPPOSITE_SPIN, SCS_SAME_SPIN, LevelOfTheory
 from ..model.spin import BROKEN_SYMMETRY_GUESS
 from .dispersion import dispersion_energy_and_gradient
+from .fitted_integrals import keep_scf_tensor, share_scf_tensor
 from .guess import FRAGMENT_GUESS_CONV_TOL_HARTREE, broken_symmetry_guess
 from .molecule import build_molecule
 from .numint_cache import CachingNumInt
@@ -236,7 +237,9 @@ def run_energy_job(job: Job, guess=None) -> tuple[dict, object]:
             # depends on the job description only
             guess = broken_symmetry_guess(job, mol, lambda m: _make_scf(m, level, FRAGMENT_GUESS_CONV_TOL_HARTREE))
             record["guess"] = BROKEN_SYMMETRY_GUESS
+        shared = share_scf_tensor(mf)
         status, detail = converge_scf(mf, guess)
+        keep_scf_tensor(mf, shared)
         record["scf_cycles"] = int(getattr(mf, "cycles", 0) or 0)
         record["status"], record["detail"] = status, detail
         if status != "failed":

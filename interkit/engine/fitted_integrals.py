@@ -210,3 +210,45 @@ def right_apply(m: np.ndarray, a: np.ndarray) -> np.ndarray:
 def left_apply(a: np.ndarray, m: np.ndarray) -> np.ndarray:
     """``a @ m[p]`` for every p: a (n, k), m (b, k, l) -> (b, n, l)."""
     return np.matmul(a, m)
+
+
+# the SCF's fitted three-index tensor L^-1 (P|mu nu) of the last basis and fitting basis
+# (process-local): the dimer and both ghosted monomers of a point build the same one
+_SCF_TENSOR: dict = {"key": None, "cderi": None}
+
+
+def share_scf_tensor(mf):
+    """Before a density-fitted SCF: give ``mf.with_df`` the fitted tensor an earlier
+    calculation of the same basis and fitting basis built (pyscf's ``DF.build`` then
+    skips it; the numbers are the same array). Returns what :func:`keep_scf_tensor`
+    needs afterwards, or None for a calculation without density fitting."""
+    from pyscf.df import addons
+
+    with_df = getattr(mf, "with_df", None)
+    if with_df is None or with_df._cderi is not None:
+        return None
+    auxmol = addons.make_auxmol(mf.mol, with_df.auxbasis)
+    key = (basis_fingerprint(mf.mol), basis_fingerprint(auxmol))
+    if _SCF_TENSOR["key"] == key:
+        with_df._cderi = _SCF_TENSOR["cderi"]
+    else:  # another point: free the old tensor before the new one is built
+        _SCF_TENSOR.update(key=None, cderi=None)
+    return key, auxmol
+
+
+def keep_scf_tensor(mf, token) -> None:
+    """After the SCF: keep its in-memory fitted tensor for the next calculation and give
+    ``with_df`` its fitting molecule (the gradient code reads it)."""
+    if token is None:
+        return
+    key, auxmol = token
+    with_df = mf.with_df
+    if with_df.auxmol is None:
+        with_df.auxmol = auxmol
+    if isinstance(with_df._cderi, np.ndarray):
+        _SCF_TENSOR.update(key=key, cderi=with_df._cderi)
+
+
+def release_scf_tensor() -> None:
+    """Free the kept SCF fitted tensor."""
+    _SCF_TENSOR.update(key=None, cderi=None)

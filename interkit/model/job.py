@@ -249,25 +249,31 @@ class ScanPlan:
     def chunks(self, n_chunks: int) -> list[list[tuple[str, str]]]:
         """Split the work into about ``n_chunks`` ordered task lists of ``(role, key)``.
 
-        Each chunk holds a contiguous run of points for one level, ordered point by
+        Each chunk holds a contiguous run of one level's calculations, ordered point by
         point, so a worker can start every calculation from the previous point's
-        density in the same role. In rigid scans the two own-basis monomers (one
-        calculation each per level) open the first and the last chunk of their level.
+        density in the same role, and within a point the monomers come before the
+        dimer. The runs are cut where their estimated costs
+        (:func:`calculation_weight`) are about equal, inside a point if need be: with
+        few points per worker, whole points would leave a worker idle. In rigid scans
+        the two own-basis monomers (one calculation each per level) open the first and
+        the last chunk of their level.
         """
         own_per_point = not self.spec.is_rigid
         n_levels, n_points = len(self.spec.levels), self.n_points
         per_level = min(n_points, max(1, -(-int(n_chunks) // n_levels)))
         chunks: list[list[tuple[str, str]]] = []
+        largest = max((len(j.symbols) for j in self.jobs.values()), default=1)
         for li in range(n_levels):
-            bounds = np.linspace(0, n_points, per_level + 1).round().astype(int)
-            level_chunks = [
-                [(role, self.table[(li, pi)][role]) for pi in range(lo, hi)
-                 for role in self.point_roles(li, pi)]
-                for lo, hi in zip(bounds[:-1], bounds[1:])
-            ]
-            if not own_per_point:
-                level_chunks[0].insert(0, ("a_own_basis", self.table[(li, 0)]["a_own_basis"]))
-                level_chunks[-1].insert(0, ("b_own_basis", self.table[(li, 0)]["b_own_basis"]))
+            # per point the monomers before the dimer: a dimer can then start from the sum
+            # of its ghosted monomers even when a cut falls just before its point
+            tasks = [(role, self.table[(li, pi)][role]) for pi in range(n_points)
+                     for role in sorted(self.point_roles(li, pi), key=_guess_rank)]
+            own = [] if own_per_point else [(r, self.table[(li, 0)][r]) for r in OWN_BASIS_ROLES]
+            flat = own[:1] + tasks + own[1:]
+            weights = [calculation_weight(self.jobs[key], largest) for _, key in flat]
+            level_chunks = [list(piece) for piece in _cut_evenly(flat, weights, per_level)]
+            if len(own) == 2 and len(level_chunks) > 1:  # B's own-basis monomer opens the last chunk
+                level_chunks[-1].insert(0, level_chunks[-1].pop())
             chunks.extend(level_chunks)
         if self.decomposition:
             keys = [self.decomposition[pi] for pi in sorted(self.decomposition)]
@@ -286,6 +292,37 @@ class ScanPlan:
             if kept:
                 out.append(kept)
         return out
+
+
+#: the cost of a calculation grows about as (atoms carrying basis functions) to this power
+#: (DFT, B3LYP/def2-SVP, 9 to 23 atoms: time per calculation against basis size, 2.1-2.8)
+CHUNK_COST_EXPONENT = 2.5
+
+
+def _guess_rank(role: str) -> int:
+    """Own-basis monomers, then monomers in the dimer basis, then the dimer."""
+    return 0 if role in OWN_BASIS_ROLES else 2 if role.startswith("dimer") else 1
+
+
+def calculation_weight(job, largest_atoms: int) -> float:
+    """Relative cost of ``job`` for splitting work: (its atoms / ``largest_atoms``) to
+    :data:`CHUNK_COST_EXPONENT` (ghost atoms count: they carry basis functions)."""
+    return (len(job.symbols) / max(1, largest_atoms)) ** CHUNK_COST_EXPONENT
+
+
+def _cut_evenly(items: list, weights: list[float], n: int) -> list[list]:
+    """``items`` in at most ``n`` contiguous non-empty pieces of about equal total weight."""
+    n = max(1, min(int(n), len(items)))
+    cum = np.cumsum(weights)
+    total = float(cum[-1]) if len(cum) else 0.0
+    cuts = [0]
+    for k in range(1, n):
+        # the task boundary whose cumulative weight is closest to k/n of the total
+        i = int(np.argmin(np.abs(cum - total * k / n))) + 1
+        i = min(max(i, cuts[-1] + 1), len(items) - (n - k))
+        cuts.append(i)
+    cuts.append(len(items))
+    return [items[a:b] for a, b in zip(cuts[:-1], cuts[1:])]
 
 
 #: longest failure reason a record keeps (characters)

@@ -28,11 +28,13 @@ import csv
 import json
 import math
 import os
+from dataclasses import dataclass
 
 import numpy as np
 import xarray as xr
 
 from ..errors import InputError
+from ..fileio import existing_folder
 from ..units import (
     ANGSTROM_TO_BOHR,
     CODATA_EDITION,
@@ -53,9 +55,7 @@ FORMATS = ("csv", "json", "xyz", "extxyz")   # xyz/extxyz: interkit.share.trajec
 
 
 def _check_folder(path: str) -> None:
-    folder = os.path.dirname(os.path.abspath(path))
-    if not os.path.isdir(folder):
-        raise InputError(f"export: folder {folder!r} does not exist")
+    existing_folder(path, "export")
 
 
 def _check_unit(unit: str) -> None:
@@ -93,6 +93,55 @@ def _pair_status(ds: xr.Dataset, var: xr.DataArray) -> np.ndarray | None:
     return np.asarray(ds["dispersion_status"].transpose("level", "dispersion").values).astype(str)
 
 
+def resolve_force_unit(unit: str, force_unit: str | None) -> str:
+    """Check ``unit`` and return ``force_unit``, by default the one matching ``unit``."""
+    _check_unit(unit)
+    force_unit = force_unit or MATCHING_FORCE_UNIT.get(unit, "kcal/mol/angstrom")
+    if force_unit not in FORCE_UNITS:
+        raise InputError(f"force_unit: {force_unit!r} is not one of {', '.join(FORCE_UNITS)}")
+    return force_unit
+
+
+@dataclass
+class TidyCell:
+    """One value of a tidy table: ``lead`` the level [and dispersion] columns, ``tail``
+    the value, unit and status columns (strings), ``labels`` its index per dimension."""
+
+    name: str
+    labels: dict
+    lead: list
+    tail: list
+
+
+def tidy_cells(ds: xr.Dataset, variables, unit: str, force_unit: str):
+    """Every value of ``variables`` as a :class:`TidyCell`, energies in ``unit`` and forces
+    in ``force_unit``; level-scheme pairs that do not exist (HF with a DFT scheme) are left out."""
+    has_disp = "dispersion" in ds.dims
+    for name in variables:
+        var = ds[name]
+        units = str(var.attrs.get("units", ""))
+        values = np.asarray(var.values, dtype=float)
+        if units == "kcal/mol":
+            values, units = convert_energy(values, "kcal/mol", unit), unit
+        elif units in FORCE_UNITS:
+            values, units = convert_force(values, units, force_unit), force_unit
+        status = _status_of(ds, name)
+        status_values = np.asarray(status.values).astype(str) if status is not None else None
+        pair = _pair_status(ds, var)
+        for pos in np.ndindex(values.shape):
+            labels = dict(zip(var.dims, pos))
+            note = pair[labels["level"], labels["dispersion"]] if pair is not None else "ok"
+            if note.startswith("not applicable"):
+                continue
+            lead = [str(ds["level"].values[labels["level"]]) if "level" in labels else ""]
+            if has_disp:
+                lead.append(str(ds["dispersion"].values[labels["dispersion"]]) if "dispersion" in labels else "")
+            v = values[pos]
+            yield TidyCell(name, labels, lead, [
+                f"{v:.10g}" if np.isfinite(v) else "", units,
+                note if note != "ok" else str(status_values[pos]) if status_values is not None else ""])
+
+
 def tidy_rows(ds: xr.Dataset, unit: str = "kcal/mol",
               force_unit: str | None = None) -> tuple[list[str], list[list[str]]]:
     """Header and rows of the tidy table (strings; missing values are empty).
@@ -107,41 +156,16 @@ def tidy_rows(ds: xr.Dataset, unit: str = "kcal/mol",
         Unit of the forces (variables in kcal/mol/angstrom are converted); default: the
         one matching ``unit`` (:data:`interkit.units.MATCHING_FORCE_UNIT`).
     """
-    _check_unit(unit)
-    force_unit = force_unit or MATCHING_FORCE_UNIT.get(unit, "kcal/mol/angstrom")
-    if force_unit not in FORCE_UNITS:
-        raise InputError(f"force_unit: {force_unit!r} is not one of {', '.join(FORCE_UNITS)}")
-    has_disp = "dispersion" in ds.dims
-    header = ["level"] + (["dispersion"] if has_disp else []) + [
+    force_unit = resolve_force_unit(unit, force_unit)
+    header = ["level"] + (["dispersion"] if "dispersion" in ds.dims else []) + [
         "distance_angstrom", "factor", "variable", "value", "unit", "status"]
     r = np.asarray(ds["distance"].values, dtype=float)
     factor = np.asarray(ds["factor"].values, dtype=float) if "factor" in ds.coords else np.full_like(r, np.nan)
     rows = []
-    for name in tidy_variables(ds):
-        var = ds[name]
-        units = str(var.attrs.get("units", ""))
-        values = np.asarray(var.values, dtype=float)
-        if units == "kcal/mol":
-            values, units = convert_energy(values, "kcal/mol", unit), unit
-        elif units in FORCE_UNITS:
-            values, units = convert_force(values, units, force_unit), force_unit
-        status = _status_of(ds, name)
-        status_values = np.asarray(status.values).astype(str) if status is not None else None
-        pair = _pair_status(ds, var)
-        for pos in np.ndindex(values.shape):
-            labels = dict(zip(var.dims, pos))
-            i = labels["distance"]
-            note = pair[labels["level"], labels["dispersion"]] if pair is not None else "ok"
-            if note.startswith("not applicable"):
-                continue   # e.g. HF with a DFT dispersion scheme: the pair does not exist
-            row = [str(ds["level"].values[labels["level"]]) if "level" in labels else ""]
-            if has_disp:
-                row.append(str(ds["dispersion"].values[labels["dispersion"]]) if "dispersion" in labels else "")
-            v = values[pos]
-            row += [f"{r[i]:.6f}", f"{factor[i]:.6f}" if np.isfinite(factor[i]) else "", name,
-                    f"{v:.10g}" if np.isfinite(v) else "", units,
-                    note if note != "ok" else str(status_values[pos]) if status_values is not None else ""]
-            rows.append(row)
+    for cell in tidy_cells(ds, tidy_variables(ds), unit, force_unit):
+        i = cell.labels["distance"]
+        rows.append(cell.lead + [f"{r[i]:.6f}", f"{factor[i]:.6f}" if np.isfinite(factor[i]) else "",
+                                 cell.name] + cell.tail)
     return header, rows
 
 

@@ -27,17 +27,16 @@ import xarray as xr
 from ..data.columns import column_name
 from ..data.grid import check_grid, grid_of, open_grid
 from ..errors import InputError
-from ..units import CODATA_EDITION, FORCE_UNITS, MATCHING_FORCE_UNIT, convert_energy, convert_force
+from ..units import CODATA_EDITION
 from .export import (
     GHOSTED_ROLES,
     RUN_VARIABLES,
     _check_folder,
-    _check_unit,
     _json_attr,
     _json_value,
-    _pair_status,
-    _status_of,
     qcschema_molecule,
+    resolve_force_unit,
+    tidy_cells,
 )
 
 GRID_EXPORT_SCHEMA_NAME = "interkit_grid_export"
@@ -76,42 +75,17 @@ def grid_tidy_rows(ds: xr.Dataset, unit: str = "kcal/mol",
         Unit of the forces; default: the one matching ``unit``.
     """
     check_grid(ds)
-    _check_unit(unit)
-    force_unit = force_unit or MATCHING_FORCE_UNIT.get(unit, "kcal/mol/angstrom")
-    if force_unit not in FORCE_UNITS:
-        raise InputError(f"force_unit: {force_unit!r} is not one of {', '.join(FORCE_UNITS)}")
+    force_unit = resolve_force_unit(unit, force_unit)
     names = grid_of(ds).names
-    has_disp = "dispersion" in ds.dims
-    header = (["level"] + (["dispersion"] if has_disp else []) + [axis_column(ds, n) for n in names]
+    header = (["level"] + (["dispersion"] if "dispersion" in ds.dims else []) + [axis_column(ds, n) for n in names]
               + ["point", "variable", "value", "unit", "status"])
     axis_values = {n: np.asarray(ds[n].values) for n in names}
+    point = ds["point"]
     rows = []
-    for name in grid_tidy_variables(ds):
-        var = ds[name]
-        units = str(var.attrs.get("units", ""))
-        values = np.asarray(var.values, dtype=float)
-        if units == "kcal/mol":
-            values, units = convert_energy(values, "kcal/mol", unit), unit
-        elif units in FORCE_UNITS:
-            values, units = convert_force(values, units, force_unit), force_unit
-        status = _status_of(ds, name)
-        status_values = np.asarray(status.values).astype(str) if status is not None else None
-        pair = _pair_status(ds, var)
-        point = ds["point"].transpose(*[d for d in var.dims if d in names]).values
-        for pos in np.ndindex(values.shape):
-            labels = dict(zip(var.dims, pos))
-            note = pair[labels["level"], labels["dispersion"]] if pair is not None else "ok"
-            if note.startswith("not applicable"):
-                continue
-            row = [str(ds["level"].values[labels["level"]]) if "level" in labels else ""]
-            if has_disp:
-                row.append(str(ds["dispersion"].values[labels["dispersion"]]) if "dispersion" in labels else "")
-            row += [f"{float(axis_values[n][labels[n]]):.10g}" for n in names]
-            v = values[pos]
-            row += [str(int(point[tuple(labels[d] for d in var.dims if d in names)])), name,
-                    f"{v:.10g}" if np.isfinite(v) else "", units,
-                    note if note != "ok" else str(status_values[pos]) if status_values is not None else ""]
-            rows.append(row)
+    for cell in tidy_cells(ds, grid_tidy_variables(ds), unit, force_unit):
+        flat = int(point.values[tuple(cell.labels[d] for d in point.dims)])
+        rows.append(cell.lead + [f"{float(axis_values[n][cell.labels[n]]):.10g}" for n in names]
+                    + [str(flat), cell.name] + cell.tail)
     return header, rows
 
 

@@ -19,6 +19,7 @@ import xarray as xr
 
 from ..data.grid import check_grid, grid_of, open_grid
 from ..errors import InputError
+from ..fileio import existing_folder
 from .report import STYLE, _e, _figure, _num, _table
 
 #: larger grids get no full energy table in the report (the CSV export has every value)
@@ -237,9 +238,7 @@ def write_grid_report(ds, path: str | os.PathLike, unit: str = "kcal/mol") -> st
     from ..fileio import atomic_write_text
 
     path = os.fspath(path)
-    folder = os.path.dirname(os.path.abspath(path))
-    if not os.path.isdir(folder):
-        raise InputError(f"path: folder {folder!r} does not exist")
+    existing_folder(path, "path")
     if not isinstance(ds, xr.Dataset):
         ds = open_grid(ds)
     return atomic_write_text(path, render_grid_report(ds, unit))

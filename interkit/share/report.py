@@ -25,6 +25,7 @@ import numpy as np
 import xarray as xr
 
 from ..errors import InputError
+from ..fileio import existing_folder
 
 STYLE = """
 body { font-family: system-ui, -apple-system, "Segoe UI", sans-serif; color: #1e2328;
@@ -411,9 +412,7 @@ def write_report(ds, path: str | os.PathLike, reference: str | None = None, regi
         The path written.
     """
     path = os.fspath(path)
-    folder = os.path.dirname(os.path.abspath(path))
-    if not os.path.isdir(folder):
-        raise InputError(f"path: folder {folder!r} does not exist")
+    existing_folder(path, "path")
     if not isinstance(ds, xr.Dataset):
         from .provenance import load_saved
 

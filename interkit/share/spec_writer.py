@@ -13,6 +13,7 @@ import os
 import xarray as xr
 
 from ..errors import InputError
+from ..fileio import existing_folder
 from ..model.spec import ScanSpec
 
 
@@ -33,9 +34,7 @@ def write_spec(spec: ScanSpec, path: str | os.PathLike) -> str:
     path = os.fspath(path)
     if not path.lower().endswith(".toml"):
         raise InputError(f"path: {path!r} should end in .toml (a TOML spec file)")
-    folder = os.path.dirname(os.path.abspath(path))
-    if not os.path.isdir(folder):
-        raise InputError(f"path: folder {folder!r} does not exist")
+    existing_folder(path, "path")
     if os.path.isdir(path):
         raise InputError(f"path: {path!r} is a folder, not a file")
     text = spec.to_toml() if isinstance(spec, ScanSpec) else None

@@ -15,6 +15,7 @@ from datetime import datetime, timezone
 import xarray as xr
 
 from ..errors import InputError
+from ..fileio import existing_folder
 from .report import STYLE, _e, _figure, _num, _table
 
 _RANK_HEADER = ["rank", "method", "points", "MAE", "mean signed", "RMSE", "largest", "where", "MARE / %"]
@@ -109,9 +110,7 @@ def render_study_report(tree: xr.DataTree, reference=None, region: str = "all") 
 def write_study_report(tree, path: str | os.PathLike, reference=None, region: str = "all") -> str:
     """Write the self-contained HTML report of a study (tree or ``.nc`` path); returns the path."""
     path = os.fspath(path)
-    folder = os.path.dirname(os.path.abspath(path))
-    if not os.path.isdir(folder):
-        raise InputError(f"path: folder {folder!r} does not exist")
+    existing_folder(path, "path")
     if not isinstance(tree, xr.DataTree):
         from ..data.study_tree import open_study
 

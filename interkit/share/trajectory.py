@@ -27,6 +27,7 @@ import numpy as np
 import xarray as xr
 
 from ..errors import InputError, InterkitWarning
+from ..fileio import existing_folder
 from ..units import convert_energy
 
 TRAJECTORY_FORMATS = ("xyz", "extxyz")
@@ -67,9 +68,7 @@ def _atom_lines(symbols, xyz, extra=None) -> list[str]:
 
 
 def _write(path: str, lines: list[str]) -> str:
-    folder = os.path.dirname(os.path.abspath(path))
-    if not os.path.isdir(folder):
-        raise InputError(f"export: folder {folder!r} does not exist")
+    existing_folder(path, "export")
     with open(path, "w", encoding="utf-8") as fh:
         fh.write("\n".join(lines) + "\n")
     return path
