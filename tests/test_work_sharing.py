@@ -105,3 +105,14 @@ def test_chunks_are_cut_by_estimated_cost_and_keep_every_calculation_once(small_
                 for role in ("a_dimer_basis", "b_dimer_basis"):
                     if entry[role] in keys:
                         assert keys.index(entry[role]) < keys.index(entry["dimer"])
+
+
+def test_a_serial_scan_frees_what_its_calculations_kept(small_dimer, tmp_path):
+    from interkit.engine import numint_cache
+
+    spec = ik.ScanSpec(dimer=small_dimer, coordinate=ik.AtomPair(0, 2), factors=[1.0, 1.2],
+                       levels=["b3lyp/def2-svp"])
+    ds = ik.run_scan(spec, executor="serial", cache=tmp_path / "store", progress=False)
+    assert (ds["status"] == "ok").all()
+    assert numint_cache._POOL["cache"] is None and numint_cache._POOL["buffers"] == []
+    assert fitted_integrals._SCF_TENSOR["key"] is None

@@ -215,11 +215,20 @@ def _single_threaded_children(threads: int):
 
 
 def run_serial(chunks, jobs, store_root, report, cancel=None) -> dict[str, dict]:
-    """Run every chunk in this process (pyscf's own threading applies)."""
+    """Run every chunk in this process (pyscf's own threading applies); afterwards the
+    orbital values and fitted tensor kept between calculations are freed, so a notebook
+    does not hold them after the scan."""
+    from ..engine.fitted_integrals import release_scf_tensor
+    from ..engine.numint_cache import release_pool
+
     results: dict[str, dict] = {}
-    for tasks in chunks:
-        for key, record in run_chunk(tasks, jobs, store_root, report, cancel):
-            results[key] = record
+    try:
+        for tasks in chunks:
+            for key, record in run_chunk(tasks, jobs, store_root, report, cancel):
+                results[key] = record
+    finally:
+        release_pool()
+        release_scf_tensor()
     return results
 
 
