@@ -383,6 +383,7 @@ def _correction(e, basis: str) -> float:
 
 
 @pytest.mark.slow
+@pytest.mark.timeout(3600)  # CCSD(T)/aug-cc-pVTZ for the water dimer: beyond the 900 s default
 @pytest.mark.parametrize("name", sorted(S22B))
 def test_s22_composite_matches_s22b(name, tmp_path):
     """MP2/CBS(aTZ, aQZ) + ΔCCSD(T)/aDZ on the S22 geometries of ``ase.data.s22``

@@ -46,6 +46,7 @@ def _hbond(d):
 
 
 @pytest.mark.slow
+@pytest.mark.timeout(3600)  # dozens of MP2/aug-cc-pVDZ gradients: beyond the 900 s default
 def test_mp2_optimum_matches_a_tight_reference_and_the_published_distance(tmp_path):
     store = tmp_path / "store"
     d0 = s22_dimer("Water_dimer")

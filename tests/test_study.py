@@ -330,6 +330,7 @@ S22_B3LYP_D3BJ_TZVP_MAE_TOLERANCE = 0.5
 
 
 @pytest.mark.slow
+@pytest.mark.timeout(6 * 3600)  # the whole S22 set in def2-TZVP: hours on 2 cores
 def test_s22_set_at_b3lyp_d3bj_tzvp_against_s22b(tmp_path):
     import os
 
