@@ -97,6 +97,8 @@ def test_chunks_are_cut_by_estimated_cost_and_keep_every_calculation_once(small_
     # points would give 6.x against 3.x; cut by cost the two differ by at most one calculation
     assert abs(cost[0] - cost[1]) <= 1.0 + 1e-12
     assert chunks[0][0][0] == "a_own_basis" and chunks[-1][0][0] == "b_own_basis"
+    # one worker: both own-basis monomers first, so points complete (and show) one by one
+    assert [role for role, _ in plan.chunks(1)[0][:2]] == ["a_own_basis", "b_own_basis"]
     for c in chunks:  # within a point, the monomers come before the dimer
         keys = [k for _, k in c]
         for pi in range(plan.n_points):

@@ -272,8 +272,9 @@ class ScanPlan:
             flat = own[:1] + tasks + own[1:]
             weights = [calculation_weight(self.jobs[key], largest) for _, key in flat]
             level_chunks = [list(piece) for piece in _cut_evenly(flat, weights, per_level)]
-            if len(own) == 2 and len(level_chunks) > 1:  # B's own-basis monomer opens the last chunk
-                level_chunks[-1].insert(0, level_chunks[-1].pop())
+            if len(own) == 2:  # B's own-basis monomer opens the last chunk (after A's if it is the only one)
+                last = level_chunks[-1]
+                last.insert(1 if len(level_chunks) == 1 else 0, last.pop())
             chunks.extend(level_chunks)
         if self.decomposition:
             keys = [self.decomposition[pi] for pi in sorted(self.decomposition)]
