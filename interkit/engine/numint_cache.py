@@ -103,6 +103,7 @@ class CachingNumInt(numint.NumInt):
             grids.build(with_non0tab=True)
         if nao is None:
             nao = mol.nao
+        default_mask = non0tab is None  # in the cache signature, as before: a caller's own mask is not replayed
         coords = grids.coords
         ngrids = coords.shape[0]
         comp = (deriv + 1) * (deriv + 2) * (deriv + 3) // 6
@@ -114,7 +115,7 @@ class CachingNumInt(numint.NumInt):
         if non0tab is None:
             non0tab = np.empty(((ngrids + BLKSIZE - 1) // BLKSIZE, mol.nbas), dtype=np.uint8)
             non0tab[:] = numint.NBINS + 1
-        signature = (deriv, nao, blksize, ngrids)
+        signature = (deriv, nao, blksize, ngrids, default_mask)
         fingerprint = _basis_fingerprint(mol) if self.max_cache_mb > 0 else b""
         cached = _POOL.get("cache")
         kept: list = []
